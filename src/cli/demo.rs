@@ -1,0 +1,9 @@
+//! `regulus demo`: not yet written.
+
+/// Options of `regulus demo`.
+#[derive(Debug, clap::Args)]
+pub struct Args {}
+
+pub fn run(_args: Args) -> anyhow::Result<u8> {
+    Err(super::CodedError::new(super::EXIT_USAGE, "`regulus demo` is not available yet").into())
+}

@@ -1,0 +1,12 @@
+//! regulus: design, characterize and track linear regulated DC power supplies.
+//!
+//! The library holds all logic; `src/main.rs` only parses arguments and dispatches to `cli`.
+//! Pure modules (design, protocol parsing, plan expansion, analysis, comparison) do no I/O;
+//! transports, instruments, the runner and the record writer sit at the edges.
+
+pub mod cli;
+pub mod control;
+pub mod design;
+pub mod measure;
+pub mod rng;
+pub mod units;

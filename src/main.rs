@@ -1,0 +1,20 @@
+//! The `regulus` binary: parse arguments, dispatch to a command, print the error chain once,
+//! and map the outcome to an exit code. Nothing else lives here.
+
+use clap::Parser;
+use std::process::ExitCode;
+
+fn main() -> ExitCode {
+    let cli = regulus::cli::Cli::parse();
+    match regulus::cli::dispatch(cli) {
+        Ok(code) => ExitCode::from(code),
+        Err(err) => {
+            let code = regulus::cli::exit_code_for(&err);
+            eprintln!("error: {err}");
+            for cause in err.chain().skip(1) {
+                eprintln!("  caused by: {cause}");
+            }
+            ExitCode::from(code)
+        }
+    }
+}
