@@ -8,5 +8,6 @@ pub mod cli;
 pub mod control;
 pub mod design;
 pub mod measure;
+pub mod record;
 pub mod rng;
 pub mod units;
