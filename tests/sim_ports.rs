@@ -131,6 +131,8 @@ fn load_setting_changes_the_measured_output() {
         "{i}"
     );
     load.send("INP OFF");
+    // Wait until the load has taken the command (the meter is on another port).
+    assert_eq!(load.ask("*OPC?"), "1");
     let v = dmm.number("MEAS:VOLT:DC?");
     assert!((v - v0).abs() < 1e-3);
     // An unknown command gets no reply; SYST:ERR? reports it.
@@ -286,4 +288,52 @@ fn bench_file_names_every_port() {
             Link::Tcp(a) => assert_eq!(i["tcp"]["port"].as_integer(), Some(a.port() as i64)),
         }
     }
+}
+
+#[test]
+fn pty_instrument_survives_the_bench_closing_and_reopening_it() {
+    let _g = serial();
+    let sim = start(
+        SimOptions::default()
+            .seed(11)
+            .transport(TransportMix::AllPty),
+    );
+    let link = sim.port(InstrumentKind::QueryMeter).unwrap().clone();
+    for _ in 0..3 {
+        let mut dmm = Client::open(&link);
+        assert!(dmm.number("MEAS:VOLT:DC?") > 0.0);
+        drop(dmm);
+        // Nobody has the port open for a while: the master sees EIO and must keep waiting.
+        std::thread::sleep(Duration::from_millis(60));
+    }
+    // The streaming meter resumes too, with lines in the fixed format.
+    let link = sim.port(InstrumentKind::StreamMeter).unwrap().clone();
+    for _ in 0..2 {
+        let mut amm = Client::open(&link);
+        let l = amm.line().unwrap();
+        assert!(l.starts_with("DCI ") && l.ends_with(" A OK"), "{l}");
+    }
+}
+
+#[test]
+fn reopened_streaming_meter_sends_no_stale_lines() {
+    let _g = serial();
+    let sim = start(SimOptions::default().seed(12).noise(0.0));
+    let amm_link = sim.port(InstrumentKind::StreamMeter).unwrap().clone();
+    let mut load = Client::open(sim.port(InstrumentKind::Load).unwrap());
+    load.send("CURR 0.5");
+    load.send("INP ON");
+    let _ = load.ask("*OPC?");
+    let mut amm = Client::open(&amm_link);
+    for _ in 0..5 {
+        assert_eq!(amm.line().unwrap(), "DCI +0.5000 A OK");
+    }
+    // Stop reading for a while (lines pile up unread), then close.
+    std::thread::sleep(Duration::from_millis(300));
+    drop(amm);
+    load.send("CURR 1.0");
+    let _ = load.ask("*OPC?");
+    std::thread::sleep(Duration::from_millis(100));
+    let mut amm = Client::open(&amm_link);
+    assert_eq!(amm.line().unwrap(), "DCI +1.0000 A OK");
 }

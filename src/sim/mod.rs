@@ -311,7 +311,11 @@ impl SimBench {
             // On any error `bench` is dropped, which stops the threads already started.
             let (link, handle) = if opts.transport.uses_pty(kind) {
                 let (master, path) = open_pty(name)?;
-                let h = serve::spawn_pty(master, sh).map_err(|source| SimError::Thread {
+                let port = serve::PtyPort {
+                    master,
+                    slave_path: path.clone(),
+                };
+                let h = serve::spawn_pty(port, sh).map_err(|source| SimError::Thread {
                     instrument: name.to_string(),
                     source,
                 })?;

@@ -156,17 +156,46 @@ enum Got {
 
 trait Port: Write {
     fn read_some(&mut self, buf: &mut [u8]) -> Got;
+    /// Called when the other side went away after being there.
+    fn peer_left(&mut self) {}
 }
 
-impl Port for serialport::TTYPort {
+/// A pseudo-terminal master and the path of its slave side.
+pub struct PtyPort {
+    pub master: serialport::TTYPort,
+    pub slave_path: String,
+}
+
+impl Write for PtyPort {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        self.master.write(buf)
+    }
+    fn flush(&mut self) -> io::Result<()> {
+        self.master.flush()
+    }
+}
+
+impl Port for PtyPort {
     fn read_some(&mut self, buf: &mut [u8]) -> Got {
-        match self.read(buf) {
+        match self.master.read(buf) {
             Ok(0) => Got::NoPeer,
             Ok(n) => Got::Data(n),
             Err(e) if e.kind() == io::ErrorKind::TimedOut => Got::Idle,
             Err(e) if e.kind() == io::ErrorKind::Interrupted => Got::Idle,
             // EIO / hang-up: the slave side is not open (yet, or any more). Wait and retry.
             Err(_) => Got::NoPeer,
+        }
+    }
+
+    /// Lines written but not read stay in the slave's input buffer across a close and would
+    /// reach the next opener as if fresh: open the slave briefly and discard them.
+    fn peer_left(&mut self) {
+        use serialport::{ClearBuffer, SerialPort};
+        if let Ok(slave) = serialport::new(self.slave_path.as_str(), 115_200)
+            .timeout(POLL)
+            .open_native()
+        {
+            let _ = slave.clear(ClearBuffer::Input);
         }
     }
 }
@@ -223,6 +252,9 @@ fn session<P: Port>(port: &mut P, sh: &Shared, reconnects: bool) {
             Got::NoPeer => {
                 if !reconnects {
                     return;
+                }
+                if peer {
+                    port.peer_left();
                 }
                 peer = false;
                 line.clear();
@@ -293,16 +325,16 @@ fn session<P: Port>(port: &mut P, sh: &Shared, reconnects: bool) {
 
 /// Serve an instrument on a pseudo-terminal master until stop or close; the master is
 /// dropped at the end, which hangs up the bench's side.
-pub fn spawn_pty(mut master: serialport::TTYPort, sh: Shared) -> io::Result<JoinHandle<()>> {
+pub fn spawn_pty(mut port: PtyPort, sh: Shared) -> io::Result<JoinHandle<()>> {
     use serialport::SerialPort;
-    master
+    port.master
         .set_timeout(POLL)
         .map_err(|e| io::Error::other(e.to_string()))?;
     std::thread::Builder::new()
         .name(format!("sim-{}", sh.kind().name()))
         .spawn(move || {
-            session(&mut master, &sh, true);
-            drop(master);
+            session(&mut port, &sh, true);
+            drop(port);
         })
 }
 

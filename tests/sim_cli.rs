@@ -1,0 +1,92 @@
+//! `regulus sim` as a user runs it: ports and true values printed, a bench file written,
+//! configuration errors exit 2.
+
+use std::process::Command;
+
+fn regulus() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_regulus"))
+}
+
+fn sample(name: &str) -> String {
+    format!("{}/samples/{name}", env!("CARGO_MANIFEST_DIR"))
+}
+
+#[test]
+fn sim_prints_ports_truth_and_writes_the_bench_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let bench = dir.path().join("bench.toml");
+    let out = regulus()
+        .args(["sim", "--design", &sample("fixed-12v-3a-foldback.toml")])
+        .args(["--seed", "3", "--run-for", "0.3", "--fault", "sense=0.39"])
+        .arg("--write-bench")
+        .arg(&bench)
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{text}\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    for word in [
+        "dmm",
+        "ammeter",
+        "eload",
+        "psu",
+        "thermo",
+        "pseudo-terminal /dev/",
+        "tcp 127.0.0.1:",
+    ] {
+        assert!(text.contains(word), "{word} missing in:\n{text}");
+    }
+    assert!(text.contains("short-circuit current"), "{text}");
+    assert!(text.contains("sense resistor fitted: 0.39 ohm"), "{text}");
+    assert!(text.contains("ports closed"), "{text}");
+    let written = std::fs::read_to_string(&bench).unwrap();
+    assert_eq!(written.matches("[[instrument]]").count(), 5);
+}
+
+#[test]
+fn sim_config_errors_exit_2() {
+    let design = sample("teaching-lab-0-20v.toml");
+    for bad in [
+        vec!["--fault", "sense=-1"],
+        vec!["--fault", "dmm:explode=1"],
+        vec!["--transport", "carrier-pigeon"],
+        vec!["--noise", "-1"],
+    ] {
+        let out = regulus()
+            .args(["sim", "--design", &design, "--run-for", "0"])
+            .args(&bad)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(2), "{bad:?}");
+        assert!(!out.stderr.is_empty());
+    }
+    // A diode fault on a design without a diode string is a configuration error too.
+    let out = regulus()
+        .args([
+            "sim",
+            "--design",
+            &sample("fixed-12v-3a-foldback.toml"),
+            "--run-for",
+            "0",
+        ])
+        .args(["--fault", "diodes=+1"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("not a diode string"));
+    let out = regulus()
+        .args([
+            "sim",
+            "--design",
+            "/nonexistent/design.toml",
+            "--run-for",
+            "0",
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+}
