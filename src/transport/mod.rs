@@ -1,0 +1,1 @@
+//! Transports: placeholder until the line reader lands.
