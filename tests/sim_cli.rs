@@ -18,6 +18,7 @@ fn sim_prints_ports_truth_and_writes_the_bench_file() {
     let out = regulus()
         .args(["sim", "--design", &sample("fixed-12v-3a-foldback.toml")])
         .args(["--seed", "3", "--run-for", "0.3", "--fault", "sense=0.39"])
+        .args(["--without", "psu"])
         .arg("--write-bench")
         .arg(&bench)
         .output()
@@ -33,18 +34,19 @@ fn sim_prints_ports_truth_and_writes_the_bench_file() {
         "dmm",
         "ammeter",
         "eload",
-        "psu",
         "thermo",
         "pseudo-terminal /dev/",
         "tcp 127.0.0.1:",
     ] {
         assert!(text.contains(word), "{word} missing in:\n{text}");
     }
+    assert!(!text.contains("psu "), "{text}");
     assert!(text.contains("short-circuit current"), "{text}");
     assert!(text.contains("sense resistor fitted: 0.39 ohm"), "{text}");
     assert!(text.contains("ports closed"), "{text}");
     let written = std::fs::read_to_string(&bench).unwrap();
-    assert_eq!(written.matches("[[instrument]]").count(), 5);
+    assert_eq!(written.matches("[[instrument]]").count(), 4);
+    assert!(!written.contains("input_source"));
 }
 
 #[test]
@@ -55,6 +57,7 @@ fn sim_config_errors_exit_2() {
         vec!["--fault", "dmm:explode=1"],
         vec!["--transport", "carrier-pigeon"],
         vec!["--noise", "-1"],
+        vec!["--without", "scope"],
     ] {
         let out = regulus()
             .args(["sim", "--design", &design, "--run-for", "0"])

@@ -4,6 +4,7 @@
 
 use super::{CodedError, EXIT_OK, EXIT_USAGE};
 use crate::design::Design;
+use crate::sim::instruments::InstrumentKind;
 use crate::sim::{Fault, Link, SimBench, SimOptions, TransportMix, Truth};
 use crate::units::eng;
 use anyhow::Context;
@@ -38,6 +39,10 @@ pub struct Args {
     /// Noise multiplier of the instruments (1 = realistic, 0 = noiseless).
     #[arg(long, default_value_t = 1.0, value_name = "X")]
     pub noise: f64,
+    /// Leave an instrument off the bench (repeatable): dmm, ammeter, eload, psu, thermo.
+    /// Without psu the unit always runs from its own input.
+    #[arg(long, value_name = "NAME")]
+    pub without: Vec<String>,
     /// Stop after this many seconds instead of waiting for Ctrl-C.
     #[arg(long, value_name = "SECONDS")]
     pub run_for: Option<f64>,
@@ -68,6 +73,14 @@ pub fn options(args: &Args) -> Result<SimOptions, CodedError> {
         .latency(Duration::from_millis(args.latency_ms))
         .transport(transport)
         .noise(args.noise);
+    for name in &args.without {
+        let kind = InstrumentKind::parse(name).ok_or_else(|| {
+            usage(format!(
+                "--without '{name}': use dmm, ammeter, eload, psu or thermo"
+            ))
+        })?;
+        opts = opts.without(kind);
+    }
     for spec in &args.faults {
         opts = opts.fault(Fault::parse(spec).map_err(|e| usage(format!("--fault {e}")))?);
     }

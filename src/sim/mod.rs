@@ -136,6 +136,9 @@ pub struct SimOptions {
     /// Noise multiplier (1 = the instruments' own noise, 0 = noiseless readings).
     pub noise: f64,
     pub model: UnitModel,
+    /// Instruments left off the bench (e.g. the source, so the unit always runs from its own
+    /// input).
+    pub omit: Vec<InstrumentKind>,
 }
 
 impl Default for SimOptions {
@@ -147,6 +150,7 @@ impl Default for SimOptions {
             transport: TransportMix::Mixed,
             noise: 1.0,
             model: UnitModel::default(),
+            omit: Vec::new(),
         }
     }
 }
@@ -174,6 +178,12 @@ impl SimOptions {
     }
     pub fn model(mut self, m: UnitModel) -> Self {
         self.model = m;
+        self
+    }
+    pub fn without(mut self, kind: InstrumentKind) -> Self {
+        if !self.omit.contains(&kind) {
+            self.omit.push(kind);
+        }
         self
     }
 }
@@ -274,6 +284,9 @@ impl SimBench {
             threads: Vec::new(),
         };
         for (n, kind) in InstrumentKind::ALL.into_iter().enumerate() {
+            if opts.omit.contains(&kind) {
+                continue;
+            }
             let mut faults = PortFaults::default();
             for f in &opts.faults {
                 if let Fault::Port(k, pf) = f {

@@ -203,6 +203,9 @@ pub struct OperatingPoint {
     pub clamp_share: f64,
     /// Pass device case temperature, degC.
     pub case_c: f64,
+    /// A CC load asks for more than the unit delivers: the output has collapsed to 0 V. It
+    /// stays down until the set current is one the unit can deliver at 0 V (latch-up).
+    pub collapsed: bool,
 }
 
 /// The true values of an as-built unit, for checking what the bench measured.
@@ -249,6 +252,8 @@ pub struct SimUnit {
     model: UnitModel,
     thermal: Thermal,
     faults: Vec<UnitFault>,
+    /// The output collapsed under a CC load at the last step.
+    latched: bool,
 }
 
 /// Where the input voltage comes from at an operating point.
@@ -328,6 +333,7 @@ impl SimUnit {
                 clamp_junction_c: ambient,
             },
             faults: faults.to_vec(),
+            latched: false,
         })
     }
 
@@ -405,25 +411,6 @@ impl SimUnit {
         }
     }
 
-    /// Most current the headroom allows with the output at `v` (input trough, sense drop,
-    /// saturation; and the amplifier's own rail when the design has one).
-    fn dropout_current(&self, feed: InputFeed, v: f64) -> f64 {
-        let rs = self.params.r_sense;
-        let sat = self.vce_sat();
-        let (peak, per_a) = match feed {
-            InputFeed::Design { peak, ripple_per_a } => (peak, ripple_per_a),
-            InputFeed::Source(vs) => (vs, 0.0),
-        };
-        // At the ripple trough: V = peak - I per_a - I R_s - sat  =>  I = (peak - sat - V) / (R_s + per_a)
-        let mut i = (peak - sat - v) / (rs + per_a);
-        if let Some(aux) = &self.design.aux {
-            let m = self.design.pass.stage.junctions() as f64;
-            let top = aux.volts - aux.amplifier_swing_loss_v - m * self.params.pass_vbe;
-            i = i.min((top - v) / rs);
-        }
-        i.max(0.0)
-    }
-
     /// The limit line at output `v` with the junctions at their present temperatures.
     fn limit_line(&self, p: &Params, v: f64) -> f64 {
         limit_current_at(&self.design, p, v).max(0.0)
@@ -433,63 +420,36 @@ impl SimUnit {
         self.model.emission * thermal_voltage(p.clamp_junction_c) / p.r_sense
     }
 
+    /// The unit's output characteristic for given element values and input feed.
+    fn curve<'a>(&'a self, p: &'a Params, feed: InputFeed) -> Curve<'a> {
+        let vset = evaluate(&self.design, p).vout_set;
+        let (peak, per_a) = match feed {
+            InputFeed::Design { peak, ripple_per_a } => (peak, ripple_per_a),
+            InputFeed::Source(vs) => (vs, 0.0),
+        };
+        let aux_top = self.design.aux.as_ref().map(|aux| {
+            let m = self.design.pass.stage.junctions() as f64;
+            aux.volts - aux.amplifier_swing_loss_v - m * p.pass_vbe
+        });
+        Curve {
+            unit: self,
+            p,
+            vset,
+            dv_sat: (self.model.knee_sat_fraction * vset).max(1e-6),
+            scale: self.knee_scale(p),
+            ro: self.model.output_resistance,
+            peak,
+            per_a,
+            sat: self.vce_sat(),
+            aux_top,
+        }
+    }
+
     /// Most current the unit delivers with its output held at `v` volts (0 above its open
     /// voltage). Non-increasing in `v` for non-foldback clamps.
     pub fn supply_current_at(&self, c: &Controls, v: f64) -> f64 {
         let p = self.hot_params();
-        self.supply_current_with(&p, self.feed(c), v)
-    }
-
-    fn supply_current_with(&self, p: &Params, feed: InputFeed, v: f64) -> f64 {
-        let v = v.max(0.0);
-        let vset = evaluate(&self.design, p).vout_set;
-        let i_drop = self.dropout_current(feed, v);
-        if i_drop <= 0.0 {
-            return 0.0;
-        }
-        let il = self.limit_line(p, v);
-        let dv_sat = (self.model.knee_sat_fraction * vset).max(1e-6);
-        let scale = self.knee_scale(p);
-        let ro = self.model.output_resistance;
-        // g(I) = V_set - R_out I - dV_sat exp((I - I_L)/scale) - V, decreasing in I.
-        let g = |i: f64| vset - ro * i - dv_sat * ((i - il) / scale).min(700.0).exp() - v;
-        let i_reg = if g(il) >= 0.0 {
-            il
-        } else if g(0.0) <= 0.0 {
-            0.0
-        } else {
-            let (mut lo, mut hi) = (0.0, il);
-            for _ in 0..80 {
-                let mid = 0.5 * (lo + hi);
-                if g(mid) > 0.0 {
-                    lo = mid;
-                } else {
-                    hi = mid;
-                }
-            }
-            0.5 * (lo + hi)
-        };
-        i_reg.min(i_drop)
-    }
-
-    /// Output voltage with no load.
-    fn open_voltage(&self, p: &Params, feed: InputFeed) -> f64 {
-        // Highest v with any current available: bisect on supply_current > 0.
-        let vset = evaluate(&self.design, p).vout_set;
-        let hi_v = vset.max(0.0) + 1.0;
-        if self.supply_current_with(p, feed, 0.0) <= 0.0 {
-            return 0.0;
-        }
-        let (mut lo, mut hi) = (0.0, hi_v);
-        for _ in 0..80 {
-            let mid = 0.5 * (lo + hi);
-            if self.supply_current_with(p, feed, mid) > 1e-12 {
-                lo = mid;
-            } else {
-                hi = mid;
-            }
-        }
-        lo
+        self.curve(&p, self.feed(c)).current_at(v)
     }
 
     /// The operating point with the load and source as set, junctions at their present
@@ -497,9 +457,11 @@ impl SimUnit {
     pub fn operating_point(&self, c: &Controls) -> OperatingPoint {
         let p = self.hot_params();
         let feed = self.feed(c);
-        let v_open = self.open_voltage(&p, feed);
-        let isup = |v: f64| self.supply_current_with(&p, feed, v);
+        let curve = self.curve(&p, feed);
+        let v_open = curve.open_voltage();
+        let isup = |v: f64| curve.current_at(v);
         let l = &c.load;
+        let mut collapsed = false;
         let (v, i) = if !l.input_on {
             (v_open, 0.0)
         } else {
@@ -517,11 +479,22 @@ impl SimUnit {
                     if target <= 0.0 {
                         (v_open, 0.0)
                     } else {
-                        // Highest output at which the unit can supply the set current.
-                        match highest_crossing(v_open, |v| isup(v) - target) {
-                            Some(v) => (v, target),
-                            // No stable point: the output collapses onto the limit line at 0 V.
-                            None => (0.0, isup(0.0).min(target)),
+                        let at_zero = isup(0.0);
+                        if self.latched && at_zero < target {
+                            // Collapsed before and the unit cannot deliver the set current
+                            // even at 0 V: it stays down (foldback latch-up under CC).
+                            collapsed = true;
+                            (0.0, at_zero)
+                        } else {
+                            // Highest output at which the unit can supply the set current.
+                            match highest_crossing(v_open, |v| isup(v) - target) {
+                                Some(v) => (v, target),
+                                // No stable point: the output collapses to 0 V.
+                                None => {
+                                    collapsed = true;
+                                    (0.0, at_zero.min(target))
+                                }
+                            }
                         }
                     }
                 }
@@ -553,6 +526,7 @@ impl SimUnit {
             pass_w,
             clamp_share,
             case_c: self.case_temperature(),
+            collapsed,
         }
     }
 
@@ -580,9 +554,12 @@ impl SimUnit {
             for _ in 0..steps {
                 let op = self.operating_point(c);
                 self.heat(op, h);
+                self.latched = op.collapsed;
             }
         }
-        self.operating_point(c)
+        let op = self.operating_point(c);
+        self.latched = op.collapsed;
+        op
     }
 
     /// One thermal step of `dt` seconds at the dissipation of `op`.
@@ -614,13 +591,14 @@ impl SimUnit {
     pub fn truth(&self) -> Truth {
         let cold = self.params.clone();
         let feed = self.feed(&Controls::default());
-        let no_load_v = self.open_voltage(&cold, feed);
+        let curve = self.curve(&cold, feed);
+        let no_load_v = curve.open_voltage();
         Truth {
             regulated_v: self.regulated_v(),
             no_load_v,
             output_resistance: self.model.output_resistance,
-            knee_current: self.supply_current_with(&cold, feed, 0.98 * no_load_v),
-            short_circuit_current: self.supply_current_with(&cold, feed, 0.0),
+            knee_current: curve.current_at(0.98 * no_load_v),
+            short_circuit_current: curve.current_at(0.0),
             limit_line_current: limit_current_at(&self.design, &cold, self.regulated_v()),
             sense_v: sense_voltage(&self.design, &cold),
             ambient_c: cold.ambient_c,
@@ -629,6 +607,82 @@ impl SimUnit {
             params: cold,
             faults: self.faults.iter().map(UnitFault::describe).collect(),
         }
+    }
+}
+
+/// The output characteristic of one unit at fixed temperatures and input feed.
+struct Curve<'a> {
+    unit: &'a SimUnit,
+    p: &'a Params,
+    vset: f64,
+    dv_sat: f64,
+    scale: f64,
+    ro: f64,
+    peak: f64,
+    per_a: f64,
+    sat: f64,
+    aux_top: Option<f64>,
+}
+
+impl Curve<'_> {
+    /// Most current the headroom allows with the output at `v`: at the ripple trough
+    /// `V = peak - I per_a - I R_s - sat`, and below the amplifier's own rail when the design
+    /// has one.
+    fn dropout_current(&self, v: f64) -> f64 {
+        let rs = self.p.r_sense;
+        let mut i = (self.peak - self.sat - v) / (rs + self.per_a);
+        if let Some(top) = self.aux_top {
+            i = i.min((top - v) / rs);
+        }
+        i.max(0.0)
+    }
+
+    /// Most current delivered with the output held at `v`.
+    fn current_at(&self, v: f64) -> f64 {
+        let v = v.max(0.0);
+        let i_drop = self.dropout_current(v);
+        if i_drop <= 0.0 {
+            return 0.0;
+        }
+        let il = self.unit.limit_line(self.p, v);
+        let (vset, ro, dv, s) = (self.vset, self.ro, self.dv_sat, self.scale);
+        // g(I) = V_set - R_out I - dV_sat exp((I - I_L)/scale) - V: decreasing and concave,
+        // so Newton's method from the right end approaches the root from the right.
+        let g = |i: f64| vset - ro * i - dv * ((i - il) / s).min(700.0).exp() - v;
+        let i_reg = if g(il) >= 0.0 {
+            il
+        } else if g(0.0) <= 0.0 {
+            0.0
+        } else {
+            let mut x = il;
+            for _ in 0..200 {
+                let e = dv * ((x - il) / s).exp();
+                let gx = vset - ro * x - e - v;
+                let slope = -ro - e / s;
+                let next = (x - gx / slope).clamp(0.0, x);
+                let done = (x - next).abs() <= 1e-14 * il.max(1e-9);
+                x = next;
+                if done {
+                    break;
+                }
+            }
+            x
+        };
+        i_reg.min(i_drop)
+    }
+
+    /// Output voltage with no load: the regulated value, unless the headroom is short.
+    fn open_voltage(&self) -> f64 {
+        if self.current_at(0.0) <= 0.0 {
+            return 0.0;
+        }
+        let il = self.unit.limit_line(self.p, self.vset);
+        let v_reg = self.vset - self.dv_sat * (-il / self.scale).exp();
+        let mut v = v_reg.min(self.peak - self.sat);
+        if let Some(top) = self.aux_top {
+            v = v.min(top);
+        }
+        v.max(0.0)
     }
 }
 
@@ -837,6 +891,28 @@ mod tests {
         let op = u.operating_point(&load(LoadMode::ConstantCurrent, i));
         assert!((op.iout - i).abs() < 1e-12);
         assert!(op.vout > 0.99 * t.no_load_v - i * t.output_resistance);
+    }
+
+    #[test]
+    fn foldback_latches_low_under_cc_until_the_setting_is_below_short_circuit() {
+        // A foldback supply driven into collapse by a CC load stays down while the load asks
+        // for more than I_sc (GUIDE.md section 5: foldback supplies can latch low under CC).
+        let d = fold();
+        let mut u = unit(&d, &[]);
+        let t = u.truth();
+        let between = 0.5 * (t.short_circuit_current + t.knee_current);
+        let op = u.advance(&load(LoadMode::ConstantCurrent, t.knee_current * 1.2), 0.01);
+        assert!(op.collapsed && op.vout == 0.0);
+        let op = u.advance(&load(LoadMode::ConstantCurrent, between), 0.01);
+        assert!(op.collapsed && op.vout == 0.0, "{op:?}");
+        assert!((op.iout - t.short_circuit_current).abs() < 0.01 * t.short_circuit_current);
+        let op = u.advance(
+            &load(LoadMode::ConstantCurrent, 0.5 * t.short_circuit_current),
+            0.01,
+        );
+        assert!(!op.collapsed && op.vout > 0.99 * t.no_load_v, "{op:?}");
+        let op = u.advance(&load(LoadMode::ConstantCurrent, between), 0.01);
+        assert!(!op.collapsed && op.vout > 0.99 * t.no_load_v, "{op:?}");
     }
 
     #[test]
