@@ -65,6 +65,9 @@ pub struct UnitModel {
     pub clamp_drive_a: f64,
     /// Current the unit draws from its input besides the load (amplifier, reference), amperes.
     pub quiescent_a: f64,
+    /// Input rejection: volts of output change per volt of input change (1e-4 is 80 dB, usual
+    /// for an op-amp error amplifier; from memory). Gives a small, nonzero line regulation.
+    pub line_rejection: f64,
 }
 
 impl Default for UnitModel {
@@ -80,6 +83,7 @@ impl Default for UnitModel {
             clamp_tau_s: 3.0,
             clamp_drive_a: 0.010,
             quiescent_a: 0.008,
+            line_rejection: 1e-4,
         }
     }
 }
@@ -422,11 +426,13 @@ impl SimUnit {
 
     /// The unit's output characteristic for given element values and input feed.
     fn curve<'a>(&'a self, p: &'a Params, feed: InputFeed) -> Curve<'a> {
-        let vset = evaluate(&self.design, p).vout_set;
+        let pt = evaluate(&self.design, p);
         let (peak, per_a) = match feed {
             InputFeed::Design { peak, ripple_per_a } => (peak, ripple_per_a),
             InputFeed::Source(vs) => (vs, 0.0),
         };
+        // Line sensitivity, referred to the unit's own input.
+        let vset = pt.vout_set + self.model.line_rejection * (peak - pt.vin_no_load);
         let aux_top = self.design.aux.as_ref().map(|aux| {
             let m = self.design.pass.stage.junctions() as f64;
             aux.volts - aux.amplifier_swing_loss_v - m * p.pass_vbe
@@ -974,6 +980,58 @@ mod tests {
         c.source.output_on = false;
         let op = u.operating_point(&c);
         assert_eq!((op.vout, op.iout), (0.0, 0.0));
+    }
+
+    #[test]
+    fn line_change_moves_the_output_by_the_input_rejection() {
+        // Line regulation: dV_out = rejection * dV_in while headroom lasts (80 dB -> 1e-4 V/V).
+        let d = fold();
+        let u = unit(&d, &[]);
+        let mut c = load(LoadMode::ConstantCurrent, 1.0);
+        c.source = SourceSetting {
+            in_use: true,
+            volts: 18.0,
+            output_on: true,
+        };
+        let a = u.operating_point(&c);
+        c.source.volts = 24.0;
+        let b = u.operating_point(&c);
+        let k = u.model().line_rejection;
+        assert!(
+            ((b.vout - a.vout) - 6.0 * k).abs() < 1e-9,
+            "{} {}",
+            a.vout,
+            b.vout
+        );
+    }
+
+    #[test]
+    fn transistor_clamp_on_a_dc_input() {
+        // Transistor limiter: I_lim = V_BE / R_sense (GUIDE.md section 5); DC input: dropout
+        // at V_in - I R_s - V_CE(sat) with no ripple.
+        let text = std::fs::read_to_string(format!(
+            "{}/samples/teaching-lab-0-20v.toml",
+            env!("CARGO_MANIFEST_DIR")
+        ))
+        .unwrap()
+        .replace(
+            "kind = \"full_wave\"\nsecondary_vrms = 26.0",
+            "kind = \"dc\"\nvolts = 24.0",
+        )
+        .replace("clamp = \"diode_string\"", "clamp = \"transistor\"")
+        .replace("diodes = 3\n", "");
+        let d = Design::parse(&text, "inline").unwrap();
+        assert_eq!(d.limit.clamp, Clamp::Transistor);
+        let u = unit(&d, &[]);
+        let t = u.truth();
+        let p = u.params();
+        assert!((t.short_circuit_current - p.limiter_vbe / p.r_sense).abs() < 1e-9);
+        let op = u.operating_point(&load(LoadMode::ConstantVoltage, 5.0));
+        assert!((op.iout - p.limiter_vbe / p.r_sense).abs() < 1e-9);
+        // DC input at the drawn line: the input does not sag with load.
+        let vin = 24.0 * p.line;
+        assert!((op.vin - vin).abs() < 1e-9, "{} vs {vin}", op.vin);
+        assert!(t.no_load_v <= vin - 0.9 + 1e-9);
     }
 
     #[test]
