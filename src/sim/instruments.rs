@@ -790,6 +790,22 @@ mod tests {
         assert_eq!(parse_number(""), None);
     }
 
+    proptest::proptest! {
+        #[test]
+        fn any_line_gets_an_answer_or_silence_never_a_panic(line in "\\PC{0,80}") {
+            let mut c = Controls::default();
+            for kind in InstrumentKind::ALL {
+                let mut st = InstrumentState::new(kind, "p");
+                let out = respond(&mut st, &line, &mut c, &snap(), &mut quiet());
+                // At most one reply per ';'-separated command.
+                proptest::prop_assert!(out.len() <= line.split(';').count());
+                // Settings stay within what the instruments accept.
+                proptest::prop_assert!(c.load.current >= 0.0 && c.load.current <= 30.0);
+                proptest::prop_assert!(c.source.volts >= 0.0 && c.source.volts <= 60.0);
+            }
+        }
+    }
+
     #[test]
     fn fault_schedule_drops_garbles_and_closes() {
         let mut f = FaultSchedule::new(PortFaults {

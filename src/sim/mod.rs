@@ -193,7 +193,7 @@ impl SimOptions {
 pub enum SimError {
     #[error("simulated unit: {0}")]
     Unit(#[from] unit::UnitError),
-    #[error("cannot create a pseudo-terminal for '{instrument}': {detail} (check that /dev/ptmx exists and is usable)")]
+    #[error("cannot create a pseudo-terminal for '{instrument}': {detail} (check that /dev/ptmx exists and is usable, or put every instrument on TCP)")]
     Pty { instrument: String, detail: String },
     #[error("cannot listen on 127.0.0.1 for '{instrument}': {source}")]
     Listen {

@@ -191,8 +191,10 @@ impl Port for PtyPort {
     /// reach the next opener as if fresh: open the slave briefly and discard them.
     fn peer_left(&mut self) {
         use serialport::{ClearBuffer, SerialPort};
+        // Not exclusive: a bench reopening the port at this very moment must not find it busy.
         if let Ok(slave) = serialport::new(self.slave_path.as_str(), 115_200)
             .timeout(POLL)
+            .exclusive(false)
             .open_native()
         {
             let _ = slave.clear(ClearBuffer::Input);

@@ -982,6 +982,41 @@ mod tests {
         assert_eq!((op.vout, op.iout), (0.0, 0.0));
     }
 
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(200))]
+        #[test]
+        fn every_load_setting_gives_a_physical_operating_point(
+            mode in 0u8..3,
+            value in 0.0f64..40.0,
+            source in proptest::option::of(0.0f64..60.0),
+            seed in 0u64..50,
+            foldback in proptest::bool::ANY,
+        ) {
+            let d = if foldback { fold() } else { lab() };
+            let u = SimUnit::build(&d, seed, &[], UnitModel::default()).unwrap();
+            let mode = [LoadMode::ConstantCurrent, LoadMode::ConstantVoltage,
+                LoadMode::ConstantResistance][mode as usize];
+            let mut c = load(mode, value.max(1e-3));
+            if let Some(v) = source {
+                c.source = SourceSetting { in_use: true, volts: v, output_on: true };
+            }
+            let op = u.operating_point(&c);
+            let open = u.operating_point(&Controls { source: c.source, ..Controls::default() });
+            for x in [op.vout, op.iout, op.vin, op.iin, op.pass_w] {
+                proptest::prop_assert!(x.is_finite() && x >= 0.0, "{op:?}");
+            }
+            // Never above the open-circuit voltage; never more than the unit can give there.
+            proptest::prop_assert!(op.vout <= open.vout + 1e-9, "{op:?} {open:?}");
+            proptest::prop_assert!(op.iout <= u.supply_current_at(&c, op.vout) + 1e-9);
+            // The pass device obeys energy balance: P = (V_in - V_out - I R_s) I >= 0.
+            let p = (op.vin - op.vout - op.iout * u.params().r_sense) * op.iout;
+            proptest::prop_assert!((op.pass_w - p.max(0.0)).abs() < 1e-9);
+            if mode == LoadMode::ConstantResistance {
+                proptest::prop_assert!((op.vout - op.iout * value.max(1e-3)).abs() < 1e-6);
+            }
+        }
+    }
+
     #[test]
     fn line_change_moves_the_output_by_the_input_rejection() {
         // Line regulation: dV_out = rejection * dV_in while headroom lasts (80 dB -> 1e-4 V/V).
