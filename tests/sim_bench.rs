@@ -5,7 +5,7 @@ use regulus::bench::{Bench, BenchConfig};
 use regulus::control::BenchControl;
 use regulus::design::Design;
 use regulus::measure::{LoadMode, Quantity, Role};
-use regulus::sim::{SimBench, SimOptions, TransportMix};
+use regulus::sim::{Fault, SimBench, SimOptions, TransportMix};
 use std::sync::Mutex;
 use std::time::Duration;
 
@@ -124,4 +124,61 @@ fn generated_bench_file_reaches_the_limit_line_in_cv_mode() {
         );
         let _ = bench.safe_state().await;
     });
+}
+
+#[test]
+fn slow_instrument_reaches_the_bench_as_a_timeout_naming_it() {
+    let _g = SERIAL.lock().unwrap_or_else(|e| e.into_inner());
+    let sim = SimBench::start(
+        &lab(),
+        SimOptions::default()
+            .seed(23)
+            .fault(Fault::parse("thermo:slow=3000").unwrap()),
+    )
+    .unwrap();
+    let (_dir, mut cfg) = open(&sim);
+    // The thermometer answers 3 s late: with a 500 ms deadline it must be reported.
+    for i in &mut cfg.instruments {
+        if i.name == "thermo" {
+            i.reply_timeout = Duration::from_millis(500);
+        }
+    }
+    runtime().block_on(async {
+        let err = match Bench::open(&cfg).await {
+            Ok(_) => panic!("a 3 s thermometer should not answer within 500 ms"),
+            Err(e) => e.to_string(),
+        };
+        assert!(err.contains("thermo"), "{err}");
+    });
+    sim.shutdown();
+}
+
+#[test]
+fn closing_port_reaches_the_bench_as_an_error_naming_it() {
+    let _g = SERIAL.lock().unwrap_or_else(|e| e.into_inner());
+    let sim = SimBench::start(
+        &lab(),
+        SimOptions::default()
+            .seed(24)
+            .fault(Fault::parse("dmm:close-after=4").unwrap()),
+    )
+    .unwrap();
+    let (_dir, cfg) = open(&sim);
+    runtime().block_on(async {
+        let mut bench = Bench::open(&cfg).await.unwrap();
+        let mut first_err = None;
+        for _ in 0..6 {
+            match bench.measure().await {
+                Ok(m) => assert!(m.get(Quantity::OutputVoltage).unwrap() > 1.0),
+                Err(e) => {
+                    first_err = Some(e.to_string());
+                    break;
+                }
+            }
+        }
+        let err = first_err.expect("the meter's port closed: measuring must fail");
+        assert!(err.contains("dmm"), "{err}");
+        let _ = bench.safe_state().await;
+    });
+    assert!(sim.is_closed(regulus::sim::instruments::InstrumentKind::QueryMeter));
 }
