@@ -8,6 +8,8 @@ pub mod cli;
 pub mod control;
 pub mod design;
 pub mod measure;
+pub mod plan;
 pub mod record;
 pub mod rng;
+pub mod runner;
 pub mod units;
