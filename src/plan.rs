@@ -185,13 +185,32 @@ impl Step {
             Action::LineSweep { source_volts, .. } => source_volts.len(),
             Action::KneeSearch(k) => k.max_points as usize,
             Action::ShortCircuit(s) => {
-                1 + ticks(s.dwell, s.interval) + ticks(s.recovery_time, s.interval)
+                1 + short_readings(s.dwell, s.interval) + recovery_readings(s)
             }
             Action::Soak {
                 duration, interval, ..
             } => ticks(*duration, *interval),
         }
     }
+}
+
+/// Readings during a short: at `k * interval` for every `k * interval < dwell`.
+pub fn short_readings(dwell: Duration, interval: Duration) -> usize {
+    if interval.is_zero() {
+        return 1;
+    }
+    let n = (dwell.as_secs_f64() / interval.as_secs_f64() - 1e-9).ceil();
+    (n as usize).max(1)
+}
+
+/// Readings after a short is released: at `interval, 2 * interval, ... <= recovery_time`,
+/// at least one.
+pub fn recovery_readings(s: &ShortCircuit) -> usize {
+    if s.interval.is_zero() {
+        return 1;
+    }
+    let n = (s.recovery_time.as_secs_f64() / s.interval.as_secs_f64() + 1e-9).floor();
+    (n as usize).max(1)
 }
 
 /// A validated, expanded plan.
@@ -1433,8 +1452,9 @@ interval = "30 s"
             }
             other => panic!("unexpected {other:?}"),
         }
-        // dwell 3 s / 0.5 s -> 7 readings, recovery 2 s / 0.5 s -> 5 readings, plus one before.
-        assert_eq!(p.steps[3].planned_points(), 13);
+        // dwell 3 s / 0.5 s -> 6 readings (0 .. 2.5 s), recovery 2 s / 0.5 s -> 4 readings,
+        // plus one before the short.
+        assert_eq!(p.steps[3].planned_points(), 11);
         match &p.steps[4].action {
             Action::LineSweep { load, source_volts } => {
                 assert!((load.value - 1.0).abs() < 1e-12);
