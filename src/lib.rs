@@ -5,6 +5,7 @@
 //! transports, instruments, the runner and the record writer sit at the edges.
 
 pub mod cli;
+pub mod config;
 pub mod control;
 pub mod design;
 pub mod measure;
