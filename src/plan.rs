@@ -53,6 +53,19 @@ pub struct DesignTargets {
     pub input_voltage_v: Option<f64>,
 }
 
+impl DesignTargets {
+    /// Targets from a design and its expectation (nominal values).
+    pub fn from_design(d: &crate::design::Design, e: &crate::design::Expectation) -> Self {
+        DesignTargets {
+            vout_v: e.vout.setting,
+            limit_current_a: e.limit_current.nominal,
+            short_circuit_current_a: e.short_circuit_current.nominal,
+            max_load_current_a: d.load.max_current_a,
+            input_voltage_v: Some(e.input.nominal_v).filter(|v| v.is_finite() && *v > 0.0),
+        }
+    }
+}
+
 /// A plan file problem. Located errors name the file, line and column (1-based).
 #[derive(Debug, thiserror::Error)]
 pub enum PlanError {
