@@ -4,13 +4,16 @@
 //! Pure modules (design, protocol parsing, plan expansion, analysis, comparison) do no I/O;
 //! transports, instruments, the runner and the record writer sit at the edges.
 
+pub mod bench;
 pub mod cli;
 pub mod config;
 pub mod control;
 pub mod design;
 pub mod measure;
 pub mod plan;
+pub mod protocol;
 pub mod record;
 pub mod rng;
 pub mod runner;
+pub mod transport;
 pub mod units;

@@ -97,8 +97,34 @@ fn bad_plan_exits_2_with_file_line_and_column() {
 #[test]
 fn short_circuit_plan_without_terminal_or_yes_is_refused() {
     let tmp = tempfile::tempdir().unwrap();
+    let (code, err) = regulus(&[
+        "run",
+        "--bench",
+        "config/bench-sim.toml",
+        "--design",
+        "samples/fixed-12v-3a-foldback.toml",
+        "--plan",
+        "samples/plans/production.toml",
+        "--records",
+        tmp.path().to_str().unwrap(),
+        "--unit",
+        "SN-1",
+    ]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("CAUTION"), "{err}");
+    assert!(err.contains("--yes"), "{err}");
+}
+
+#[test]
+fn bench_without_the_plans_roles_exits_2_before_opening_ports() {
+    let tmp = tempfile::tempdir().unwrap();
     let bench = tmp.path().join("bench.toml");
-    std::fs::write(&bench, "").unwrap();
+    // Only a voltmeter: the plan needs a load. The port does not exist; it must not be opened.
+    std::fs::write(
+        &bench,
+        "[[instrument]]\nname = \"dmm\"\nroles = [\"output_voltmeter\"]\npreset = \"scpi_meter\"\ntcp = { host = \"127.0.0.1\", port = 1 }\n",
+    )
+    .unwrap();
     let (code, err) = regulus(&[
         "run",
         "--bench",
@@ -109,8 +135,11 @@ fn short_circuit_plan_without_terminal_or_yes_is_refused() {
         "samples/plans/production.toml",
         "--unit",
         "SN-1",
+        "--yes",
+        "--records",
+        tmp.path().join("rec").to_str().unwrap(),
     ]);
     assert_eq!(code, 2, "{err}");
-    assert!(err.contains("CAUTION"), "{err}");
-    assert!(err.contains("--yes"), "{err}");
+    assert!(err.contains("load"), "{err}");
+    assert!(!tmp.path().join("rec").exists());
 }

@@ -3,6 +3,7 @@
 //! outcome to an exit code. Holds no domain logic: the runner and the record writer do the work.
 
 use super::{CodedError, EXIT_ABORTED, EXIT_OK, EXIT_USAGE};
+use crate::bench::{Bench, BenchConfig};
 use crate::control::BenchControl;
 use crate::design::{self, Design};
 use crate::measure::Quantity;
@@ -135,6 +136,10 @@ pub fn confirm_short_circuit(
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
     let prep = prepare(&args)?;
+    let cfg = BenchConfig::load(&args.bench).map_err(|e| usage(e.to_string()))?;
+    prep.plan
+        .check_roles(|r| cfg.instruments.iter().any(|i| i.roles.contains(&r)))
+        .map_err(|m| usage(format!("{m} (bench file {})", args.bench.display())))?;
     let stdin = std::io::stdin();
     confirm_short_circuit(
         &prep.plan,
@@ -144,24 +149,23 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         &mut stdin.lock(),
         &mut std::io::stderr(),
     )?;
-    // TODO(integrator): when `bench` is on main, open it here:
-    //   let cfg = crate::bench::BenchConfig::load(&args.bench)?;   // exit 2 on a bad file
-    //   check prep.plan.check_roles(...) against the configured roles before opening;
-    //   let rt = tokio::runtime::Builder::new_current_thread().enable_all().build()?;
-    //   rt.block_on(async { let mut b = crate::bench::Bench::open(&cfg).await?;
-    //                       execute(&mut b, &prep, &args, &cancel).await })
-    // and once `compare` lands, return EXIT_FAIL for a failing verdict.
-    Err(CodedError::new(
-        EXIT_USAGE,
-        format!(
-            "plan '{}' and design '{}' are valid, but this build cannot open bench file {} yet \
-             (bench support is not merged)",
-            prep.plan.name,
-            prep.design_ref.name,
-            args.bench.display()
-        ),
-    )
-    .into())
+    let rt = tokio::runtime::Builder::new_multi_thread()
+        .worker_threads(2)
+        .enable_all()
+        .build()
+        .context("cannot start the async runtime")?;
+    // TODO(integrator): once `compare` lands, return EXIT_FAIL for a failing verdict.
+    rt.block_on(async {
+        let mut bench = Bench::open(&cfg).await.map_err(|e| {
+            let code = if e.is_config() {
+                EXIT_USAGE
+            } else {
+                EXIT_ABORTED
+            };
+            anyhow::Error::from(CodedError::new(code, e.to_string()))
+        })?;
+        execute(&mut bench, &prep, &args).await
+    })
 }
 
 /// Run a prepared plan on an open bench with Ctrl-C wired to cancellation and a progress bar
