@@ -543,13 +543,15 @@ impl Cx<'_> {
     fn expand(&self, raw: RawPlan) -> Result<Plan, PlanError> {
         let name = raw.name.get_ref().trim().to_string();
         if name.is_empty()
+            || name.starts_with('.')
+            || name.len() > 100
             || !name
                 .chars()
                 .all(|c| c.is_ascii_alphanumeric() || c == '-' || c == '_' || c == '.')
         {
             return Err(self.at(
                 raw.name.span(),
-                "`name` must be non-empty and use only letters, digits, '-', '_' and '.' \
+                "`name` must be 1-100 letters, digits, '-', '_' and '.', not starting with '.' \
                  (it becomes part of the record folder name)",
             ));
         }

@@ -194,3 +194,71 @@ fn unsafe_unit_ids_and_foreign_files_are_refused() {
     assert!(e.to_string().contains("line 2"), "{e}");
     assert!(e.to_string().contains("elapsed_s"), "{e}");
 }
+
+/// Child side of the kill test (not a test of its own): writes rows forever into the folder
+/// named by the parent, which kills it.
+#[test]
+#[ignore = "child process of a_killed_writer_process_leaves_an_incomplete_but_readable_record"]
+fn child_writer_for_kill_test() {
+    let root = std::env::var("REGULUS_KILL_TEST_ROOT").expect("spawned by the kill test");
+    let mut w = RecordWriter::create(
+        std::path::Path::new(&root),
+        started(),
+        info("SN-KILL"),
+        &snaps(),
+    )
+    .unwrap();
+    let mut k = 0;
+    loop {
+        w.append(&row(k, 12.0)).unwrap();
+        k += 1;
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    }
+}
+
+#[cfg(unix)]
+#[test]
+fn a_killed_writer_process_leaves_an_incomplete_but_readable_record() {
+    use std::time::{Duration, Instant};
+    let tmp = tempfile::tempdir().unwrap();
+    let mut child = std::process::Command::new(std::env::current_exe().unwrap())
+        .args([
+            "--exact",
+            "child_writer_for_kill_test",
+            "--ignored",
+            "--nocapture",
+        ])
+        .env("REGULUS_KILL_TEST_ROOT", tmp.path())
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    // Wait until the child has written some rows and is seen as running.
+    let unit = tmp.path().join("SN-KILL");
+    let deadline = Instant::now() + Duration::from_secs(30);
+    let dir = loop {
+        assert!(Instant::now() < deadline, "child wrote nothing");
+        if let Ok(mut rd) = std::fs::read_dir(&unit) {
+            if let Some(Ok(e)) = rd.next() {
+                let d = e.path();
+                if read_rows(&d.join(READINGS_FILE))
+                    .map(|r| r.len() >= 10)
+                    .unwrap_or(false)
+                {
+                    break d;
+                }
+            }
+        }
+        std::thread::sleep(Duration::from_millis(10));
+    };
+    let info = read_info(&dir).unwrap();
+    assert_eq!(record_state(&dir, &info), RecordState::Running);
+    child.kill().unwrap(); // SIGKILL: no destructors, no finish()
+    child.wait().unwrap();
+    let rec = read_run(&dir).unwrap();
+    assert_eq!(rec.state, RecordState::Incomplete);
+    assert!(rec.rows.len() >= 10);
+    for (k, r) in rec.rows.iter().enumerate() {
+        assert_eq!(r.point, k, "rows are whole and in order");
+    }
+}

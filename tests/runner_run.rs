@@ -8,7 +8,7 @@ use regulus::measure::{Quantity, Role};
 use regulus::plan::{Plan, Step};
 use regulus::record::{read_run, DesignRef, Outcome, RecordState, Row, Snapshots, READINGS_FILE};
 use regulus::runner::{self, CancelToken, Observer, RunReport, RunSetup, StepResult};
-use runner_support::{targets, FakeBench};
+use runner_support::{targets, FakeBench, Foldback};
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
 
@@ -405,4 +405,71 @@ async fn missing_roles_are_refused_before_anything_is_switched() {
     assert!(err.to_string().contains("input_source"), "{err}");
     assert!(bench.log.is_empty(), "bench touched: {:?}", bench.log);
     assert!(!tmp.path().join("SN-0007").exists());
+}
+
+#[tokio::test]
+async fn current_overrange_is_recorded_and_voltage_overrange_trips() {
+    // An ammeter overrange is recorded explicitly (never as a number) and flagged.
+    let mut bench = FakeBench::full();
+    bench.faults.current_overrange_from = Some(6);
+    let mut obs = Probe::default();
+    let r = go(&mut bench, &plan(SWEEP), &mut obs, &CancelToken::new()).await;
+    assert_eq!(r.outcome, Outcome::Completed, "{:?}", r.reason);
+    let rec = read_run(&r.dir).unwrap();
+    assert_eq!(
+        rec.rows[5]
+            .cell(Quantity::OutputCurrent)
+            .map(|c| c == regulus::record::Cell::Overrange),
+        Some(false)
+    );
+    assert_eq!(
+        rec.rows[6].cell(Quantity::OutputCurrent),
+        Some(regulus::record::Cell::Overrange)
+    );
+    assert!(rec.rows[6].has_flag("overrange"));
+    assert!(!rec.rows[5].has_flag("overrange"));
+
+    // An overrange output voltage is unknown, hence unsafe: it trips.
+    let mut bench = FakeBench::full();
+    bench.faults.voltage_overrange_from = Some(2);
+    expect_abort(bench, SWEEP, "overrange").await;
+}
+
+/// A latching foldback supply: the knee search must still find the knee, in CR mode (unique
+/// operating point) and in CC mode (the runner returns to the reference load between probes,
+/// below I_sc, which releases the latch).
+#[tokio::test]
+async fn knee_search_finds_a_foldback_knee_in_cr_and_cc() {
+    let f = Foldback {
+        v0: 12.0,
+        r_out: 0.02,
+        i_knee: 1.6,
+        i_sc: 0.9,
+    };
+    for mode in ["cr", "cc"] {
+        let text = format!(
+            "name = \"fb\"\nsettle = \"1 ms\"\nsamples = 1\n[[step]]\nkind = \"knee_search\"\nmode = \"{mode}\"\n"
+        );
+        let mut bench = FakeBench::full();
+        bench.foldback = Some(f);
+        let mut obs = Probe::default();
+        let r = go(&mut bench, &plan(&text), &mut obs, &CancelToken::new()).await;
+        assert_eq!(r.outcome, Outcome::Completed, "{mode}: {:?}", r.reason);
+        let knee = obs.finished[0].1.knee.expect("knee result");
+        // Reference at 10 % of the designed 1.5 A: 0.15 A on the regulated line.
+        let v_ref = if mode == "cc" {
+            12.0 - 0.02 * 0.15
+        } else {
+            let r_ref = 12.0 / 0.15;
+            12.0 * r_ref / (r_ref + 0.02)
+        };
+        let truth = f.limit_line_current(0.99 * v_ref);
+        let est = knee.limit_current_a.expect("bracketed");
+        assert!(
+            (est - truth).abs() / truth <= 0.005,
+            "{mode}: est {est} truth {truth} ({:?})",
+            knee
+        );
+        assert!(knee.points <= 20);
+    }
 }

@@ -94,6 +94,10 @@ pub struct Faults {
     pub load_dies_from: Option<usize>,
     /// Output voltage reads this value from this measure call on.
     pub overvoltage_from: Option<(usize, f64)>,
+    /// Output current reads overrange from this measure call on.
+    pub current_overrange_from: Option<usize>,
+    /// Output voltage reads overrange from this measure call on.
+    pub voltage_overrange_from: Option<usize>,
     /// Temperature reads this value from this measure call on.
     pub hot_from: Option<(usize, f64)>,
     /// Cancel this token at this measure call.
@@ -102,8 +106,33 @@ pub struct Faults {
     pub measure_delay: Option<Duration>,
 }
 
+/// Sharp foldback limiter: regulated line V0 - R_out I up to the knee current, then the limit
+/// line from the knee down to (I_sc, 0 V), with I_sc below the knee. Under a CC load between
+/// I_sc and the knee it has two operating points; once pushed past the knee it latches on the
+/// low one until the load falls to I_sc or below.
+#[derive(Debug, Clone, Copy)]
+pub struct Foldback {
+    pub v0: f64,
+    pub r_out: f64,
+    pub i_knee: f64,
+    pub i_sc: f64,
+}
+
+impl Foldback {
+    pub fn v_knee(&self) -> f64 {
+        self.v0 - self.r_out * self.i_knee
+    }
+    /// Current on the limit line at voltage v.
+    pub fn limit_line_current(&self, v: f64) -> f64 {
+        self.i_sc + (self.i_knee - self.i_sc) * v / self.v_knee()
+    }
+}
+
 pub struct FakeBench {
     pub supply: Supply,
+    /// When set, the unit is this foldback supply instead of `supply`.
+    pub foldback: Option<Foldback>,
+    pub latched: bool,
     pub roles: Vec<Role>,
     pub faults: Faults,
     /// Every command in order, e.g. `load cc 0.5`, `load_input on`, `measure`, `safe_state`.
@@ -121,6 +150,8 @@ impl FakeBench {
     pub fn new(roles: &[Role]) -> FakeBench {
         FakeBench {
             supply: Supply::standard(),
+            foldback: None,
+            latched: false,
             roles: roles.to_vec(),
             faults: Faults::default(),
             log: Vec::new(),
@@ -163,9 +194,58 @@ impl FakeBench {
         !self.roles.contains(&Role::InputSource) || self.source_on
     }
 
-    fn output(&self) -> (f64, f64) {
+    fn foldback_output(&mut self, f: Foldback) -> (f64, f64) {
+        if !self.load_on {
+            self.latched = false;
+            return (f.v0, 0.0);
+        }
+        match self.load_mode {
+            LoadMode::ConstantCurrent => {
+                let i = self.load_value;
+                if i <= f.i_sc {
+                    self.latched = false;
+                }
+                if i > f.i_knee {
+                    self.latched = true;
+                    return (0.0, f.i_sc);
+                }
+                if self.latched {
+                    let v = f.v_knee() * (i - f.i_sc) / (f.i_knee - f.i_sc);
+                    (v, i)
+                } else {
+                    (f.v0 - f.r_out * i, i)
+                }
+            }
+            LoadMode::ConstantResistance => {
+                let r = self.load_value;
+                let i_reg = f.v0 / (r + f.r_out);
+                if i_reg <= f.i_knee {
+                    (i_reg * r, i_reg)
+                } else {
+                    // On the limit line: V / R = I_sc + (I_knee - I_sc) V / V_knee.
+                    let v = f.i_sc / (1.0 / r - (f.i_knee - f.i_sc) / f.v_knee());
+                    (v, v / r)
+                }
+            }
+            LoadMode::ConstantVoltage => {
+                let v = self.load_value;
+                if v >= f.v0 {
+                    (f.v0, 0.0)
+                } else if v >= f.v_knee() {
+                    (v, (f.v0 - v) / f.r_out)
+                } else {
+                    (v, f.limit_line_current(v))
+                }
+            }
+        }
+    }
+
+    fn output(&mut self) -> (f64, f64) {
         if !self.powered() {
             return (0.0, 0.0);
+        }
+        if let Some(f) = self.foldback {
+            return self.foldback_output(f);
         }
         // 1 mV per volt of line change around 18 V: a modest line regulation.
         let line = if self.roles.contains(&Role::InputSource) {
@@ -216,6 +296,7 @@ impl BenchControl for FakeBench {
         }
         self.load_mode = mode;
         self.load_value = value;
+        self.output(); // the unit moves to its new operating point (and may latch)
         Ok(())
     }
 
@@ -226,6 +307,7 @@ impl BenchControl for FakeBench {
             return Err(self.err("load", "no reply to INP command"));
         }
         self.load_on = on;
+        self.output();
         Ok(())
     }
 
@@ -264,11 +346,22 @@ impl BenchControl for FakeBench {
             }
         }
         let mut m = Measurement::default();
+        let over = |from: Option<usize>| from.is_some_and(|f| n >= f);
         if self.has_role(Role::OutputVoltmeter) {
-            m.set(Quantity::OutputVoltage, Reading::Value(v));
+            let r = if over(self.faults.voltage_overrange_from) {
+                Reading::Overrange
+            } else {
+                Reading::Value(v)
+            };
+            m.set(Quantity::OutputVoltage, r);
         }
         if self.has_role(Role::OutputAmmeter) {
-            m.set(Quantity::OutputCurrent, Reading::Value(i));
+            let r = if over(self.faults.current_overrange_from) {
+                Reading::Overrange
+            } else {
+                Reading::Value(i)
+            };
+            m.set(Quantity::OutputCurrent, r);
         }
         if self.has_role(Role::InputVoltmeter) {
             m.set(
