@@ -472,7 +472,7 @@ impl Cx<'_> {
         if !value.is_finite() {
             return Err(self.at(v.span(), format!("`{field}` must be a finite number")));
         }
-        Ok(value)
+        Ok(tidy(value))
     }
 
     fn positive(&self, v: &SV, dim: Dim, field: &str) -> Result<f64, PlanError> {
@@ -565,7 +565,7 @@ impl Cx<'_> {
         };
         let source_volts = match &raw.source {
             Some(v) => Some(self.positive(v, Dim::Voltage, "source")?),
-            None => self.targets.input_voltage_v,
+            None => self.targets.input_voltage_v.map(tidy),
         };
         let interlocks = self.interlocks(raw.interlocks.as_ref())?;
         if raw.step.is_empty() {
@@ -817,7 +817,7 @@ impl Cx<'_> {
                 }
                 let dir = if to >= from { 1.0 } else { -1.0 };
                 let mut pts: Vec<f64> = (0..=n as usize)
-                    .map(|k| from + dir * size * k as f64)
+                    .map(|k| tidy(from + dir * size * k as f64))
                     .collect();
                 // Always end on `to` when the step does not land on it.
                 if let Some(last) = pts.last() {
@@ -839,7 +839,7 @@ impl Cx<'_> {
                     return Ok(vec![from]);
                 }
                 Ok((0..n)
-                    .map(|k| from + (to - from) * k as f64 / (n - 1) as f64)
+                    .map(|k| tidy(from + (to - from) * k as f64 / (n - 1) as f64))
                     .collect())
             }
         }
@@ -966,6 +966,17 @@ impl Cx<'_> {
             vout_hint_v: self.targets.vout_v,
         }))
     }
+}
+
+/// Round to 9 significant digits, removing binary noise such as 4.800000000000001 from
+/// computed setpoints (instruments resolve far less).
+pub fn tidy(x: f64) -> f64 {
+    if x == 0.0 || !x.is_finite() {
+        return x;
+    }
+    let digits = 8 - x.abs().log10().floor() as i32;
+    let scale = 10f64.powi(digits.clamp(-300, 300));
+    (x * scale).round() / scale
 }
 
 /// 1-based line and column (in characters) of a byte offset.
@@ -1824,6 +1835,15 @@ interval = "30 s"
         assert_eq!(r.outcome, KneeOutcome::Unresolved);
         assert_eq!(r.points, 5);
         assert!(r.limit_current_a.is_some());
+    }
+
+    #[test]
+    fn tidy_removes_binary_noise_only() {
+        assert_eq!(tidy(4.800000000000001), 4.8);
+        assert_eq!(tidy(0.15000000000000002), 0.15);
+        assert_eq!(tidy(24.055844122715715), 24.0558441);
+        assert_eq!(tidy(-1.2345678912e-3), -1.23456789e-3);
+        assert_eq!(tidy(0.0), 0.0);
     }
 
     #[test]

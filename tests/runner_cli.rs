@@ -5,6 +5,7 @@ mod runner_support;
 
 use regulus::cli::run::{execute, prepare, Args};
 use regulus::record::{list_runs, read_run, Outcome, RecordState};
+use regulus::runner::CancelToken;
 use runner_support::FakeBench;
 use sha2::{Digest, Sha256};
 use std::path::PathBuf;
@@ -44,7 +45,9 @@ async fn execute_completes_with_exit_0_and_a_full_record() {
     let prep = prepare(&a).expect("valid inputs");
     let mut bench = FakeBench::full();
     bench.supply.i_l = 3.4;
-    let code = execute(&mut bench, &prep, &a).await.expect("runs");
+    let code = execute(&mut bench, &prep, &a, &CancelToken::new())
+        .await
+        .expect("runs");
     assert_eq!(code, 0);
     let runs = list_runs(&a.records, "FX-0001").unwrap();
     assert_eq!(runs.len(), 1);
@@ -75,7 +78,9 @@ async fn execute_returns_3_on_an_interlock_trip() {
     let prep = prepare(&a).expect("valid inputs");
     let mut bench = FakeBench::full();
     bench.faults.overvoltage_from = Some((1, 20.0));
-    let code = execute(&mut bench, &prep, &a).await.expect("runs");
+    let code = execute(&mut bench, &prep, &a, &CancelToken::new())
+        .await
+        .expect("runs");
     assert_eq!(code, 3);
     assert_eq!(bench.safe_state_calls, 1);
 }

@@ -149,6 +149,14 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         &mut stdin.lock(),
         &mut std::io::stderr(),
     )?;
+    // Ctrl-C from here on only asks the runner to stop; it then reaches the safe state.
+    let cancel = CancelToken::new();
+    let c = cancel.clone();
+    ctrlc::set_handler(move || {
+        eprintln!("\ninterrupt: stopping, switching the load input and the source off...");
+        c.cancel();
+    })
+    .context("cannot install the Ctrl-C handler")?;
     let rt = tokio::runtime::Builder::new_multi_thread()
         .worker_threads(2)
         .enable_all()
@@ -164,24 +172,18 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             };
             anyhow::Error::from(CodedError::new(code, e.to_string()))
         })?;
-        execute(&mut bench, &prep, &args).await
+        execute(&mut bench, &prep, &args, &cancel).await
     })
 }
 
-/// Run a prepared plan on an open bench with Ctrl-C wired to cancellation and a progress bar
-/// per step; prints the summary to stdout and returns the exit code.
+/// Run a prepared plan on an open bench with a progress bar per step (`cancel` is wired to
+/// Ctrl-C by the caller); prints the summary to stdout and returns the exit code.
 pub async fn execute<B: BenchControl>(
     bench: &mut B,
     prep: &Prepared,
     args: &Args,
+    cancel: &CancelToken,
 ) -> anyhow::Result<u8> {
-    let cancel = CancelToken::new();
-    let c = cancel.clone();
-    // One handler per process; a second call (tests) keeps the first one.
-    let _ = ctrlc::set_handler(move || {
-        eprintln!("\ninterrupt: stopping, switching the load input and the source off...");
-        c.cancel();
-    });
     let setup = RunSetup {
         records: &args.records,
         unit: args.unit.clone(),
@@ -195,7 +197,7 @@ pub async fn execute<B: BenchControl>(
         },
     };
     let mut progress = Progress::new(prep.plan.steps.len());
-    let report = match runner::run(bench, &prep.plan, setup, &mut progress, &cancel).await {
+    let report = match runner::run(bench, &prep.plan, setup, &mut progress, cancel).await {
         Ok(r) => r,
         Err(runner::RunError::Roles(m)) => return Err(usage(m)),
         Err(runner::RunError::Record(e)) => {
