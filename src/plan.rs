@@ -981,8 +981,11 @@ pub fn tidy(x: f64) -> f64 {
 
 /// 1-based line and column (in characters) of a byte offset.
 pub fn line_col(text: &str, offset: usize) -> (usize, usize) {
-    let offset = offset.min(text.len());
-    let before = text.get(..offset).unwrap_or(text);
+    let mut offset = offset.min(text.len());
+    while !text.is_char_boundary(offset) {
+        offset -= 1;
+    }
+    let before = &text[..offset];
     let line = before.matches('\n').count() + 1;
     let line_start = before.rfind('\n').map(|p| p + 1).unwrap_or(0);
     let column = before[line_start..].chars().count() + 1;
@@ -1061,7 +1064,11 @@ pub fn parse_quantity(text: &str, dim: Dim, t: &DesignTargets) -> Result<f64, St
     let number: f64 = s[..split].trim().parse().map_err(|_| bad())?;
     let unit = s[split..].trim();
     let scale = unit_scale(unit, dim).ok_or_else(bad)?;
-    Ok(number * scale)
+    let value = number * scale;
+    if !value.is_finite() {
+        return Err(format!("'{text}' is out of range"));
+    }
+    Ok(value)
 }
 
 fn unit_scale(unit: &str, dim: Dim) -> Option<f64> {
@@ -1520,6 +1527,7 @@ interval = "30 s"
         assert_eq!(parse_quantity("50% vout", Dim::Voltage, &t), Ok(6.0));
         assert_eq!(parse_quantity("r_knee", Dim::Resistance, &t), Ok(8.0));
         assert!(parse_quantity("12 V", Dim::Current, &t).is_err());
+        assert!(parse_quantity("1e999 A", Dim::Current, &t).is_err());
         assert!(parse_quantity("90 % of vout", Dim::Current, &t)
             .unwrap_err()
             .contains("a voltage"));
@@ -1851,5 +1859,37 @@ interval = "30 s"
         assert_eq!(line_col("ab\ncd", 0), (1, 1));
         assert_eq!(line_col("ab\ncd", 4), (2, 2));
         assert_eq!(line_col("\u{3a9}x\ny", 2), (1, 2));
+        // An offset inside a multi-byte character counts as that character.
+        assert_eq!(line_col("a\n\u{3a9}x", 3), (2, 1));
+        assert_eq!(line_col("ab", 99), (1, 3));
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn quantity_parser_never_panics(text in "\\PC{0,24}") {
+            for dim in [Dim::Current, Dim::Time] {
+                match parse_quantity(&text, dim, &targets()) {
+                    Ok(v) => proptest::prop_assert!(v.is_finite()),
+                    Err(m) => proptest::prop_assert!(!m.is_empty()),
+                }
+            }
+        }
+
+        #[test]
+        fn plan_parser_never_panics(
+            kind in "(load_sweep|limit_trace|knee_search|short_circuit|line_sweep|soak|x)",
+            key in "(from|to|step|points|load|dwell|interval|mode|expected|drop|duration)",
+            value in "(\"[-0-9.e%a-zA-Z ]{0,12}\"|-?[0-9]{1,6}|-?[0-9]{1,3}\\.[0-9]{1,3})",
+        ) {
+            let text = format!("name = \"p\"\n[[step]]\nkind = \"{kind}\"\n{key} = {value}\n");
+            match parse(&text) {
+                Ok(p) => proptest::prop_assert_eq!(p.steps.len(), 1),
+                Err(PlanError::At { line, column, message, .. }) => {
+                    proptest::prop_assert!((1..=4).contains(&line) && column >= 1);
+                    proptest::prop_assert!(!message.is_empty());
+                }
+                Err(e) => proptest::prop_assert!(!e.to_string().is_empty()),
+            }
+        }
     }
 }

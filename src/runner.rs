@@ -255,6 +255,9 @@ struct At {
 impl<B: BenchControl, O: Observer> Exec<'_, B, O> {
     async fn all(&mut self, results: &mut Vec<StepResult>) -> Result<(), Stop> {
         self.check_cancel()?;
+        // Start from a known state: the unit powers up (or is found) unloaded.
+        self.ctl("switch the load input off", |b| b.set_load_input(false))
+            .await?;
         if self.bench.has_role(Role::InputSource) {
             if let Some(v) = self.plan.source_volts {
                 self.ctl("set the source voltage", |b| b.set_source_voltage(v))

@@ -140,6 +140,10 @@ async fn full_plan_completes_and_writes_a_readable_record() {
     assert_eq!(r.reason, None);
     assert_safe_state_last(&bench);
     assert_eq!(obs.started, vec![0, 1, 2, 3, 4, 5]);
+    // The load input is off before the source switches the unit on.
+    assert_eq!(bench.log[0], "load_input off");
+    assert_eq!(bench.log[1], "source 18");
+    assert_eq!(bench.log[2], "source_output on");
     assert_eq!(obs.finished.len(), 6);
 
     let rec = read_run(&r.dir).unwrap();
