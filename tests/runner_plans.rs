@@ -47,7 +47,7 @@ fn knee_search_defaults_follow_the_designs_limit() {
         .expect("bring-up has a knee search");
     assert_eq!(knee.expected_a, t.limit_current_a);
     assert!((knee.reference_a - 0.1 * t.limit_current_a).abs() < 1e-12);
-    // The foldback demo's output is 5.0 V * (1 + 14 k / 10 k) = 12.0 V (non-inverting gain).
+    // The foldback demo's output is 5.0 V * (1 + 14 k / 10 k) = 12.0 V (textbook non-inverting amplifier gain 1 + R_top / R_bottom).
     assert!((t.vout_v - 12.0).abs() < 1e-9, "{}", t.vout_v);
 }
 

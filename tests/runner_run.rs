@@ -290,7 +290,8 @@ async fn load_power_trips() {
         "samples = 1\n[interlocks]\nmax_load_power = \"6 W\"\n",
     );
     let (_, r) = expect_abort(FakeBench::full(), &text, "max_load_power").await;
-    // 12 V * 0.5 A = 6 W is allowed; 12 V * 0.6 A = 7.2 W is not: point 6 trips.
+    // Load power P = V I (Joule): 11.99 V * 0.5 A = 5.995 W is allowed; 11.988 V * 0.6 A =
+    // 7.19 W is not, so point 6 trips.
     let rec = read_run(&r.dir).unwrap();
     assert_eq!(rec.rows.last().unwrap().point, 6);
 }

@@ -367,7 +367,8 @@ mod tests {
             .unwrap_err();
         assert_eq!(code(&e), EXIT_USAGE);
         let text = String::from_utf8(out).unwrap();
-        // Dissipation estimate V_in * I_sc = 18 V * 0.6 A = 10.8 W.
+        // Pass-device dissipation in a short is about V_in * I_sc (all of the input voltage
+        // across the pass device; common practice): 18 V * 0.6 A = 10.8 W.
         assert!(text.contains("10.8 W"), "{text}");
         assert!(text.contains("local codes and licensed practice"), "{text}");
 
