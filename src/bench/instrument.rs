@@ -563,6 +563,23 @@ impl Instrument {
                 errors.push(e);
             }
         }
+        // A link known to be closed cannot have delivered the sequence, even if the write
+        // went into a socket buffer: say so, so the user checks the instrument by hand.
+        let reader_closed = port.reader.as_ref().is_some_and(|r| r.is_closed());
+        let stream_ended = self
+            .stream
+            .as_ref()
+            .and_then(|s| s.state.lock().ok().map(|st| st.ended.is_some()))
+            .unwrap_or(false);
+        if errors.is_empty() && (reader_closed || stream_ended) {
+            errors.push(BenchError::Closed {
+                instrument: self.cfg.name.clone(),
+                command: format!(
+                    "safe state {}; make sure by hand that it is safe",
+                    cmds.join(" / ")
+                ),
+            });
+        }
         errors
     }
 }
