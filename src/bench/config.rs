@@ -24,8 +24,9 @@ pub const PRESET_NAMES: [&str; 5] = [
 ];
 
 /// Pattern of the `tagged_stream_meter` preset: `DCV +12.0341 V OK` (tag, signed number,
-/// unit, status).
-pub const TAGGED_STREAM_PATTERN: &str = r"^\s*(?P<tag>[A-Za-z]+)\s+(?P<value>[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(?P<unit>[A-Za-z%]*)\s+(?P<status>[A-Za-z]+)\s*$";
+/// unit, status). Written so that each character has one way to match (a "one-pass"
+/// pattern), which the regex engine runs several times faster than an ambiguous one.
+pub const TAGGED_STREAM_PATTERN: &str = r"^[ \t]*(?P<tag>[A-Za-z]+)[ \t]+(?P<value>[-+]?[0-9]+(?:\.[0-9]*)?(?:[eE][-+]?[0-9]+)?)[ \t]+(?P<unit>[A-Za-z%]+)[ \t]+(?P<status>[A-Za-z]+)[ \t]*$";
 
 // ---------------------------------------------------------------------------------------------
 // Raw layout (what serde reads); every table rejects unknown keys.
