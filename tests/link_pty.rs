@@ -130,7 +130,7 @@ fn stale_stream_lines_are_not_used() {
         let bench = Bench::open(&cfg).await.unwrap();
         let id = bench.identities()[0].identity.clone();
         // The three lines were sent within a few milliseconds; wait well past max_age.
-        tokio::time::sleep(Duration::from_millis(200)).await;
+        tokio::time::sleep(Duration::from_millis(400)).await;
         (bench.read_role(Role::OutputVoltmeter).await, id)
     });
     // The identity reply is told apart from stream lines: it does not match the pattern.
