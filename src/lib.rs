@@ -6,6 +6,7 @@
 
 pub mod bench;
 pub mod cli;
+pub mod config;
 pub mod control;
 pub mod design;
 pub mod measure;
