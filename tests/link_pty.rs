@@ -222,3 +222,33 @@ fn silence_on_a_serial_port_is_a_timeout() {
         .count();
     assert_eq!(asked, 3);
 }
+
+/// One streaming meter holding two roles: lines are routed by their tag.
+#[test]
+fn stream_tags_route_lines_to_roles() {
+    let meter = pty_streamer(
+        vec![
+            "DCV +12.0000 V OK\n".to_string(),
+            "DCI +583.20 mA OK\n".to_string(),
+        ],
+        Duration::from_millis(5),
+        true,
+        None,
+    );
+    let cfg = config(&serial_instrument(
+        "strm",
+        "\"output_voltmeter\", \"output_ammeter\"",
+        "tagged_stream_meter",
+        &meter.address,
+        "identity_query = \"\"\nreply_timeout_ms = 2000\n[instrument.reading]\npick = \"newest\"\ntags = { output_voltmeter = \"DCV\", output_ammeter = \"DCI\" }",
+    ));
+    let m = runtime()
+        .block_on(async {
+            let mut bench = Bench::open(&cfg).await.unwrap();
+            bench.measure().await
+        })
+        .unwrap();
+    assert_eq!(m.get(Quantity::OutputVoltage), Some(12.0));
+    let i = m.get(Quantity::OutputCurrent).unwrap();
+    assert!((i - 0.5832).abs() < 1e-12, "{i}");
+}

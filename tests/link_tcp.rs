@@ -386,3 +386,90 @@ fn safe_state_reaches_every_instrument_when_one_fails() {
         &["*IDN?", "FUNC CURR", "CURR 0.2500", "INP ON"]
     );
 }
+
+/// CC / CV / CR (the trade's electronic load modes) each send their mode command and the
+/// setpoint in the template's format; a mode the bench file gives no command for is refused
+/// with the key to add.
+#[test]
+fn load_modes_render_their_commands() {
+    let load = tcp_responder(|line| match line {
+        "*IDN?" => reply("Regulus Simulated Bench,LOAD-2,SN0002,1.0"),
+        _ => Act::Silent,
+    });
+    let custom = tcp_responder(|_| Act::Silent);
+    let text = format!(
+        "{}[[instrument]]\nname = \"cc-only\"\nroles = [\"load\"]\ntcp = {{ host = \"127.0.0.1\", port = {} }}\n[instrument.commands]\nload_set_current = \"ISET {{value*1000:d}}\"\nload_input_on = \"ON\"\nload_input_off = \"OFF\"\n",
+        instrument("eload", "\"load\"", "scpi_load", &load.address, ""),
+        custom.address
+    );
+    // Two loads on one bench is refused (one instrument per role): check each on its own.
+    assert!(BenchConfig::parse(&text, "x").is_err());
+    let first = config(&instrument(
+        "eload",
+        "\"load\"",
+        "scpi_load",
+        &load.address,
+        "",
+    ));
+    let second = config(&text[text.find("[[instrument]]\nname = \"cc-only\"").unwrap()..]);
+    let rt = runtime();
+    rt.block_on(async {
+        let mut b = Bench::open(&first).await.unwrap();
+        b.set_load(LoadMode::ConstantVoltage, 11.5).await.unwrap();
+        b.set_load(LoadMode::ConstantResistance, 24.0)
+            .await
+            .unwrap();
+        b.set_load(LoadMode::ConstantCurrent, 0.125).await.unwrap();
+        b.set_load_input(false).await.unwrap();
+        let mut c = Bench::open(&second).await.unwrap();
+        c.set_load(LoadMode::ConstantCurrent, 0.25).await.unwrap();
+        let e = c
+            .set_load(LoadMode::ConstantResistance, 10.0)
+            .await
+            .unwrap_err();
+        assert_eq!(e.instrument, "cc-only");
+        assert!(e.detail.contains("load_set_resistance"), "{e}");
+        assert!(c.safe_state().await.is_empty());
+    });
+    std::thread::sleep(Duration::from_millis(50));
+    assert_eq!(
+        load.received(),
+        vec![
+            "*IDN?",
+            "FUNC VOLT",
+            "VOLT 11.5000",
+            "FUNC RES",
+            "RES 24.0000",
+            "FUNC CURR",
+            "CURR 0.1250",
+            "INP OFF"
+        ]
+    );
+    // Default safe state of a load without one: its input-off command.
+    assert_eq!(custom.received(), vec!["ISET 250", "OFF"]);
+}
+
+/// command_gap_ms is a least time between commands: three commands take at least two gaps.
+/// (A lower bound only, so a slow machine cannot make this fail.)
+#[test]
+fn command_gap_spaces_commands() {
+    let load = tcp_responder(|line| match line {
+        "*IDN?" => reply("Regulus Simulated Bench,LOAD-2,SN0002,1.0"),
+        _ => Act::Silent,
+    });
+    let cfg = config(&instrument(
+        "eload",
+        "\"load\"",
+        "scpi_load",
+        &load.address,
+        "command_gap_ms = 40",
+    ));
+    let elapsed = runtime().block_on(async {
+        let mut b = Bench::open(&cfg).await.unwrap();
+        let t0 = std::time::Instant::now();
+        b.set_load(LoadMode::ConstantCurrent, 0.1).await.unwrap(); // two commands
+        b.set_load_input(true).await.unwrap(); // a third
+        t0.elapsed()
+    });
+    assert!(elapsed >= Duration::from_millis(80), "{elapsed:?}");
+}
