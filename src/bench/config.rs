@@ -1109,7 +1109,7 @@ tags = { output_voltmeter = "DCV", output_ammeter = "DCI" }
         for f in [
             "bench-template.toml",
             "bench-stream-meter.toml",
-            "bench-sim.toml",
+            "bench-loopback-example.toml",
         ] {
             let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("config").join(f);
             if let Err(e) = BenchConfig::load(&path) {
