@@ -14,7 +14,7 @@ fn args(tmp: &std::path::Path, plan: &str) -> Args {
     let plan_path = tmp.join("plan.toml");
     std::fs::write(&plan_path, plan).unwrap();
     Args {
-        bench: PathBuf::from("config/bench-sim.toml"),
+        bench: PathBuf::from("config/bench-loopback-example.toml"),
         design: PathBuf::from("samples/fixed-12v-3a-foldback.toml"),
         plan: plan_path,
         unit: "FX-0001".into(),
@@ -66,7 +66,7 @@ async fn execute_completes_with_exit_0_and_a_full_record() {
     );
     assert_eq!(
         std::fs::read(runs[0].dir.join("bench.toml")).unwrap(),
-        std::fs::read("config/bench-sim.toml").unwrap()
+        std::fs::read("config/bench-loopback-example.toml").unwrap()
     );
     assert!(rec.rows.len() >= 4 + 3);
 }

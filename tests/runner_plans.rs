@@ -100,7 +100,7 @@ fn short_circuit_plan_without_terminal_or_yes_is_refused() {
     let (code, err) = regulus(&[
         "run",
         "--bench",
-        "config/bench-sim.toml",
+        "config/bench-loopback-example.toml",
         "--design",
         "samples/fixed-12v-3a-foldback.toml",
         "--plan",
