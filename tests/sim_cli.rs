@@ -21,6 +21,8 @@ fn sim_prints_ports_truth_and_writes_the_bench_file() {
         .args(["--without", "psu"])
         .arg("--write-bench")
         .arg(&bench)
+        .arg("--write-truth")
+        .arg(dir.path().join("truth.json"))
         .output()
         .unwrap();
     let text = String::from_utf8_lossy(&out.stdout);
@@ -45,6 +47,12 @@ fn sim_prints_ports_truth_and_writes_the_bench_file() {
     assert!(text.contains("sense resistor fitted: 0.39 ohm"), "{text}");
     assert!(text.contains("ports closed"), "{text}");
     let written = std::fs::read_to_string(&bench).unwrap();
+    let truth: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("truth.json")).unwrap())
+            .unwrap();
+    // The fault is in the element values: the fitted sense resistor.
+    assert_eq!(truth["params"]["r_sense"].as_f64(), Some(0.39));
+    assert!(truth["short_circuit_current"].as_f64().unwrap() > 0.0);
     assert_eq!(written.matches("[[instrument]]").count(), 4);
     assert!(!written.contains("input_source"));
 }

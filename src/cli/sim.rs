@@ -24,6 +24,9 @@ pub struct Args {
     /// Write a bench file for the simulated instruments' ports here.
     #[arg(long, value_name = "FILE")]
     pub write_bench: Option<PathBuf>,
+    /// Write the as-built unit's true values (and element values) here as JSON.
+    #[arg(long, value_name = "FILE")]
+    pub write_truth: Option<PathBuf>,
     /// Inject a fault (repeatable). Unit: sense=0.56, diodes=+1, diodes=-1, theta_sa=12,
     /// vref=5.3. Port (dmm, ammeter, eload, psu, thermo): dmm:garbage=5, dmm:drop=3,
     /// eload:slow=800, psu:close-after=20, thermo:close-at=5.
@@ -154,6 +157,12 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         std::fs::write(path, sim.bench_toml())
             .with_context(|| format!("writing the bench file {}", path.display()))?;
         writeln!(out, "\nBench file written: {}", path.display())?;
+    }
+    if let Some(path) = &args.write_truth {
+        let json = serde_json::to_string_pretty(sim.truth())?;
+        std::fs::write(path, json + "\n")
+            .with_context(|| format!("writing the true values to {}", path.display()))?;
+        writeln!(out, "True values written: {}", path.display())?;
     }
     let (tx, rx) = std::sync::mpsc::channel::<()>();
     // Kept alive so that waiting blocks even when no handler could be set.

@@ -281,8 +281,10 @@ fn session<P: Port>(port: &mut P, sh: &Shared, reconnects: bool) {
                                 if !out.delay.is_zero() {
                                     std::thread::sleep(out.delay);
                                 }
-                                if !out.lines.is_empty() && write_lines(port, &out.lines).is_err() {
-                                    // Nobody reads: drop the reply, as a real instrument would.
+                                if !out.lines.is_empty() {
+                                    // If nobody reads, the reply is lost, as with a real
+                                    // instrument.
+                                    let _ = write_lines(port, &out.lines);
                                 }
                                 if out.close {
                                     close_after_reply(sh, reconnects);
