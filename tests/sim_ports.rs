@@ -337,3 +337,21 @@ fn reopened_streaming_meter_sends_no_stale_lines() {
     let mut amm = Client::open(&amm_link);
     assert_eq!(amm.line().unwrap(), "DCI +1.0000 A OK");
 }
+
+#[test]
+fn shutdown_is_not_held_up_by_a_slow_reply() {
+    let _g = serial();
+    let sim = start(
+        SimOptions::default()
+            .seed(13)
+            .fault(Fault::parse("eload:slow=60000").unwrap()),
+    );
+    let mut load = Client::open(sim.port(InstrumentKind::Load).unwrap());
+    assert!(load.send("MEAS:VOLT?"));
+    std::thread::sleep(Duration::from_millis(100));
+    let t0 = Instant::now();
+    sim.shutdown();
+    // The reply was due in 60 s; stopping must not wait for it.
+    assert!(t0.elapsed() < Duration::from_secs(10), "{:?}", t0.elapsed());
+    assert_eq!(load.line(), None);
+}

@@ -241,6 +241,22 @@ fn close_after_reply(sh: &Shared, pty: bool) {
     }
 }
 
+/// Wait `d` (a reply's latency), in slices so that a stop is not held up by a slow reply.
+/// False when the bench is stopping.
+fn pause(sh: &Shared, d: Duration) -> bool {
+    let end = Instant::now() + d;
+    loop {
+        if sh.stop.load(Ordering::SeqCst) {
+            return false;
+        }
+        let now = Instant::now();
+        if now >= end {
+            return true;
+        }
+        std::thread::sleep((end - now).min(POLL));
+    }
+}
+
 /// Serve one port until stop, close or (for TCP, `reconnects == false`) the peer leaves.
 fn session<P: Port>(port: &mut P, sh: &Shared, reconnects: bool) {
     let streaming = sh.kind() == InstrumentKind::StreamMeter;
@@ -278,8 +294,8 @@ fn session<P: Port>(port: &mut P, sh: &Shared, reconnects: bool) {
                             let text = text.trim_end_matches('\r').trim();
                             if !text.is_empty() && !streaming {
                                 let out = handle_line(sh, text);
-                                if !out.delay.is_zero() {
-                                    std::thread::sleep(out.delay);
+                                if !pause(sh, out.delay) {
+                                    return;
                                 }
                                 if !out.lines.is_empty() {
                                     // If nobody reads, the reply is lost, as with a real
