@@ -1,4 +1,4 @@
-//! The simulated bench: an as-built unit drawn from a design ([`unit`]) and simulated
+//! The simulated bench: an as-built unit drawn from a design ([`mod@unit`]) and simulated
 //! instruments that speak the project's wire protocol ([`instruments`]) on pseudo-terminals and
 //! loopback TCP ([`serve`]). It is a product feature for learning and rehearsing, and the ground
 //! the end-to-end tests run on. [`SimBench`] starts everything and writes a bench file for its

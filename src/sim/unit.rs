@@ -15,6 +15,16 @@
 //!   design's limit line `I = I_L(V)` (`design::model::limit_current_at`, foldback included).
 //! - Heat: `T -> T_a + P theta` with time constant tau (exact exponential step); the pass
 //!   device dissipates `(V_in - V - I R_s) I`, the clamp `V_clamp I_drive` while it conducts.
+//!   Junction drops follow `design::model::junction_at`, so a diode-string limit rises as the
+//!   pass device heats (V_sense = n V_F - m V_BE) while a transistor limiter barely moves.
+//! - Loads: CV holds V and takes what the unit gives there; CR is the highest intersection of
+//!   the curve with V = I R; CC takes the highest point that delivers the set current, else the
+//!   output collapses to 0 V and stays there while the setting exceeds what the unit gives at
+//!   0 V (foldback latch-up).
+//! - Line: the output moves by `line_rejection` volts per volt of input.
+//!
+//! True values for tests ([`Truth`]): the knee is the current at which the output has fallen
+//! 2 % below its no-load value, all junctions at ambient, on the design's own input.
 
 use crate::design::model::{evaluate, limit_current_at, sense_voltage};
 use crate::design::{Clamp, Design, InputKind, Params, Stage};
