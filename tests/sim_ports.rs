@@ -102,12 +102,25 @@ fn identity_and_measurement_on_pty_and_tcp() {
         assert_eq!(idn.split(',').count(), 4, "{idn}");
         assert!(idn.starts_with(MAKER));
         let v = dmm.number("MEAS:VOLT:DC?");
+        // No probe on the meter's temperature input: SCPI's overrange value 9.9E37.
+        assert_eq!(dmm.ask("MEAS:TEMP?"), "9.9E37");
         let t = sim.truth();
         assert!((v - t.no_load_v).abs() < 1e-3, "{v} vs {}", t.no_load_v);
         let mut th = Client::open(sim.port(InstrumentKind::Thermometer).unwrap());
         let c = th.number("MEAS:TEMP?");
         assert!((c - t.ambient_c).abs() < 0.5, "{c}");
         sim.shutdown();
+    }
+}
+
+#[test]
+fn default_mix_puts_meters_on_ptys_and_load_and_source_on_tcp() {
+    let _g = serial();
+    let sim = start(SimOptions::default().seed(2));
+    for p in sim.ports() {
+        let tcp = matches!(p.link, Link::Tcp(_));
+        let expect_tcp = matches!(p.kind, InstrumentKind::Load | InstrumentKind::Source);
+        assert_eq!(tcp, expect_tcp, "{p:?}");
     }
 }
 
