@@ -66,6 +66,7 @@ fn sim_config_errors_exit_2() {
         vec!["--transport", "carrier-pigeon"],
         vec!["--noise", "-1"],
         vec!["--without", "scope"],
+        vec!["--ambient", "300"],
     ] {
         let out = regulus()
             .args(["sim", "--design", &design, "--run-for", "0"])

@@ -42,6 +42,9 @@ pub struct Args {
     /// Noise multiplier of the instruments (1 = realistic, 0 = noiseless).
     #[arg(long, default_value_t = 1.0, value_name = "X")]
     pub noise: f64,
+    /// Room temperature in degC (default: the design's nominal ambient).
+    #[arg(long, value_name = "DEGC")]
+    pub ambient: Option<f64>,
     /// Leave an instrument off the bench (repeatable): dmm, ammeter, eload, psu, thermo.
     /// Without psu the unit always runs from its own input.
     #[arg(long, value_name = "NAME")]
@@ -71,7 +74,19 @@ pub fn options(args: &Args) -> Result<SimOptions, CodedError> {
             return Err(usage(format!("--run-for {s}: use seconds, 0 or more")));
         }
     }
+    if let Some(t) = args.ambient {
+        if !(t.is_finite() && (-40.0..=85.0).contains(&t)) {
+            return Err(usage(format!(
+                "--ambient {t}: use a room temperature from -40 to 85 degC"
+            )));
+        }
+    }
+    let model = crate::sim::UnitModel {
+        ambient_c: args.ambient,
+        ..Default::default()
+    };
     let mut opts = SimOptions::default()
+        .model(model)
         .seed(args.seed)
         .latency(Duration::from_millis(args.latency_ms))
         .transport(transport)

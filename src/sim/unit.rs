@@ -78,6 +78,8 @@ pub struct UnitModel {
     /// Input rejection: volts of output change per volt of input change (1e-4 is 80 dB, usual
     /// for an op-amp error amplifier; from memory). Gives a small, nonzero line regulation.
     pub line_rejection: f64,
+    /// Room temperature, degC; `None`: the design's nominal ambient.
+    pub ambient_c: Option<f64>,
 }
 
 impl Default for UnitModel {
@@ -94,6 +96,7 @@ impl Default for UnitModel {
             clamp_drive_a: 0.010,
             quiescent_a: 0.008,
             line_rejection: 1e-4,
+            ambient_c: None,
         }
     }
 }
@@ -291,7 +294,8 @@ impl InputFeed {
 
 impl SimUnit {
     /// Build an as-built unit: every element drawn within tolerance from `seed` (the line
-    /// too), the room at the design's nominal ambient, then the faults applied.
+    /// too), the room at the model's ambient (default: the design's nominal), then the faults
+    /// applied.
     pub fn build(
         design: &Design,
         seed: u64,
@@ -299,7 +303,7 @@ impl SimUnit {
         model: UnitModel,
     ) -> Result<SimUnit, UnitError> {
         let mut params = Params::draw(design, &mut Rng::new(seed));
-        params.set_ambient(design.environment.ambient_c);
+        params.set_ambient(model.ambient_c.unwrap_or(design.environment.ambient_c));
         SimUnit::from_params(design, params, faults, model)
     }
 
@@ -1025,6 +1029,27 @@ mod tests {
                 proptest::prop_assert!((op.vout - op.iout * value.max(1e-3)).abs() < 1e-6);
             }
         }
+    }
+
+    #[test]
+    fn a_hotter_room_moves_the_diode_string_limit() {
+        // V_sense = n V_F - m V_BE with every junction 2 mV/degC lower at +10 degC: the
+        // threshold changes by (n - m)(-2 mV/degC)(10 degC) (textbook tempco, GUIDE.md 5).
+        let d = lab();
+        let cold = unit(&d, &[]).truth();
+        let model = UnitModel {
+            ambient_c: Some(35.0),
+            ..UnitModel::default()
+        };
+        let hot = SimUnit::build(&d, 11, &[], model).unwrap().truth();
+        let n = cold.params.diodes as f64;
+        let expected = cold.sense_v + (n - 2.0) * -2e-3 * 10.0;
+        assert!(
+            (hot.sense_v - expected).abs() < 1e-12,
+            "{} vs {expected}",
+            hot.sense_v
+        );
+        assert_eq!(hot.ambient_c, 35.0);
     }
 
     #[test]
