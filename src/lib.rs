@@ -11,4 +11,5 @@ pub mod design;
 pub mod measure;
 pub mod record;
 pub mod rng;
+pub mod spice;
 pub mod units;
