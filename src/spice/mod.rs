@@ -9,8 +9,8 @@ pub mod curve;
 pub mod netlist;
 
 pub use curve::{
-    compare, parse_curve_csv, parse_print_output, read_curve_csv, render_comparison, summarize,
-    write_curve_csv, CompareRow, CurveSummary, CSV_HEADER, KNEE_DROP,
+    compare, diff_pct, parse_curve_csv, parse_print_output, read_curve_csv, render_comparison,
+    summarize, write_curve_csv, CompareRow, CurveSummary, CSV_HEADER, KNEE_DROP,
 };
 pub use netlist::{build, JunctionMatch, ModelMode, Netlist, NetlistOptions, NetlistPoint};
 
