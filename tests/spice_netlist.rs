@@ -93,7 +93,7 @@ fn every_topology_has_its_elements_models_and_sweep() {
             Some(format!("Rsense e out {}", d.limit.sense.ohms).as_str()),
             "{label}"
         );
-        assert!(t.contains("\n.dc Vsw 0 1 "), "{label}");
+        assert!(t.contains("\n.dc Vsw 1 0 -"), "{label}");
         assert!(t.contains("\n.print dc i(Vmeas) v(out)\n"), "{label}");
         assert!(t.contains("\n.options tnom=25\n"), "{label}");
         assert!(t.ends_with(".end\n"), "{label}");
@@ -228,4 +228,20 @@ output_setting_v = 12.5
     assert!(element(&n.text, "Bdrv")
         .expect("Bdrv")
         .starts_with("Bdrv in drive "));
+}
+
+#[test]
+fn spice_temperature_law_gives_about_minus_2_mv_per_degree() {
+    use regulus::spice::netlist::spice_drop_at;
+    // At the matching temperature the drop is the design's.
+    assert!((spice_drop_at(0.65, 0.01, 25.0) - 0.65).abs() < 1e-12);
+    // A silicon junction's drop falls about 2 mV per degC (textbook; GUIDE.md section 5):
+    // SPICE's law (EG = 1.11 eV, XTI = 3) gives about -1.8 mV/degC at 0.65 V.
+    for i in [1e-3, 1e-2, 1.0] {
+        let slope = (spice_drop_at(0.65, i, 35.0) - 0.65) / 10.0;
+        assert!(
+            (-2.3e-3..-1.5e-3).contains(&slope),
+            "{slope} V/degC at {i} A"
+        );
+    }
 }

@@ -4,7 +4,7 @@
 //! Runs without the simulator installed.
 
 use regulus::design::{expect_with, Design};
-use regulus::spice::{self, diff_pct, parse_print_output, summarize, KNEE_DROP};
+use regulus::spice::{self, curve_from_print, diff_pct, parse_print_output, summarize, KNEE_DROP};
 use std::path::Path;
 
 fn data(name: &str) -> String {
@@ -34,13 +34,18 @@ fn captured_output_parses_into_every_sweep_row_across_page_breaks() {
     assert!(text.matches("\nIndex ").count() > 10);
     let pts = parse_print_output(&text).expect("parse");
     assert_eq!(pts.len(), 2001);
-    // Row 0 (open circuit) and row 1, as printed.
-    assert_eq!(pts[0], (3.464682e-09, 1.199996e+01));
-    assert_eq!(pts[1], (1.733207e-03, 1.199996e+01));
+    // The sweep runs from the short to open circuit. Row 0 (the short: 0 V) and row 1, as
+    // printed.
+    assert_eq!(pts[0], (2.096053e+00, 0.0));
+    assert_eq!(pts[1], (2.096481e+00, 3.629850e-03));
     // Row 55 follows a page break.
-    assert_eq!(pts[55], (9.797200e-02, 1.199995e+01));
-    // The last row is the short: 0 V.
-    assert!(pts[2000].1.abs() < 1e-9, "{:?}", pts[2000]);
+    assert_eq!(pts[55], (2.120557e+00, 2.076842e-01));
+    // The last row is open circuit.
+    assert_eq!(pts[2000], (3.464682e-09, 1.199996e+01));
+    // The curve reads from open circuit to the short.
+    let curve = curve_from_print(&text).expect("curve");
+    assert_eq!(curve.first(), pts.last());
+    assert_eq!(curve.last(), pts.first());
 }
 
 #[test]
@@ -48,7 +53,7 @@ fn captured_curve_gives_the_foldback_figures_of_the_textbook_model() {
     // Foldback, k = 10000 / 10390, R_s = 0.33 ohm, V_BE = 0.65 V, V_out = 12 V (GUIDE.md
     // section 5): I_knee = (V_BE + (1 - k) V_out) / (k R_s) = 3.465 A,
     // I_sc = V_BE / (k R_s) = 2.046 A. The captured simulation agrees within 5 %.
-    let pts = parse_print_output(&data("ngspice-foldback-sample.out")).expect("parse");
+    let pts = curve_from_print(&data("ngspice-foldback-sample.out")).expect("parse");
     let s = summarize(&pts, KNEE_DROP).expect("summary");
     let k: f64 = 10000.0 / 10390.0;
     let knee = (0.65 + (1.0 - k) * 12.0) / (k * 0.33);
@@ -92,11 +97,11 @@ fn captured_netlist_is_what_the_generator_writes_today() {
 fn a_truncated_or_garbled_table_is_reported_with_its_line() {
     let text = data("ngspice-foldback-sample.out");
     // Corrupt one data value.
-    let bad = text.replacen("9.797200e-02", "9.79x200e-02", 1);
+    let bad = text.replacen("2.120557e+00", "2.12x557e+00", 1);
     let e = parse_print_output(&bad).unwrap_err().to_string();
     assert!(e.contains("not a number") && e.contains("line"), "{e}");
     // Drop a column from one row.
-    let bad = text.replacen("\t9.797200e-02", "", 1);
+    let bad = text.replacen("\t2.120557e+00", "", 1);
     let e = parse_print_output(&bad).unwrap_err().to_string();
     assert!(e.contains("expected 4 columns"), "{e}");
     // A header without the expected columns.

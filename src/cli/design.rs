@@ -96,7 +96,14 @@ fn spice_steps(args: &Args, d: &Design, e: &design::Expectation) -> anyhow::Resu
     let rows = spice::compare(e, &sim.summary);
     let mut buf = Vec::new();
     writeln!(buf)?;
-    spice::render_comparison(&mut buf, &sim.simulator, sim.models.describe(), &rows)?;
+    let notes = spice::departures(d, &sim.netlist);
+    spice::render_comparison(
+        &mut buf,
+        &sim.simulator,
+        sim.models.describe(),
+        &rows,
+        &notes,
+    )?;
     if args.json {
         std::io::stderr().write_all(&buf)?;
     } else {

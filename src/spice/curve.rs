@@ -96,6 +96,14 @@ pub fn parse_print_output(text: &str) -> Result<Vec<(f64, f64)>, SpiceError> {
     Ok(points.into_iter().map(|(_, i, v)| (i, v)).collect())
 }
 
+/// The V-I curve from the printed output of a netlist built by [`super::build`], which sweeps
+/// from the short to open circuit: points come back lightest load first, short last.
+pub fn curve_from_print(text: &str) -> Result<Vec<(f64, f64)>, SpiceError> {
+    let mut points = parse_print_output(text)?;
+    points.reverse();
+    Ok(points)
+}
+
 /// Knee and short-circuit figures of a V-I curve swept from open circuit to short.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct CurveSummary {
@@ -241,6 +249,7 @@ pub fn render_comparison(
     simulator: &str,
     models: &str,
     rows: &[CompareRow],
+    notes: &[super::Departure],
 ) -> io::Result<()> {
     writeln!(
         w,
@@ -271,6 +280,15 @@ pub fn render_comparison(
             diff,
             inside
         )?;
+    }
+    for n in notes {
+        let effect = match (n.knee_pct, n.short_circuit_pct) {
+            (Some(k), Some(s)) => {
+                format!(" (about {k:+.1} % on the knee, {s:+.1} % on the short-circuit current)")
+            }
+            _ => String::new(),
+        };
+        writeln!(w, "  note: {}{effect}", n.text)?;
     }
     Ok(())
 }

@@ -9,10 +9,12 @@ pub mod curve;
 pub mod netlist;
 
 pub use curve::{
-    compare, diff_pct, parse_curve_csv, parse_print_output, read_curve_csv, render_comparison,
-    summarize, write_curve_csv, CompareRow, CurveSummary, CSV_HEADER, KNEE_DROP,
+    compare, curve_from_print, diff_pct, parse_curve_csv, parse_print_output, read_curve_csv,
+    render_comparison, summarize, write_curve_csv, CompareRow, CurveSummary, CSV_HEADER, KNEE_DROP,
 };
-pub use netlist::{build, JunctionMatch, ModelMode, Netlist, NetlistOptions, NetlistPoint};
+pub use netlist::{
+    build, departures, Departure, JunctionMatch, ModelMode, Netlist, NetlistOptions, NetlistPoint,
+};
 
 use crate::design::Design;
 use std::io::Read;
@@ -65,7 +67,8 @@ pub enum SpiceError {
 pub trait Simulator {
     /// Name and version, e.g. `ngspice-39`.
     fn version(&self) -> Result<String, SpiceError>;
-    /// Run `netlist` (the text of a netlist file) in batch mode.
+    /// Run `netlist` (the text of a netlist file) in batch mode; an error when it prints no
+    /// table.
     fn run(&self, netlist: &str) -> Result<String, SpiceError>;
 }
 
@@ -183,6 +186,15 @@ impl Ngspice {
                 tail: tail(&format!("{stdout}\n{stderr}"), 12),
             });
         }
+        if !stdout.lines().any(|l| l.starts_with("Index")) {
+            // ngspice often exits with success after a failed analysis (no convergence, a
+            // bad element): its reasons are on stderr.
+            return Err(SpiceError::Failed {
+                status: "finished without printing the sweep table".into(),
+                netlist: path.display().to_string(),
+                tail: tail(&format!("{stdout}\n{stderr}"), 12),
+            });
+        }
         Ok(stdout)
     }
 }
@@ -240,7 +252,7 @@ pub fn simulate_with(
     let netlist = build(d, opts)?;
     let simulator = sim.version()?;
     let out = sim.run(&netlist.text)?;
-    let points = parse_print_output(&out)?;
+    let points = curve_from_print(&out)?;
     let summary = summarize(&points, KNEE_DROP).ok_or(SpiceError::EmptyCurve)?;
     Ok(SimulatedCurve {
         points,

@@ -15,10 +15,13 @@
 //! - clamp: diode string [drive .. out], transistor `Qlim` (base [e]), or foldback `Qlim` with
 //!   base on the divider `Rfdt` [e-fbk], `Rfdb` [fbk-0];
 //! - load: `Vmeas` (0 V, measures the load current) and `Bload`, a resistance
-//!   R = R_knee (1 - s) / s controlled by the swept source `Vsw` [sw], s from 0 (open circuit)
-//!   to 1 (short). Every load line through the origin crosses the supply's V-I curve once,
-//!   including the foldback line, so the sweep traces the whole curve through the knee with no
-//!   fight between a constant-current load and the limit.
+//!   R = R_knee (1 - s) / s controlled by the swept source `Vsw` [sw], s swept from 1 (short)
+//!   down to 0 (open circuit). Every load line through the origin crosses the supply's V-I
+//!   curve once, including the foldback line, so the sweep traces the whole curve through the
+//!   knee with no fight between a constant-current load and the limit. The sweep starts at the
+//!   short because the simulator finds that operating point directly; started at open circuit
+//!   it could settle on a false operating point (seen with a Darlington at 40 degC: output near
+//!   the input, the driver saturated) and carry it along the sweep.
 
 use crate::design::file::{Clamp, Design, InputKind, ReferenceAdjust, Stage};
 use crate::design::model::{evaluate, Params};
@@ -133,6 +136,151 @@ pub struct Netlist {
 pub enum NetlistError {
     #[error("the design's nominal {what} is {value}; the netlist needs a positive value (check the design file)")]
     NotPositive { what: &'static str, value: f64 },
+}
+
+/// A departure of the simulated circuit from the textbook model, estimated in closed form.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Departure {
+    /// What causes it, for people.
+    pub text: String,
+    /// Estimated effect on the knee and on the short-circuit current, percent (None when it
+    /// cannot be put as a number).
+    pub knee_pct: Option<f64>,
+    pub short_circuit_pct: Option<f64>,
+}
+
+/// Departures of the simulated circuit from the textbook model that follow from the netlist's
+/// own elements, for people reading the comparison.
+pub fn departures(d: &Design, n: &Netlist) -> Vec<Departure> {
+    let mut out = Vec::new();
+    let p = &n.point;
+    let m = d.pass.stage.junctions() as i32;
+    let base = |i_e: f64| i_e / (PASS_BETA + 1.0).powi(m);
+    // The clamp carries the drive current less the pass stage's base current, which is a
+    // little larger at the short when the short-circuit current is below the knee (foldback).
+    let clamp_knee = p.drive_limit_a - base(p.limit_current_a);
+    let clamp_sc = p.drive_limit_a - base(p.short_circuit_current_a);
+    out.push(Departure {
+        text: format!(
+            "the clamp sinks the amplifier's drive current ({:.1} mA) and passes it to the \
+             output, so the load sees the sense-resistor current plus that",
+            clamp_knee * 1e3
+        ),
+        knee_pct: Some(100.0 * clamp_knee / p.limit_current_a),
+        short_circuit_pct: Some(100.0 * clamp_sc / p.short_circuit_current_a),
+    });
+    if n.mode == ModelMode::SimulatorDefaults {
+        out.push(Departure {
+            text: "the simulator's default junctions do not give the design file's drops; \
+                   match the models (leave out --spice-default-models) to see the topology alone"
+                .to_string(),
+            knee_pct: None,
+            short_circuit_pct: None,
+        });
+    }
+    if d.limit.clamp == Clamp::Foldback {
+        if let (Some(t), Some(b)) = (&d.limit.divider_top, &d.limit.divider_bottom) {
+            let k = b.ohms / (t.ohms + b.ohms);
+            let r_th = t.ohms * b.ohms / (t.ohms + b.ohms);
+            let beta = n
+                .models
+                .iter()
+                .find(|j| j.model == "QLIM")
+                .and_then(|j| j.beta)
+                .unwrap_or(100.0);
+            let vt = thermal_voltage(p.temp_c);
+            let shift_knee = clamp_knee / beta * r_th;
+            // At the short the limiter also carries a little more current than at the knee,
+            // where its junction is matched: Shockley adds Vt ln(I_sc / I_knee).
+            let shift_sc = clamp_sc / beta * r_th
+                + if n.mode == ModelMode::Matched {
+                    vt * (clamp_sc / clamp_knee).ln()
+                } else {
+                    0.0
+                };
+            let to_amps = |v: f64| v / (k * d.limit.sense.ohms);
+            out.push(Departure {
+                text: format!(
+                    "the limiter's base current ({:.0} uA at gain {}) through the divider's {:.0} \
+                     ohm Thevenin resistance raises its threshold by {:.1} mV at the knee, {:.1} \
+                     mV at the short; a stiffer divider or a higher-gain limiter reduces it",
+                    clamp_knee / beta * 1e6,
+                    num(beta),
+                    r_th,
+                    shift_knee * 1e3,
+                    shift_sc * 1e3
+                ),
+                knee_pct: Some(100.0 * to_amps(shift_knee) / p.limit_current_a),
+                short_circuit_pct: Some(100.0 * to_amps(shift_sc) / p.short_circuit_current_a),
+            });
+        }
+    }
+    if n.mode == ModelMode::Matched && (p.temp_c - MATCH_TEMP_C).abs() > 1e-9 {
+        let tc = d.environment.junction_tempco_mv_per_c * 1e-3 * (p.temp_c - MATCH_TEMP_C);
+        // Change of one junction's drop relative to the textbook law, by model name.
+        let delta = |model: &str| {
+            n.models.iter().find(|j| j.model == model).map_or(0.0, |j| {
+                spice_drop_at(j.drop_v, j.current_a, p.temp_c) - (j.drop_v + tc)
+            })
+        };
+        let (dv, per_volt) = match d.limit.clamp {
+            Clamp::DiodeString => (
+                d.limit.diodes.unwrap_or(0) as f64 * delta("DCLAMP")
+                    - delta("QP1")
+                    - if m == 2 { delta("QP2") } else { 0.0 },
+                1.0 / d.limit.sense.ohms,
+            ),
+            Clamp::Transistor => (delta("QLIM"), 1.0 / d.limit.sense.ohms),
+            Clamp::Foldback => {
+                let k = crate::design::model::foldback_ratio(d, &Params::nominal(d));
+                (delta("QLIM"), 1.0 / (k * d.limit.sense.ohms))
+            }
+        };
+        out.push(Departure {
+            text: format!(
+                "at {} degC the simulator moves each junction by its own temperature law \
+                 (IS ~ T^{} exp(-Eg/kT), Eg = {} eV) rather than the design's {} mV/degC: the \
+                 clamp threshold differs by {:+.1} mV",
+                num(p.temp_c),
+                num(SPICE_XTI),
+                num(SPICE_EG),
+                num(d.environment.junction_tempco_mv_per_c),
+                dv * 1e3
+            ),
+            knee_pct: Some(100.0 * dv * per_volt / p.limit_current_a),
+            short_circuit_pct: Some(100.0 * dv * per_volt / p.short_circuit_current_a),
+        });
+    }
+    if p.amp_high_v
+        < p.vout_set_v
+            + p.limit_current_a * d.limit.sense.ohms
+            + d.pass.stage.junctions() as f64 * d.pass.vbe_v
+    {
+        out.push(Departure {
+            text:
+                "the amplifier cannot drive the pass stage to the knee at this setting: the \
+                   output falls before the clamp engages (check the aux rail or the input headroom)"
+                    .to_string(),
+            knee_pct: None,
+            short_circuit_pct: None,
+        });
+    }
+    out
+}
+
+/// SPICE's default band gap (EG, eV) and saturation-current temperature exponent (XTI) for
+/// diodes and bipolar transistors (ngspice manual, model parameter tables).
+pub const SPICE_EG: f64 = 1.11;
+pub const SPICE_XTI: f64 = 3.0;
+
+/// Drop at `temp_c` of a junction matched to `v25` at `i` (25 degC), under SPICE's
+/// temperature law IS(T) = IS(T0) (T/T0)^XTI exp(EG/(k/q) (1/T0 - 1/T)) with N = 1.
+pub fn spice_drop_at(v25: f64, i: f64, temp_c: f64) -> f64 {
+    let t0 = MATCH_TEMP_C + ZERO_C_IN_K;
+    let t = temp_c + ZERO_C_IN_K;
+    let is0 = saturation_current(v25, i, thermal_voltage(MATCH_TEMP_C));
+    let is_t = is0 * (t / t0).powf(SPICE_XTI) * (SPICE_EG / K_OVER_Q * (1.0 / t0 - 1.0 / t)).exp();
+    junction_drop(is_t, i, thermal_voltage(temp_c))
 }
 
 /// Thermal voltage kT/q at a temperature in degC (25.69 mV at 25 degC).
@@ -445,7 +593,7 @@ fn render(
         num(pt.drive_limit_a)
     );
     w!(
-        "* Load: R = {} ohm * (1 - s) / s, s swept 0 (open circuit) .. 1 (short); s = 0.5 is the nominal knee.",
+        "* Load: R = {} ohm * (1 - s) / s, s swept from 1 (short) to 0 (open circuit); s = 0.5 is the nominal knee.",
         num(pt.knee_ohms)
     );
     w!(
@@ -586,8 +734,10 @@ fn render(
         }
     }
     w!("");
-    w!("* Sweep and printed data: index, s, load current [A], output voltage [V]");
-    w!(".dc Vsw 0 1 {}", num(SWEEP_STEP));
+    w!("* Sweep from the short to open circuit: the simulator finds the operating point at a");
+    w!("*   short at once, and each later point starts from the one before.");
+    w!("* Printed data: index, s, load current [A], output voltage [V]");
+    w!(".dc Vsw 1 0 -{}", num(SWEEP_STEP));
     w!(".print dc i(Vmeas) v(out)");
     w!(".end");
     s

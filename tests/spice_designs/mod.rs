@@ -194,6 +194,23 @@ pub fn sample(file: &str) -> Design {
     }
 }
 
+/// The diode-string sample at 40 degC ambient: the model moves every junction by the textbook
+/// -2 mV/degC, the simulator by its own junction temperature law.
+pub fn sample_diode_hot() -> Design {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("samples")
+        .join(SAMPLE_DIODE);
+    let text = match std::fs::read_to_string(&path) {
+        Ok(t) => t,
+        Err(e) => panic!("{}: {e}", path.display()),
+    };
+    let text = text.replacen("ambient_c = 25", "ambient_c = 40", 1);
+    match Design::parse(&text, "hot sample") {
+        Ok(d) => d,
+        Err(e) => panic!("{e}"),
+    }
+}
+
 pub const SAMPLE_FOLDBACK: &str = "fixed-12v-3a-foldback.toml";
 pub const SAMPLE_DIODE: &str = "teaching-lab-0-20v.toml";
 
@@ -209,6 +226,10 @@ pub fn all() -> Vec<(&'static str, Design)> {
         (
             "sample: diode string, Darlington, wiper",
             sample(SAMPLE_DIODE),
+        ),
+        (
+            "sample: diode string at 40 degC ambient",
+            sample_diode_hot(),
         ),
     ]
 }
