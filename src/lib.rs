@@ -4,12 +4,15 @@
 //! Pure modules (design, protocol parsing, plan expansion, analysis, comparison) do no I/O;
 //! transports, instruments, the runner and the record writer sit at the edges.
 
+pub mod bench;
 pub mod cli;
 pub mod config;
 pub mod control;
 pub mod design;
 pub mod measure;
+pub mod protocol;
 pub mod record;
 pub mod rng;
 pub mod spice;
+pub mod transport;
 pub mod units;

@@ -116,6 +116,12 @@ pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> 
         )?;
     }
     writeln!(w)?;
+    let sink = if e.thermal.max_theta_sa < 0.0 {
+        "none can: reduce the worst-case dissipation (lower input, lower limit, foldback) or share it"
+            .to_string()
+    } else {
+        eng(e.thermal.max_theta_sa, "degC/W")
+    };
     match (e.junction_temp_c, e.thermal.theta_total) {
         (Some(tj), Some(th)) => writeln!(
             w,
@@ -124,13 +130,13 @@ pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> 
             eng(d.environment.ambient_max_c, "degC"),
             eng(th, "degC/W"),
             eng(d.pass.tj_max_c - d.rules.tj_margin_c, "degC"),
-            eng(e.thermal.max_theta_sa, "degC/W"),
+            sink,
         )?,
         _ => writeln!(
             w,
             "thermal: no heatsink given; largest heatsink for T_j <= {}: {}",
             eng(d.pass.tj_max_c - d.rules.tj_margin_c, "degC"),
-            eng(e.thermal.max_theta_sa, "degC/W"),
+            sink,
         )?,
     }
     writeln!(w)?;
