@@ -142,3 +142,53 @@ fn json_output_stays_one_json_object_with_simulate() {
     assert!(v.get("limit_current").is_some());
     assert!(text(&o.stderr).contains("simulated with ngspice-"));
 }
+
+#[test]
+fn a_design_without_a_positive_output_cannot_be_exported_and_says_why() {
+    // A wiper supply evaluated at 0 V has no knee to sweep through: usage error (exit 2).
+    let dir = tempfile::tempdir().expect("tempdir");
+    let f = dir.path().join("zero.toml");
+    let toml = r#"
+[design]
+name = "zero setting"
+[input]
+kind = "dc"
+volts = 20.0
+[reference]
+volts = 5.0
+adjust = "wiper"
+[feedback]
+top = { ohms = 10000 }
+bottom = { ohms = 10000 }
+[pass]
+stage = "darlington"
+power_rating_w = 100
+theta_jc = 1
+[limit]
+clamp = "transistor"
+sense = { ohms = 0.5 }
+[load]
+max_current_a = 1.0
+output_setting_v = 0.0
+"#;
+    std::fs::write(&f, toml).expect("write");
+    let out = dir.path().join("z.cir");
+    let o = regulus(
+        &[
+            "design",
+            f.to_str().expect("path"),
+            "--samples",
+            "100",
+            "--netlist",
+            out.to_str().expect("path"),
+        ],
+        None,
+    );
+    assert_eq!(o.status.code(), Some(2));
+    let err = text(&o.stderr);
+    assert!(
+        err.contains("output at the evaluated setting is 0"),
+        "{err}"
+    );
+    assert!(!out.exists());
+}

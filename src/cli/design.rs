@@ -23,7 +23,8 @@ pub struct Args {
     /// Write a SPICE netlist of the design (DC load sweep from open circuit to short).
     #[arg(long, value_name = "OUT.cir")]
     pub netlist: Option<PathBuf>,
-    /// Simulate the design with ngspice and print the simulated knee beside the model's.
+    /// Simulate the design with ngspice and print the simulated knee beside the model's
+    /// (with --json the comparison goes to stderr).
     #[arg(long)]
     pub simulate: bool,
     /// Save the simulated V-I curve as CSV (implies --simulate).
@@ -73,8 +74,10 @@ fn spice_steps(args: &Args, d: &Design, e: &design::Expectation) -> anyhow::Resu
             spice::ModelMode::Matched
         },
     };
+    let usage =
+        |e: &dyn std::fmt::Display| super::CodedError::new(super::EXIT_USAGE, e.to_string());
     if let Some(path) = &args.netlist {
-        let n = spice::build(d, &opts)?;
+        let n = spice::build(d, &opts).map_err(|e| usage(&e))?;
         std::fs::write(path, &n.text)
             .with_context(|| format!("writing the netlist {}", path.display()))?;
         eprintln!("netlist written to {}", path.display());
@@ -91,6 +94,7 @@ fn spice_steps(args: &Args, d: &Design, e: &design::Expectation) -> anyhow::Resu
             );
             return Ok(());
         }
+        Err(err @ spice::SpiceError::Netlist(_)) => return Err(usage(&err).into()),
         Err(err) => return Err(err).context("simulating the design with ngspice"),
     };
     let rows = spice::compare(e, &sim.summary);
