@@ -257,8 +257,8 @@ pub fn render_comparison(
     )?;
     writeln!(
         w,
-        "  {:<26}{:>10}   {:^24}   {:>10}   {:>10}",
-        "", "model", "model worst case", "simulated", "difference"
+        "  {:<26}{:>10}   {:^24}   {:^24}   {:>10}   {:>10}",
+        "", "model", "worst case", "Monte Carlo (+-3 sigma)", "simulated", "difference"
     )?;
     for r in rows {
         let (sim, diff) = match (r.simulated, r.difference_pct) {
@@ -271,11 +271,13 @@ pub fn render_comparison(
         };
         writeln!(
             w,
-            "  {:<26}{:>10}   {:>10} .. {:<10}   {:>10}   {:>10}{}",
+            "  {:<26}{:>10}   {:>10} .. {:<10}   {:>10} .. {:<10}   {:>10}   {:>10}{}",
             r.quantity,
             eng(r.model.nominal, &r.unit),
             eng(r.model.worst_case.min, &r.unit),
             eng(r.model.worst_case.max, &r.unit),
+            eng(r.model.monte_carlo.p_low, &r.unit),
+            eng(r.model.monte_carlo.p_high, &r.unit),
             sim,
             diff,
             inside
@@ -400,6 +402,64 @@ mod tests {
         let e = parse_curve_csv("current [A],voltage [V]\n1,2\n3,x\n", "f.csv").unwrap_err();
         assert!(e.to_string().contains("f.csv:3"), "{e}");
         assert!(parse_curve_csv("a,b\n", "f.csv").is_err());
+    }
+
+    #[test]
+    fn comparison_table_rows_read_model_bands_simulation_and_difference() {
+        use crate::design::{Interval, McStats};
+        let band = Band {
+            nominal: 2.0,
+            worst_case: Interval { min: 1.8, max: 2.2 },
+            monte_carlo: McStats {
+                samples: 10,
+                mean: 2.0,
+                sigma: 0.03,
+                p_low: 1.9,
+                p_high: 2.1,
+            },
+        };
+        let rows = vec![
+            CompareRow {
+                quantity: "short-circuit current".into(),
+                unit: "A".into(),
+                model: band,
+                simulated: Some(2.05),
+                difference_pct: Some(diff_pct(2.05, 2.0)),
+            },
+            CompareRow {
+                quantity: "limit knee (two-line fit)".into(),
+                unit: "A".into(),
+                model: band,
+                simulated: Some(2.5),
+                difference_pct: Some(diff_pct(2.5, 2.0)),
+            },
+        ];
+        let notes = [crate::spice::Departure {
+            text: "clamp current".into(),
+            knee_pct: Some(0.5),
+            short_circuit_pct: Some(0.75),
+        }];
+        let mut buf = Vec::new();
+        render_comparison(&mut buf, "ngspice-39", "matched", &rows, &notes).expect("render");
+        let text = String::from_utf8(buf).expect("utf8");
+        let lines: Vec<&str> = text.lines().collect();
+        assert_eq!(
+            lines[0],
+            "simulated with ngspice-39 (matched; DC sweep, no self-heating)"
+        );
+        assert_eq!(
+            lines[2],
+            "  short-circuit current         2.00 A       1.80 A .. 2.20 A           1.90 A .. 2.10 A           2.05 A       +2.5 %"
+        );
+        assert!(
+            lines[3].ends_with("+25.0 %  outside the worst-case band"),
+            "{}",
+            lines[3]
+        );
+        assert_eq!(
+            lines[4],
+            "  note: clamp current (about +0.5 % on the knee, +0.8 % on the short-circuit current)"
+        );
     }
 
     #[test]
