@@ -143,18 +143,18 @@ impl Ngspice {
         let mut out_pipe = child.stdout.take();
         let mut err_pipe = child.stderr.take();
         let out_t = std::thread::spawn(move || {
-            let mut s = String::new();
+            let mut b = Vec::new();
             if let Some(p) = out_pipe.as_mut() {
-                let _ = p.read_to_string(&mut s);
+                let _ = p.read_to_end(&mut b);
             }
-            s
+            String::from_utf8_lossy(&b).into_owned()
         });
         let err_t = std::thread::spawn(move || {
-            let mut s = String::new();
+            let mut b = Vec::new();
             if let Some(p) = err_pipe.as_mut() {
-                let _ = p.read_to_string(&mut s);
+                let _ = p.read_to_end(&mut b);
             }
-            s
+            String::from_utf8_lossy(&b).into_owned()
         });
         let start = Instant::now();
         let status = loop {

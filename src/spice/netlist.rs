@@ -565,6 +565,11 @@ fn render(
                 num(MATCH_TEMP_C)
             );
             w!("*   file's drop at the current it carries at the designed limit:");
+            w!(
+                "*   (current gains BF: {} for the pass transistors, {} for a limiter transistor)",
+                num(PASS_BETA),
+                num(LIMITER_BETA)
+            );
             for j in models {
                 w!(
                     "*   {:<7} {} V at {} A: {}",
