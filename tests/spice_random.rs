@@ -5,8 +5,6 @@
 //! prints, within 0.5 percentage point. Catches false operating points and netlist mistakes
 //! that a handful of hand-picked designs could miss.
 
-mod spice_designs;
-
 use regulus::design::{expect_with, Design};
 use regulus::rng::Rng;
 use regulus::spice::{self, diff_pct, NetlistOptions, Ngspice, Simulator};
