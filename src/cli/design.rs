@@ -20,7 +20,7 @@ pub struct Args {
     /// Monte Carlo seed (overrides the design file's rules.seed).
     #[arg(long, value_name = "N")]
     pub seed: Option<u64>,
-    /// Write a SPICE netlist of the design (DC load sweep from open circuit to short).
+    /// Write a SPICE netlist of the design (a DC load sweep between a short and open circuit).
     #[arg(long, value_name = "OUT.cir")]
     pub netlist: Option<PathBuf>,
     /// Simulate the design with ngspice and print the simulated knee beside the model's
