@@ -16,5 +16,6 @@ pub mod record;
 pub mod rng;
 pub mod runner;
 pub mod sim;
+pub mod spice;
 pub mod transport;
 pub mod units;

@@ -570,10 +570,21 @@ pub fn record_state(dir: &Path, info: &RunInfo) -> RecordState {
     if info.outcome != Outcome::Running {
         return RecordState::Finished(info.outcome);
     }
-    match File::open(dir.join(READINGS_FILE)) {
-        Ok(f) if lock::held_elsewhere(&f) => RecordState::Running,
-        _ => RecordState::Incomplete,
+    let Ok(f) = File::open(dir.join(READINGS_FILE)) else {
+        return RecordState::Incomplete;
+    };
+    // A process that forks (any program starting another) briefly shares the writer's open
+    // file, lock included, until the child execs: only a lock held on three looks spaced
+    // 20 ms apart is a live writer.
+    for look in 0..3 {
+        if look > 0 {
+            std::thread::sleep(std::time::Duration::from_millis(20));
+        }
+        if !lock::held_elsewhere(&f) {
+            return RecordState::Incomplete;
+        }
     }
+    RecordState::Running
 }
 
 /// Read run.json of a run folder.
