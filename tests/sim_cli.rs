@@ -102,3 +102,54 @@ fn sim_config_errors_exit_2() {
         .unwrap();
     assert_eq!(out.status.code(), Some(2));
 }
+
+#[test]
+fn sim_runs_until_interrupted_then_closes_its_ports() {
+    use std::io::{BufRead, BufReader};
+    use std::process::Stdio;
+    /// Ends the simulator if the test fails before interrupting it.
+    struct Guard(std::process::Child);
+    impl Drop for Guard {
+        fn drop(&mut self) {
+            let _ = self.0.kill();
+            let _ = self.0.wait();
+        }
+    }
+    let mut child = Guard(
+        regulus()
+            .args(["sim", "--design", &sample("teaching-lab-0-20v.toml")])
+            .args(["--transport", "tcp"])
+            .stdout(Stdio::piped())
+            .spawn()
+            .unwrap(),
+    );
+    let mut out = BufReader::new(child.0.stdout.take().unwrap());
+    let mut port = None;
+    let mut line = String::new();
+    while out.read_line(&mut line).unwrap() > 0 {
+        if line.trim_start().starts_with("dmm") {
+            port = line.split("tcp ").nth(1).map(|s| s.trim().to_string());
+        }
+        if line.contains("Ctrl-C") {
+            break;
+        }
+        line.clear();
+    }
+    let addr = port.expect("the meter's address is printed");
+    assert!(std::net::TcpStream::connect(&addr).is_ok());
+    // SIGINT, as Ctrl-C sends it.
+    let status = Command::new("kill")
+        .args(["-INT", &child.0.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(status.success());
+    let code = child.0.wait().unwrap().code();
+    let mut rest = String::new();
+    std::io::Read::read_to_string(&mut out, &mut rest).unwrap();
+    assert_eq!(code, Some(0), "{rest}");
+    assert!(rest.contains("ports closed"), "{rest}");
+    assert!(
+        std::net::TcpStream::connect(&addr).is_err(),
+        "port still open"
+    );
+}
