@@ -100,7 +100,7 @@ pub fn options(args: &Args) -> Result<SimOptions, CodedError> {
         opts = opts.without(kind);
     }
     for spec in &args.faults {
-        opts = opts.fault(Fault::parse(spec).map_err(|e| usage(format!("--fault {e}")))?);
+        opts = opts.fault(Fault::parse(spec).map_err(|e| usage(format!("--{e}")))?);
     }
     Ok(opts)
 }

@@ -144,7 +144,8 @@ impl UnitFault {
                 Ok(UnitFault::DiodeDelta(delta))
             }
             other => Err(format!(
-                "fault '{spec}': unknown unit fault '{other}' (sense, diodes, theta_sa, vref)"
+                "fault '{spec}': unknown unit fault '{other}' (sense, diodes, theta_sa, vref; \
+                 a port fault names its instrument, e.g. dmm:drop=3)"
             )),
         }
     }
