@@ -1,0 +1,132 @@
+//! Wall time of a whole plan on the simulated bench (target: within 10 % of the sum of its
+//! settle times and instrument latencies). A ten-point load sweep runs through the runner on an
+//! in-process simulated bench whose instruments all answer after 5 ms, over real
+//! pseudo-terminals and loopback TCP. Before criterion's own timing, the bench prints the
+//! budget computed from the plan and the bench, the measured mean wall time, and the overhead.
+//!
+//! Budget per point: settle + samples x (slowest meter's reply latency) + load-set latency.
+//! The meters are read concurrently (the query voltmeter and the thermometer answer one query
+//! each per sample; the streaming ammeter's lines are already buffered), so a sample costs one
+//! reply latency. Setting the load is two commands (mode, level) that have no reply, so the
+//! bench does not wait for them: their latency is 0 here, and the budget is also printed with
+//! the two commands counted at a full reply latency each, as a bound.
+
+use criterion::{criterion_group, criterion_main, Criterion};
+use regulus::bench::{Bench, BenchConfig};
+use regulus::design::{self, Design};
+use regulus::plan::{Action, DesignTargets, Plan};
+use regulus::record::{DesignRef, Snapshots};
+use regulus::runner::{self, CancelToken, RunSetup, Silent};
+use regulus::sim::instruments::InstrumentKind;
+use regulus::sim::{SimBench, SimOptions};
+use std::path::Path;
+use std::time::{Duration, Instant};
+
+const LATENCY: Duration = Duration::from_millis(5);
+
+const PLAN: &str = r#"
+name = "wall"
+settle = "20 ms"
+samples = 2
+
+[[step]]
+kind = "load_sweep"
+from = "0 A"
+to = "max_load"
+points = 10
+"#;
+
+/// Sum of settle times and reply latencies the plan must spend (seconds): (without the load's
+/// setting commands, with them counted at one reply latency each).
+fn budget(plan: &Plan) -> (f64, f64) {
+    let l = LATENCY.as_secs_f64();
+    let (mut lean, mut bound) = (0.0, 0.0);
+    for step in &plan.steps {
+        if let Action::Sweep { setpoints, .. } = &step.action {
+            let per_point = step.settle.as_secs_f64() + step.samples as f64 * l;
+            lean += setpoints.len() as f64 * per_point;
+            bound += setpoints.len() as f64 * (per_point + 2.0 * l);
+        }
+    }
+    (lean, bound)
+}
+
+fn bench(c: &mut Criterion) {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("samples/teaching-lab-0-20v.toml");
+    let d = Design::load(&path).expect("sample design loads");
+    let targets = DesignTargets::from_design(&d, &design::expect(&d));
+    let plan = Plan::parse(PLAN, "wall.toml", &targets).expect("plan parses");
+    let opts = SimOptions::default()
+        .seed(7)
+        .latency(LATENCY)
+        .without(InstrumentKind::Source);
+    let sim = SimBench::start(&d, opts).expect("simulated bench starts");
+    let dir = tempfile::tempdir().expect("temp dir");
+    let bench_path = dir.path().join("bench.toml");
+    std::fs::write(&bench_path, sim.bench_toml()).expect("bench file written");
+    let cfg = BenchConfig::load(&bench_path).expect("bench file loads");
+    let records = dir.path().join("records");
+    let rt = tokio::runtime::Builder::new_multi_thread()
+        .worker_threads(2)
+        .enable_all()
+        .build()
+        .expect("runtime");
+    let mut bench = rt.block_on(Bench::open(&cfg)).expect("bench opens");
+    let design_ref = DesignRef {
+        path: path.display().to_string(),
+        sha256: String::new(),
+        name: d.design.name.clone(),
+    };
+    let mut run_once = || {
+        let setup = RunSetup {
+            records: &records,
+            unit: "WALL-0001".to_string(),
+            operator: None,
+            note: None,
+            design: design_ref.clone(),
+            snapshots: Snapshots {
+                design: b"",
+                bench: b"",
+                plan: PLAN.as_bytes(),
+            },
+        };
+        let report = rt
+            .block_on(runner::run(
+                &mut bench,
+                &plan,
+                setup,
+                &mut Silent,
+                &CancelToken::new(),
+            ))
+            .expect("run starts");
+        assert_eq!(report.rows, 10, "{:?}", report.reason);
+    };
+
+    let (lean, bound) = budget(&plan);
+    let runs = 5;
+    let t0 = Instant::now();
+    for _ in 0..runs {
+        run_once();
+    }
+    let wall = t0.elapsed().as_secs_f64() / runs as f64;
+    println!(
+        "plan wall time {:.1} ms; settle + latency budget {:.1} ms (overhead {:+.1} %), \
+         {:.1} ms with load-set commands at one latency each (overhead {:+.1} %)",
+        wall * 1e3,
+        lean * 1e3,
+        100.0 * (wall / lean - 1.0),
+        bound * 1e3,
+        100.0 * (wall / bound - 1.0)
+    );
+
+    let mut g = c.benchmark_group("run_wall");
+    g.sample_size(10);
+    g.bench_function(
+        "10-point load sweep, 20 ms settle, 2 samples, 5 ms latency",
+        |b| b.iter(&mut run_once),
+    );
+    g.finish();
+}
+
+criterion_group!(benches, bench);
+criterion_main!(benches);
