@@ -15,8 +15,9 @@
 //! junctions, so as the pass device warms (about 3 degC in a two-second search) its V_BE falls
 //! about 2 mV/degC per junction (common practice for silicon junctions) and the clamp's
 //! threshold, and with it the limit current, rises by 1..2 % (measured here: +1.5 %). The cold
-//! `Truth` is therefore not the value to compare with. What is comparable is the same unit's characteristic at the junction temperatures the
-//! search ended with, read at the search's own threshold voltage: the test rebuilds the unit
+//! `Truth` is therefore not the value to compare with. What is comparable is the same unit's
+//! characteristic at the junction temperatures the search ended with, read at the search's own
+//! threshold voltage: the test rebuilds the unit
 //! from the same seed (`SimUnit::build`, checked equal through `truth()`), sets those junction
 //! temperatures and asks it for the current at that voltage. That is checked to 0.5 %; the cold
 //! knee is checked to 3 % and its sign (warmer pass device, higher limit) for the diode string.
