@@ -218,9 +218,16 @@ fn load_port_closing_mid_run_aborts_and_switches_the_source_off() {
     assert!(reason.contains("instrument failure"), "{reason}");
     assert!(reason.contains("eload"), "{reason}");
     assert!(rec.rows.len() < 400);
-    // The load is gone, so the source is what removes power from the unit.
+    // The load is gone, so the source is what removes power from the unit; the load's input
+    // could not be switched off, and the reason tells the operator to check by hand.
     let (_, _, c) = rig.sim.state();
     assert!(!c.source.output_on, "source output left on");
+    assert!(
+        c.load.input_on,
+        "the closed load port cannot have taken INP OFF"
+    );
+    assert!(reason.contains("safe state incomplete"), "{reason}");
+    assert!(reason.contains("INP OFF"), "{reason}");
 }
 
 #[test]
