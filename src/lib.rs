@@ -4,10 +4,13 @@
 //! Pure modules (design, protocol parsing, plan expansion, analysis, comparison) do no I/O;
 //! transports, instruments, the runner and the record writer sit at the edges.
 
+pub mod analysis;
 pub mod cli;
+pub mod compare;
 pub mod control;
 pub mod design;
 pub mod measure;
 pub mod record;
+pub mod report;
 pub mod rng;
 pub mod units;

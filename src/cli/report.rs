@@ -1,9 +1,188 @@
-//! `regulus report`: not yet written.
+//! `regulus report RECORD`: regenerate a record's summary.json, plots and report.html, compared
+//! with the record's design snapshot (or another design file). Exit 1 on a failing verdict.
+
+use super::{CodedError, EXIT_FAIL, EXIT_OK, EXIT_USAGE};
+use analysis_args::AnalysisArgs;
+use anyhow::Context;
+use std::path::{Path, PathBuf};
 
 /// Options of `regulus report`.
 #[derive(Debug, clap::Args)]
-pub struct Args {}
+pub struct Args {
+    /// Record folder: <records>/<unit>/<UTC stamp>_<plan>.
+    pub record: PathBuf,
+    /// Design file to judge against (default: the record's design.toml snapshot).
+    #[arg(long, value_name = "FILE")]
+    pub design: Option<PathBuf>,
+    /// Write metrics only, without comparing against a design.
+    #[arg(long, conflicts_with = "design")]
+    pub no_design: bool,
+    /// Also write PNG plots beside the SVG plots.
+    #[arg(long)]
+    pub png: bool,
+    #[command(flatten)]
+    pub analysis: AnalysisArgs,
+}
 
-pub fn run(_args: Args) -> anyhow::Result<u8> {
-    Err(super::CodedError::new(super::EXIT_USAGE, "`regulus report` is not available yet").into())
+/// Analysis settings shared by `report`, `history` and `compare`.
+pub mod analysis_args {
+    use crate::analysis::{AnalysisOptions, RegulationReference};
+
+    /// Denominator of load regulation.
+    #[derive(Debug, Clone, Copy, clap::ValueEnum)]
+    pub enum ReferenceArg {
+        FullLoad,
+        NoLoad,
+        Nominal,
+    }
+
+    #[derive(Debug, Clone, clap::Args)]
+    pub struct AnalysisArgs {
+        /// Fixed-drop knee criterion: percent below the no-load voltage.
+        #[arg(long, value_name = "PERCENT", default_value_t = 2.0)]
+        pub knee_drop: f64,
+        /// Denominator of load regulation.
+        #[arg(long, value_enum, default_value = "full-load")]
+        pub regulation_reference: ReferenceArg,
+        /// Rated full-load current in amperes (default: the last regulating sweep point).
+        #[arg(long, value_name = "AMPERES")]
+        pub full_load: Option<f64>,
+    }
+
+    impl AnalysisArgs {
+        /// Checked analysis options, or a message saying what to fix.
+        pub fn options(&self) -> Result<AnalysisOptions, String> {
+            if !(self.knee_drop > 0.0 && self.knee_drop < 50.0) {
+                return Err(format!(
+                    "--knee-drop {} is out of range: give a percentage between 0 and 50 (default 2)",
+                    self.knee_drop
+                ));
+            }
+            if let Some(i) = self.full_load {
+                if !(i > 0.0 && i.is_finite()) {
+                    return Err(format!(
+                        "--full-load {i} must be a positive current in amperes"
+                    ));
+                }
+            }
+            Ok(AnalysisOptions {
+                knee_drop: self.knee_drop / 100.0,
+                reference: match self.regulation_reference {
+                    ReferenceArg::FullLoad => RegulationReference::FullLoad,
+                    ReferenceArg::NoLoad => RegulationReference::NoLoad,
+                    ReferenceArg::Nominal => RegulationReference::Nominal,
+                },
+                full_load_current: self.full_load,
+                ..AnalysisOptions::default()
+            })
+        }
+    }
+}
+
+/// Load a design file and compute the expectation the comparison needs.
+pub fn load_expectation(path: &Path) -> anyhow::Result<crate::compare::DesignExpectation> {
+    Err(CodedError::new(
+        EXIT_USAGE,
+        format!(
+            "{}: judging against a design needs the design model, which this build lacks; \
+             use --no-design for metrics only",
+            path.display()
+        ),
+    )
+    .into())
+}
+
+/// The unit folder and records root of a record folder.
+pub fn unit_and_root(record: &Path) -> Option<(String, PathBuf)> {
+    let unit_dir = record.parent()?;
+    let unit = unit_dir.file_name()?.to_string_lossy().into_owned();
+    let root = unit_dir.parent()?.to_path_buf();
+    Some((unit, root))
+}
+
+pub fn run(args: Args) -> anyhow::Result<u8> {
+    let aopts = args
+        .analysis
+        .options()
+        .map_err(|m| CodedError::new(EXIT_USAGE, m))?;
+    if !args.record.join("run.json").is_file() {
+        return Err(CodedError::new(
+            EXIT_USAGE,
+            format!(
+                "{}: not a record folder (no run.json); give <records>/<unit>/<stamp>_<plan>",
+                args.record.display()
+            ),
+        )
+        .into());
+    }
+    let exp = if args.no_design {
+        None
+    } else {
+        let path = args
+            .design
+            .clone()
+            .unwrap_or_else(|| args.record.join("design.toml"));
+        Some(load_expectation(&path)?)
+    };
+    let info = crate::report::load_run_info(&args.record)?;
+    // Earlier records of the same unit, for drift flags.
+    let earlier = match unit_and_root(&args.record) {
+        Some((unit, root)) => crate::report::history(&root, &unit, &aopts)
+            .map(|h| {
+                h.entries
+                    .into_iter()
+                    .filter(|e| e.started_utc < info.started_utc)
+                    .collect()
+            })
+            .unwrap_or_default(),
+        None => Vec::new(),
+    };
+    let opts = crate::report::ReportOptions {
+        analysis: aopts,
+        earlier,
+        png: args.png,
+    };
+    let written = crate::report::write_report(&args.record, exp.as_ref(), &opts)
+        .with_context(|| format!("writing the report of {}", args.record.display()))?;
+    let mut out = std::io::stdout().lock();
+    print_outcome(&mut out, &written)?;
+    Ok(match written.summary.verdict {
+        Some(crate::compare::Verdict::Fail) => EXIT_FAIL,
+        _ => EXIT_OK,
+    })
+}
+
+fn print_outcome<W: std::io::Write>(
+    mut w: W,
+    written: &crate::report::Written,
+) -> std::io::Result<()> {
+    let s = &written.summary;
+    if let Some(c) = &s.comparison {
+        for ch in &c.checks {
+            writeln!(
+                w,
+                "{:<22} {:>10}  nominal {:>10}  worst case {} .. {}  {}",
+                ch.metric,
+                crate::units::eng(ch.measured, &ch.unit),
+                crate::units::eng(ch.nominal, &ch.unit),
+                crate::units::eng(ch.worst_case.min, &ch.unit),
+                crate::units::eng(ch.worst_case.max, &ch.unit),
+                ch.verdict.as_str().to_uppercase()
+            )?;
+        }
+        for cause in &c.likely_causes {
+            writeln!(w, "likely cause: {cause}")?;
+        }
+    }
+    for f in &s.drift {
+        writeln!(w, "DRIFT: {}", f.message)?;
+    }
+    match s.verdict {
+        Some(v) => writeln!(w, "verdict: {}", v.as_str().to_uppercase())?,
+        None => writeln!(w, "no design given: metrics only")?,
+    }
+    for f in &written.files {
+        writeln!(w, "wrote {}", f.display())?;
+    }
+    Ok(())
 }

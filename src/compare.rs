@@ -1,0 +1,763 @@
+//! Judging metrics: against the design's expectation (pass / marginal / fail with margins, and
+//! likely causes found by fitting the design's limit model to the measurement), against the
+//! unit's own earlier records (drift over dates), and across units of one design (outliers by
+//! z-score, Cpk). Pure: values in, verdicts out. This module must not read files or print.
+//!
+//! The expectation is held in [`DesignExpectation`], a small local view of the design model's
+//! bands so the comparison does not depend on how the design is computed; the design module
+//! converts into it.
+
+use crate::analysis::Metrics;
+use serde::{Deserialize, Serialize};
+
+/// Lower and upper limit of a band.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Limits {
+    pub min: f64,
+    pub max: f64,
+}
+
+/// Monte Carlo spread of a quantity: mean, standard deviation and the low/high percentiles.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct MonteCarlo {
+    pub mean: f64,
+    pub sigma: f64,
+    pub p_low: f64,
+    pub p_high: f64,
+}
+
+/// What the design expects of one quantity.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct ExpectedBand {
+    pub nominal: f64,
+    pub worst_case: Limits,
+    pub monte_carlo: MonteCarlo,
+}
+
+/// How the current limit is made, with nominal element values (for likely causes).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Clamp {
+    /// Transistor limiter: I_lim = V_BE / R_sense.
+    Transistor { v_be: f64 },
+    /// Diode string: V_sense = n V_F - m V_BE.
+    DiodeString {
+        diodes: u32,
+        v_f: f64,
+        pass_junctions: u32,
+        v_be: f64,
+    },
+    /// Foldback limiter with divider ratio k: I_sc = V_BE / (k R_sense).
+    Foldback { v_be: f64, k: f64 },
+}
+
+impl Clamp {
+    /// The sense voltage at which the clamp holds the limit (for foldback: at short circuit).
+    pub fn sense_voltage(&self) -> f64 {
+        match *self {
+            Clamp::Transistor { v_be } => v_be,
+            Clamp::DiodeString {
+                diodes,
+                v_f,
+                pass_junctions,
+                v_be,
+            } => diodes as f64 * v_f - pass_junctions as f64 * v_be,
+            Clamp::Foldback { v_be, k } => v_be / k,
+        }
+    }
+}
+
+/// The limit model: sense resistance and clamp.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct LimitModel {
+    pub sense_ohms: f64,
+    pub clamp: Clamp,
+}
+
+/// The design's expectation as the comparison needs it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DesignExpectation {
+    pub design_name: String,
+    pub vout: ExpectedBand,
+    pub limit_current: ExpectedBand,
+    pub short_circuit_current: Option<ExpectedBand>,
+    pub limit: Option<LimitModel>,
+}
+
+/// Pass: inside the Monte Carlo band. Marginal: inside the worst case, outside the Monte
+/// Carlo band. Fail: outside the worst case.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Verdict {
+    Pass,
+    Marginal,
+    Fail,
+}
+
+impl Verdict {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Verdict::Pass => "pass",
+            Verdict::Marginal => "marginal",
+            Verdict::Fail => "fail",
+        }
+    }
+}
+
+/// One metric checked against its band.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Check {
+    pub metric: String,
+    pub unit: String,
+    pub measured: f64,
+    pub nominal: f64,
+    pub worst_case: Limits,
+    pub monte_carlo_band: Limits,
+    pub verdict: Verdict,
+    /// Distance to the nearer worst-case limit, positive inside, in the metric's unit.
+    pub margin: f64,
+    /// The margin as a percentage of the nominal value.
+    pub margin_percent: f64,
+    /// (measured - nominal) / nominal * 100.
+    pub deviation_percent: f64,
+}
+
+/// Judge one value against a band.
+pub fn check(metric: &str, unit: &str, measured: f64, band: &ExpectedBand) -> Check {
+    let wc = band.worst_case;
+    let mc = Limits {
+        min: band.monte_carlo.p_low,
+        max: band.monte_carlo.p_high,
+    };
+    let verdict = if measured < wc.min || measured > wc.max || !measured.is_finite() {
+        Verdict::Fail
+    } else if measured < mc.min || measured > mc.max {
+        Verdict::Marginal
+    } else {
+        Verdict::Pass
+    };
+    let margin = (measured - wc.min).min(wc.max - measured);
+    let pct = |x: f64| {
+        if band.nominal != 0.0 {
+            x / band.nominal.abs() * 100.0
+        } else {
+            0.0
+        }
+    };
+    Check {
+        metric: metric.to_string(),
+        unit: unit.to_string(),
+        measured,
+        nominal: band.nominal,
+        worst_case: wc,
+        monte_carlo_band: mc,
+        verdict,
+        margin,
+        margin_percent: pct(margin),
+        deviation_percent: pct(measured - band.nominal),
+    }
+}
+
+/// The comparison of one record with a design.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Comparison {
+    pub design_name: String,
+    pub checks: Vec<Check>,
+    /// Worst verdict of all checks (pass when nothing could be checked).
+    pub verdict: Verdict,
+    pub likely_causes: Vec<String>,
+    /// Metrics the design specifies but the record lacks.
+    pub not_measured: Vec<String>,
+}
+
+/// Short-circuit drift over the dwell beyond which heating is named as a likely cause (5 %,
+/// common practice for a bench check; the junction drop moves about 2 mV per degC).
+pub const HEATING_DRIFT_PERCENT: f64 = 5.0;
+
+/// Compare a record's metrics with the design's expectation.
+pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
+    let mut checks = Vec::new();
+    let mut not_measured = Vec::new();
+    match metrics.no_load {
+        Some(p) => checks.push(check("output_voltage", "V", p.voltage, &exp.vout)),
+        None => not_measured.push("output_voltage".to_string()),
+    }
+    match metrics.limit_current() {
+        Some(i) => checks.push(check("limit_current", "A", i, &exp.limit_current)),
+        None => not_measured.push("limit_current".to_string()),
+    }
+    if let Some(band) = &exp.short_circuit_current {
+        match &metrics.short_circuit {
+            Some(sc) => checks.push(check("short_circuit_current", "A", sc.start_current, band)),
+            None => not_measured.push("short_circuit_current".to_string()),
+        }
+    }
+    let verdict = checks
+        .iter()
+        .map(|c| c.verdict)
+        .max()
+        .unwrap_or(Verdict::Pass);
+    let likely_causes = likely_causes(metrics, exp, &checks);
+    Comparison {
+        design_name: exp.design_name.clone(),
+        checks,
+        verdict,
+        likely_causes,
+        not_measured,
+    }
+}
+
+/// IEC 60063 E12 and E24 decade values, as two-digit mantissas (tables, not formulas).
+const E12: [u32; 12] = [10, 12, 15, 18, 22, 27, 33, 39, 47, 56, 68, 82];
+const E24: [u32; 24] = [
+    10, 11, 12, 13, 15, 16, 18, 20, 22, 24, 27, 30, 33, 36, 39, 43, 47, 51, 56, 62, 68, 75, 82, 91,
+];
+
+/// The preferred value nearest to `value` (by ratio), from E12 when one lies within
+/// `tolerance`, otherwise from E24. The one place that knows the E-series tables here; to be
+/// replaced by the design module's E-series functions.
+pub fn nearest_preferred(value: f64, tolerance: f64) -> Option<f64> {
+    if !(value > 0.0 && value.is_finite()) {
+        return None;
+    }
+    let nearest = |table: &[u32]| -> f64 {
+        let e = value.log10().floor() as i32;
+        let mut best = f64::NAN;
+        let mut best_err = f64::INFINITY;
+        for exp in [e - 1, e, e + 1] {
+            for v in table {
+                // Mantissa 47 at exponent -1 is 47 / 100: an integer over a power of ten
+                // rounds once, so the result is the closest double to 0.47.
+                let p = exp - 1;
+                let c = if p >= 0 {
+                    *v as f64 * 10f64.powi(p)
+                } else {
+                    *v as f64 / 10f64.powi(-p)
+                };
+                let err = (value / c).ln().abs();
+                if err < best_err {
+                    best_err = err;
+                    best = c;
+                }
+            }
+        }
+        best
+    };
+    let e12 = nearest(&E12);
+    if (value / e12 - 1.0).abs() <= tolerance {
+        return Some(e12);
+    }
+    let e24 = nearest(&E24);
+    ((value / e24 - 1.0).abs() <= tolerance).then_some(e24)
+}
+
+/// Relative tolerance within which a fitted element value is said to match a preferred value
+/// or a junction count (4 %: under half the gap between E24 neighbours; project choice).
+pub const MATCH_TOLERANCE: f64 = 0.04;
+
+fn fmt_ohms(r: f64) -> String {
+    let s = format!("{:.3}", r);
+    let s = s.trim_end_matches('0').trim_end_matches('.').to_string();
+    format!("{s} ohm")
+}
+
+/// Likely causes of a limit that is off: the measured limit read through the design's limit
+/// model as an effective sense resistance or clamp voltage, named as a neighbouring preferred
+/// resistor or a junction more or fewer when one matches; and heating during the dwell.
+pub fn likely_causes(metrics: &Metrics, exp: &DesignExpectation, checks: &[Check]) -> Vec<String> {
+    let mut out = Vec::new();
+    let limit_check = checks.iter().find(|c| c.metric == "limit_current");
+    let sc_check = checks.iter().find(|c| c.metric == "short_circuit_current");
+    if let Some(model) = exp.limit {
+        // For foldback the short-circuit current reads the clamp most directly.
+        let (check, nominal_current) = match model.clamp {
+            Clamp::Foldback { .. } => (sc_check.or(limit_check), None),
+            _ => (limit_check, Some(exp.limit_current.nominal)),
+        };
+        if let Some(c) = check.filter(|c| c.verdict != Verdict::Pass && c.measured > 0.0) {
+            let i_nom = nominal_current.unwrap_or(c.nominal);
+            let v_sense = i_nom * model.sense_ohms;
+            let r_eff = v_sense / c.measured;
+            let v_eff = c.measured * model.sense_ohms;
+            let dev = (c.measured / i_nom - 1.0) * 100.0;
+            let dir = if dev < 0.0 { "low" } else { "high" };
+            out.push(format!(
+                "{} {:.0} % {dir}: implies an effective sense resistance of {} (design {}) or a \
+                 clamp voltage of {:.3} V (design {:.3} V)",
+                c.metric.replace('_', " "),
+                dev.abs(),
+                fmt_ohms(r_eff),
+                fmt_ohms(model.sense_ohms),
+                v_eff,
+                v_sense
+            ));
+            if let Some(pref) = nearest_preferred(r_eff, MATCH_TOLERANCE) {
+                if (pref / model.sense_ohms - 1.0).abs() > 0.01 {
+                    out.push(format!(
+                        "{} {:.0} % {dir}: matches a {} sense resistor fitted instead of {}",
+                        c.metric.replace('_', " "),
+                        dev.abs(),
+                        fmt_ohms(pref),
+                        fmt_ohms(model.sense_ohms)
+                    ));
+                }
+            }
+            if let Clamp::DiodeString {
+                diodes,
+                v_f,
+                pass_junctions,
+                v_be,
+            } = model.clamp
+            {
+                for (delta, word) in [(1i64, "more"), (-1i64, "fewer")] {
+                    let n = diodes as i64 + delta;
+                    if n < 1 {
+                        continue;
+                    }
+                    let v_alt = n as f64 * v_f - pass_junctions as f64 * v_be;
+                    if v_alt > 0.0 && (v_eff / v_alt - 1.0).abs() <= MATCH_TOLERANCE {
+                        out.push(format!(
+                            "clamp voltage {:.3} V matches one junction {word} in the diode \
+                             string ({n} diodes instead of {diodes}: {:.3} V)",
+                            v_eff, v_alt
+                        ));
+                    }
+                }
+            }
+        }
+    }
+    if let Some(sc) = &metrics.short_circuit {
+        if sc.drift_percent.abs() > HEATING_DRIFT_PERCENT {
+            let tau = sc
+                .time_constant
+                .map(|f| format!(" with a time constant of {:.1} s", f.tau_s))
+                .unwrap_or_default();
+            out.push(format!(
+                "short-circuit current moved {:+.1} % over the {:.0} s dwell{tau}: junction \
+                 heating (junction drops fall about 2 mV per degC)",
+                sc.drift_percent, sc.dwell_s
+            ));
+        }
+    }
+    out
+}
+
+// ---------------------------------------------------------------------------------------
+// Drift across records and units
+// ---------------------------------------------------------------------------------------
+
+/// A key metric tracked over dates and across units.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum KeyMetric {
+    OutputVoltage,
+    LoadRegulation,
+    OutputResistance,
+    LimitCurrent,
+    ShortCircuitCurrent,
+    ShortCircuitDrift,
+}
+
+/// How large a change between records is flagged.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Threshold {
+    /// Fraction of the earlier value.
+    Relative(f64),
+    /// Absolute change in the metric's unit.
+    Absolute(f64),
+}
+
+impl KeyMetric {
+    pub const ALL: [KeyMetric; 6] = [
+        KeyMetric::OutputVoltage,
+        KeyMetric::LoadRegulation,
+        KeyMetric::OutputResistance,
+        KeyMetric::LimitCurrent,
+        KeyMetric::ShortCircuitCurrent,
+        KeyMetric::ShortCircuitDrift,
+    ];
+    pub fn as_str(self) -> &'static str {
+        match self {
+            KeyMetric::OutputVoltage => "output_voltage",
+            KeyMetric::LoadRegulation => "load_regulation",
+            KeyMetric::OutputResistance => "output_resistance",
+            KeyMetric::LimitCurrent => "limit_current",
+            KeyMetric::ShortCircuitCurrent => "short_circuit_current",
+            KeyMetric::ShortCircuitDrift => "short_circuit_drift",
+        }
+    }
+    pub fn unit(self) -> &'static str {
+        match self {
+            KeyMetric::OutputVoltage => "V",
+            KeyMetric::LoadRegulation | KeyMetric::ShortCircuitDrift => "%",
+            KeyMetric::OutputResistance => "ohm",
+            KeyMetric::LimitCurrent | KeyMetric::ShortCircuitCurrent => "A",
+        }
+    }
+    /// Default change flagged between one record and the next (project choice: 1 % on the
+    /// output voltage, 5 % on currents, 0.5 percentage points on regulation and drift,
+    /// 50 % on the small and noisy output resistance).
+    pub fn default_threshold(self) -> Threshold {
+        match self {
+            KeyMetric::OutputVoltage => Threshold::Relative(0.01),
+            KeyMetric::LoadRegulation => Threshold::Absolute(0.5),
+            KeyMetric::OutputResistance => Threshold::Relative(0.5),
+            KeyMetric::LimitCurrent | KeyMetric::ShortCircuitCurrent => Threshold::Relative(0.05),
+            KeyMetric::ShortCircuitDrift => Threshold::Absolute(5.0),
+        }
+    }
+    /// The metric's value in a record's metrics.
+    pub fn value(self, m: &Metrics) -> Option<f64> {
+        match self {
+            KeyMetric::OutputVoltage => m.no_load.map(|p| p.voltage),
+            KeyMetric::LoadRegulation => m.load_regulation.map(|r| r.percent),
+            KeyMetric::OutputResistance => m.output_resistance.map(|r| r.ohms),
+            KeyMetric::LimitCurrent => m.limit_current(),
+            KeyMetric::ShortCircuitCurrent => m.short_circuit.map(|s| s.start_current),
+            KeyMetric::ShortCircuitDrift => m.short_circuit.map(|s| s.drift_percent),
+        }
+    }
+}
+
+/// Key metric values of one record, in [`KeyMetric::ALL`] order (serialized as a map).
+#[derive(Debug, Clone, PartialEq)]
+pub struct KeyValues(pub Vec<(KeyMetric, Option<f64>)>);
+
+impl Serialize for KeyValues {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::SerializeMap;
+        let mut m = s.serialize_map(Some(self.0.len()))?;
+        for (k, v) in &self.0 {
+            m.serialize_entry(k.as_str(), v)?;
+        }
+        m.end()
+    }
+}
+
+impl KeyValues {
+    pub fn from_metrics(m: &Metrics) -> KeyValues {
+        KeyValues(KeyMetric::ALL.iter().map(|k| (*k, k.value(m))).collect())
+    }
+    pub fn get(&self, k: KeyMetric) -> Option<f64> {
+        self.0.iter().find(|(m, _)| *m == k).and_then(|(_, v)| *v)
+    }
+}
+
+/// One dated record of a unit.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct HistoryEntry {
+    /// Record folder name (dated).
+    pub record: String,
+    /// Run start, RFC 3339 UTC.
+    pub started_utc: String,
+    pub outcome: String,
+    pub verdict: Option<Verdict>,
+    pub values: KeyValues,
+}
+
+/// A flagged change.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DriftFlag {
+    pub record: String,
+    pub metric: KeyMetric,
+    pub previous: f64,
+    pub value: f64,
+    /// value - previous, in the metric's unit.
+    pub change: f64,
+    pub message: String,
+}
+
+/// Flags where a key metric changed from one record to the next (entries sorted by date)
+/// beyond its threshold (`thresholds` overrides the defaults by metric).
+pub fn unit_drift(
+    entries: &[HistoryEntry],
+    thresholds: &[(KeyMetric, Threshold)],
+) -> Vec<DriftFlag> {
+    let mut flags = Vec::new();
+    for k in KeyMetric::ALL {
+        let th = thresholds
+            .iter()
+            .find(|(m, _)| *m == k)
+            .map(|(_, t)| *t)
+            .unwrap_or(k.default_threshold());
+        let mut prev: Option<f64> = None;
+        for e in entries {
+            let Some(v) = e.values.get(k) else { continue };
+            if let Some(p) = prev {
+                let change = v - p;
+                let beyond = match th {
+                    Threshold::Relative(f) => p != 0.0 && (change / p).abs() > f,
+                    Threshold::Absolute(a) => change.abs() > a,
+                };
+                if beyond {
+                    let rel = if p != 0.0 {
+                        format!(" ({:+.1} %)", change / p * 100.0)
+                    } else {
+                        String::new()
+                    };
+                    flags.push(DriftFlag {
+                        record: e.record.clone(),
+                        metric: k,
+                        previous: p,
+                        value: v,
+                        change,
+                        message: format!(
+                            "{} changed from {} to {}{rel} since the previous record",
+                            k.as_str(),
+                            crate::units::eng(p, k.unit()),
+                            crate::units::eng(v, k.unit())
+                        ),
+                    });
+                }
+            }
+            prev = Some(v);
+        }
+    }
+    flags
+}
+
+/// Default |z| beyond which a unit is an outlier among its design's units.
+pub const DEFAULT_OUTLIER_Z: f64 = 3.0;
+/// Fewest units for outlier flags (leave-one-out z needs a spread of the others).
+pub const MIN_UNITS_FOR_OUTLIERS: usize = 5;
+/// Fewest units before a Cpk is reported (project choice; a Cpk from fewer units is noise).
+pub const MIN_UNITS_FOR_CPK: usize = 10;
+
+/// One unit flagged as an outlier for one metric.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Outlier {
+    pub unit: String,
+    pub metric: KeyMetric,
+    pub value: f64,
+    /// Leave-one-out z-score: (x - mean of the others) / sd of the others.
+    pub z: f64,
+}
+
+/// Population statistics of one metric.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct MetricStats {
+    pub metric: KeyMetric,
+    pub n: usize,
+    pub mean: f64,
+    /// Sample standard deviation (n - 1).
+    pub sigma: f64,
+    pub spec: Option<Limits>,
+    pub cpk: Option<f64>,
+}
+
+/// Outliers and capability across units of one design.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Population {
+    pub stats: Vec<MetricStats>,
+    pub outliers: Vec<Outlier>,
+}
+
+/// Mean and sample standard deviation (n - 1).
+pub fn mean_sd(xs: &[f64]) -> Option<(f64, f64)> {
+    if xs.len() < 2 {
+        return None;
+    }
+    let n = xs.len() as f64;
+    let mean = xs.iter().sum::<f64>() / n;
+    let var = xs.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0);
+    Some((mean, var.sqrt()))
+}
+
+/// Process capability: Cpk = min(USL - mean, mean - LSL) / (3 sigma).
+pub fn cpk(mean: f64, sigma: f64, spec: Limits) -> Option<f64> {
+    (sigma > 0.0).then(|| (spec.max - mean).min(mean - spec.min) / (3.0 * sigma))
+}
+
+/// Outliers (leave-one-out |z| > `z_limit`) and Cpk per metric across units. `specs` gives
+/// spec limits per metric (usually the design's worst-case band).
+pub fn population(
+    units: &[(String, KeyValues)],
+    specs: &[(KeyMetric, Limits)],
+    z_limit: f64,
+) -> Population {
+    let mut stats = Vec::new();
+    let mut outliers = Vec::new();
+    for k in KeyMetric::ALL {
+        let vals: Vec<(&str, f64)> = units
+            .iter()
+            .filter_map(|(u, kv)| kv.get(k).map(|v| (u.as_str(), v)))
+            .filter(|(_, v)| v.is_finite())
+            .collect();
+        let xs: Vec<f64> = vals.iter().map(|v| v.1).collect();
+        let Some((mean, sigma)) = mean_sd(&xs) else {
+            continue;
+        };
+        let spec = specs.iter().find(|(m, _)| *m == k).map(|(_, l)| *l);
+        let cpk = match spec {
+            Some(s) if xs.len() >= MIN_UNITS_FOR_CPK => cpk(mean, sigma, s),
+            _ => None,
+        };
+        stats.push(MetricStats {
+            metric: k,
+            n: xs.len(),
+            mean,
+            sigma,
+            spec,
+            cpk,
+        });
+        if xs.len() >= MIN_UNITS_FOR_OUTLIERS {
+            for (i, (unit, x)) in vals.iter().enumerate() {
+                let others: Vec<f64> = xs
+                    .iter()
+                    .enumerate()
+                    .filter(|(j, _)| *j != i)
+                    .map(|(_, v)| *v)
+                    .collect();
+                if let Some((m, s)) = mean_sd(&others) {
+                    if s > 0.0 {
+                        let z = (x - m) / s;
+                        if z.abs() > z_limit {
+                            outliers.push(Outlier {
+                                unit: unit.to_string(),
+                                metric: k,
+                                value: *x,
+                                z,
+                            });
+                        }
+                    }
+                }
+            }
+        }
+    }
+    Population { stats, outliers }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn band(nominal: f64, wc: f64, mc: f64) -> ExpectedBand {
+        ExpectedBand {
+            nominal,
+            worst_case: Limits {
+                min: nominal * (1.0 - wc),
+                max: nominal * (1.0 + wc),
+            },
+            monte_carlo: MonteCarlo {
+                mean: nominal,
+                sigma: nominal * mc / 3.0,
+                p_low: nominal * (1.0 - mc),
+                p_high: nominal * (1.0 + mc),
+            },
+        }
+    }
+
+    #[test]
+    fn verdicts_follow_the_bands() {
+        let b = band(10.0, 0.10, 0.05);
+        assert_eq!(check("x", "V", 10.2, &b).verdict, Verdict::Pass);
+        assert_eq!(check("x", "V", 10.7, &b).verdict, Verdict::Marginal);
+        assert_eq!(check("x", "V", 11.2, &b).verdict, Verdict::Fail);
+        let c = check("x", "V", 10.7, &b);
+        assert!((c.margin - 0.3).abs() < 1e-9);
+        assert!((c.margin_percent - 3.0).abs() < 1e-9);
+        assert!((c.deviation_percent - 7.0).abs() < 1e-9);
+        assert!(check("x", "V", 11.2, &b).margin < 0.0);
+    }
+
+    #[test]
+    fn cpk_textbook_example() {
+        // Cpk = min(USL - mean, mean - LSL) / (3 sigma) (common definition).
+        // Data 9.9, 10.0, 10.1: mean 10.0, sample sigma 0.1; LSL 9.5, USL 10.6:
+        // min(0.6, 0.5) / 0.3 = 1.667.
+        let (m, s) = mean_sd(&[9.9, 10.0, 10.1]).unwrap();
+        assert!((m - 10.0).abs() < 1e-12 && (s - 0.1).abs() < 1e-12);
+        let c = cpk(
+            m,
+            s,
+            Limits {
+                min: 9.5,
+                max: 10.6,
+            },
+        )
+        .unwrap();
+        assert!((c - 5.0 / 3.0).abs() < 1e-9, "{c}");
+    }
+
+    #[test]
+    fn preferred_values_come_from_the_tables() {
+        assert_eq!(nearest_preferred(0.675, 0.04), Some(0.68));
+        assert_eq!(nearest_preferred(0.47, 0.04), Some(0.47));
+        // 0.51 lies in E24 only.
+        assert_eq!(nearest_preferred(0.512, 0.01), Some(0.51));
+        // 9.1 (E24) and 10 across the decade boundary.
+        assert_eq!(nearest_preferred(9.9, 0.04), Some(10.0));
+        assert_eq!(nearest_preferred(0.0, 0.04), None);
+        // 0.58 is 3.5 % from 0.56 and 6.5 % from 0.62; with 2 % nothing matches.
+        assert_eq!(nearest_preferred(0.58, 0.02), None);
+    }
+
+    #[test]
+    fn wrong_sense_resistor_is_named() {
+        // Design: 0.6 V / 0.47 ohm = 1.277 A; a 0.68 ohm part gives 0.882 A (31 % low).
+        let exp = DesignExpectation {
+            design_name: "t".into(),
+            vout: band(12.0, 0.05, 0.03),
+            limit_current: band(0.6 / 0.47, 0.15, 0.08),
+            short_circuit_current: None,
+            limit: Some(LimitModel {
+                sense_ohms: 0.47,
+                clamp: Clamp::Transistor { v_be: 0.6 },
+            }),
+        };
+        let checks = vec![check("limit_current", "A", 0.6 / 0.68, &exp.limit_current)];
+        assert_eq!(checks[0].verdict, Verdict::Fail);
+        let m = crate::analysis::analyse(&[], &Default::default());
+        let causes = likely_causes(&m, &exp, &checks);
+        assert!(
+            causes.iter().any(|c| c.contains("31 % low")
+                && c.contains("0.68 ohm sense resistor fitted instead of 0.47 ohm")),
+            "{causes:?}"
+        );
+    }
+
+    #[test]
+    fn extra_junction_in_diode_string_is_named() {
+        // 3 diodes x 0.65 V - 1 x 0.65 V = 1.30 V sense; with 4 diodes 1.95 V.
+        let clamp = Clamp::DiodeString {
+            diodes: 3,
+            v_f: 0.65,
+            pass_junctions: 1,
+            v_be: 0.65,
+        };
+        let r = 1.0;
+        let nominal = clamp.sense_voltage() / r;
+        let exp = DesignExpectation {
+            design_name: "t".into(),
+            vout: band(12.0, 0.05, 0.03),
+            limit_current: band(nominal, 0.15, 0.08),
+            short_circuit_current: None,
+            limit: Some(LimitModel {
+                sense_ohms: r,
+                clamp,
+            }),
+        };
+        let checks = vec![check("limit_current", "A", 1.95, &exp.limit_current)];
+        let m = crate::analysis::analyse(&[], &Default::default());
+        let causes = likely_causes(&m, &exp, &checks);
+        assert!(
+            causes.iter().any(|c| c.contains("one junction more")),
+            "{causes:?}"
+        );
+    }
+
+    #[test]
+    fn leave_one_out_z_flags_a_single_outlier() {
+        let mk = |v: f64| KeyValues(vec![(KeyMetric::LimitCurrent, Some(v))]);
+        let mut units: Vec<(String, KeyValues)> = (0..10)
+            .map(|k| (format!("U{k}"), mk(1.0 + 0.01 * (k as f64 - 4.5))))
+            .collect();
+        let quiet = population(&units, &[], DEFAULT_OUTLIER_Z);
+        assert!(quiet.outliers.is_empty());
+        units.push(("BAD".into(), mk(0.7)));
+        let p = population(&units, &[], DEFAULT_OUTLIER_Z);
+        assert_eq!(p.outliers.len(), 1);
+        assert_eq!(p.outliers[0].unit, "BAD");
+    }
+}
