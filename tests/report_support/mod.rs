@@ -56,12 +56,13 @@ impl Unit {
         self.v_be / self.r_sense
     }
     /// Output voltage at load current `i`: regulation line, then a steep limit line joined by
-    /// a soft knee (softplus of width 1 % of the limit).
+    /// a soft knee (softplus of width 0.05 % of the limit: about 0.2 V of rounding at the
+    /// corner). The limit line falls 400 V per ampere of limit current.
     pub fn v_at(&self, i: f64) -> f64 {
-        let w = 0.01 * self.i_lim();
+        let w = 0.0005 * self.i_lim();
         let x = (i - self.i_lim()) / w;
         let softplus = if x > 30.0 { x } else { x.exp().ln_1p() };
-        (self.v_set - self.r_out * i - 400.0 * w * softplus).max(0.0)
+        (self.v_set - self.r_out * i - 400.0 / self.i_lim() * w * softplus).max(0.0)
     }
     /// Load current at output voltage `v` (CV load), by bisection on `v_at`.
     pub fn i_at(&self, v: f64) -> f64 {
