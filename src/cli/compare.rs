@@ -55,6 +55,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let mut units: Vec<(String, KeyValues)> = Vec::new();
     for r in &args.records {
         let rec = crate::report::load_record(r)
+            .map_err(super::report::coded)
             .with_context(|| format!("reading record {}", r.display()))?;
         let mut ao = aopts.clone();
         ao.nominal_voltage.get_or_insert(exp.vout.nominal);

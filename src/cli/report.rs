@@ -92,6 +92,18 @@ pub fn load_expectation(path: &Path) -> anyhow::Result<crate::compare::DesignExp
     .into())
 }
 
+/// Turn a report error into an anyhow error with the right exit code: an unreadable or
+/// malformed record is a usage error (2), anything else aborts (3).
+pub fn coded(e: crate::report::ReportError) -> anyhow::Error {
+    use crate::report::ReportError;
+    match e {
+        ReportError::Read { .. } | ReportError::Parse { .. } => {
+            CodedError::new(EXIT_USAGE, e.to_string()).into()
+        }
+        other => other.into(),
+    }
+}
+
 /// The unit folder and records root of a record folder.
 pub fn unit_and_root(record: &Path) -> Option<(String, PathBuf)> {
     let unit_dir = record.parent()?;
@@ -124,7 +136,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             .unwrap_or_else(|| args.record.join("design.toml"));
         Some(load_expectation(&path)?)
     };
-    let info = crate::report::load_run_info(&args.record)?;
+    let info = crate::report::load_run_info(&args.record).map_err(coded)?;
     // Earlier records of the same unit, for drift flags.
     let earlier = match unit_and_root(&args.record) {
         Some((unit, root)) => crate::report::history(&root, &unit, &aopts)
@@ -143,6 +155,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         png: args.png,
     };
     let written = crate::report::write_report(&args.record, exp.as_ref(), &opts)
+        .map_err(coded)
         .with_context(|| format!("writing the report of {}", args.record.display()))?;
     let mut out = std::io::stdout().lock();
     print_outcome(&mut out, &written)?;

@@ -467,7 +467,7 @@ fn draw_history<DB: DrawingBackend>(
         let label = format!(
             "{} ({})",
             k.as_str().replace('_', " "),
-            ["circles", "triangles", "squares"][marker]
+            ["circles", "triangles", "crosses"][marker]
         );
         let style = c.stroke_width(1);
         chart
