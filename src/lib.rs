@@ -7,6 +7,7 @@
 pub mod analysis;
 pub mod cli;
 pub mod compare;
+pub mod config;
 pub mod control;
 pub mod design;
 pub mod measure;

@@ -9,6 +9,14 @@ fn main() -> ExitCode {
     match regulus::cli::dispatch(cli) {
         Ok(code) => ExitCode::from(code),
         Err(err) => {
+            // A closed pipe (`regulus design x | head`) is not an error worth reporting.
+            let broken_pipe = err.chain().any(|c| {
+                c.downcast_ref::<std::io::Error>()
+                    .is_some_and(|e| e.kind() == std::io::ErrorKind::BrokenPipe)
+            });
+            if broken_pipe {
+                return ExitCode::SUCCESS;
+            }
             let code = regulus::cli::exit_code_for(&err);
             eprintln!("error: {err}");
             for cause in err.chain().skip(1) {

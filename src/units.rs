@@ -62,27 +62,30 @@ pub fn parse_si(text: &str) -> Option<f64> {
         return None;
     }
     let last = t.chars().last()?;
-    let mult = match last {
-        'G' => 1e9,
-        'M' => 1e6,
-        'k' | 'K' => 1e3,
-        'm' => 1e-3,
-        'u' | '\u{b5}' => 1e-6,
-        'n' => 1e-9,
-        'p' => 1e-12,
-        _ => 1.0,
+    // Power of ten of the prefix; scale by division for sub-unit prefixes so that 470m is
+    // exactly the double nearest 0.47.
+    let exp: i32 = match last {
+        'G' => 9,
+        'M' => 6,
+        'k' | 'K' => 3,
+        'm' => -3,
+        'u' | '\u{b5}' => -6,
+        'n' => -9,
+        'p' => -12,
+        _ => 0,
     };
-    let num = if mult == 1.0 {
+    let num = if exp == 0 {
         t
     } else {
         &t[..t.len() - last.len_utf8()]
     };
     let v: f64 = num.trim().parse().ok()?;
-    if v.is_finite() {
-        Some(v * mult)
+    let scaled = if exp >= 0 {
+        v * 10f64.powi(exp)
     } else {
-        None
-    }
+        v / 10f64.powi(-exp)
+    };
+    scaled.is_finite().then_some(scaled)
 }
 
 #[cfg(test)]

@@ -1,6 +1,17 @@
-//! Design model: the design file, the circuit model, tolerance bands, E-series and sizing.
+//! Design model: the design file ([`file`]), the circuit model of one unit ([`model`]),
+//! tolerance bands ([`tolerance`]), the full expectation with checks ([`expect`]), IEC 60063
+//! preferred values ([`eseries`]) and part sizing from targets ([`sizing`]). Everything here is
+//! pure except [`Design::load`], which reads the design file.
 
-/// A design file problem, located in the file.
-#[derive(Debug, thiserror::Error)]
-#[error("{0}")]
-pub struct DesignError(pub String);
+pub mod eseries;
+pub mod expect;
+pub mod file;
+pub mod model;
+pub mod render;
+pub mod sizing;
+pub mod tolerance;
+
+pub use expect::{expect, expect_with, Check, Expectation, PartStress, Verdict};
+pub use file::{Clamp, Design, DesignError, InputKind, Stage};
+pub use model::{evaluate, Params, Point};
+pub use tolerance::{Band, Interval, McStats};

@@ -1,0 +1,183 @@
+//! Human-readable rendering of an [`Expectation`]: a table with engineering units and a
+//! verdict per check. Writes to any `io::Write` so output can be checked byte for byte.
+
+use super::expect::{Expectation, Verdict};
+use super::file::{Clamp, Design};
+use super::tolerance::Band;
+use crate::units::{eng, sig3};
+use std::io::{self, Write};
+
+fn band_row(w: &mut impl Write, label: &str, b: &Band, unit: &str) -> io::Result<()> {
+    writeln!(
+        w,
+        "  {:<24}{:>10}   {:>10} .. {:<10}   {:>10} .. {:<10}",
+        label,
+        eng(b.nominal, unit),
+        eng(b.worst_case.min, unit),
+        eng(b.worst_case.max, unit),
+        eng(b.monte_carlo.p_low, unit),
+        eng(b.monte_carlo.p_high, unit),
+    )
+}
+
+fn clamp_text(d: &Design) -> String {
+    let stage = match d.pass.stage {
+        super::file::Stage::Single => "single pass transistor",
+        super::file::Stage::Darlington => "Darlington pass stage",
+    };
+    match d.limit.clamp {
+        Clamp::DiodeString => format!(
+            "diode-string clamp ({} diodes), {stage}",
+            d.limit.diodes.unwrap_or(0)
+        ),
+        Clamp::Transistor => format!("transistor limiter, {stage}"),
+        Clamp::Foldback => format!("foldback limiter, {stage}"),
+    }
+}
+
+/// Render the expectation as a table.
+pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> {
+    let rev = d
+        .design
+        .revision
+        .as_deref()
+        .map(|r| format!("  (revision {r})"))
+        .unwrap_or_default();
+    writeln!(w, "{}{}", d.design.name, rev)?;
+    writeln!(
+        w,
+        "{}; Monte Carlo {} units, seed {}",
+        clamp_text(d),
+        e.monte_carlo_samples,
+        e.seed
+    )?;
+    writeln!(w)?;
+    writeln!(
+        w,
+        "  {:<24}{:>10}   {:^24}   {:^24}",
+        "", "nominal", "worst case", "Monte Carlo (+-3 sigma)"
+    )?;
+    if e.vout.adjustable {
+        band_row(w, "output, lowest", &e.vout.min_band, "V")?;
+        band_row(w, "output, highest", &e.vout.max_band, "V")?;
+        if (e.vout.setting - e.vout.max).abs() > 1e-9 {
+            band_row(w, "output, at setting", &e.vout.setting_band, "V")?;
+        }
+    } else {
+        band_row(w, "output", &e.vout.setting_band, "V")?;
+    }
+    band_row(w, "clamp threshold", &e.sense_voltage, "V")?;
+    band_row(w, "limit knee", &e.limit_current, "A")?;
+    band_row(w, "short-circuit current", &e.short_circuit_current, "A")?;
+    if d.limit.clamp == Clamp::Foldback {
+        writeln!(
+            w,
+            "  {:<24}{:>10}   (short-circuit / knee)",
+            "foldback ratio",
+            sig3(e.foldback_ratio)
+        )?;
+    }
+    if let Some(hot) = e.thermal.hot_limit_current {
+        if (hot - e.limit_current.nominal).abs() > 1e-6 {
+            writeln!(
+                w,
+                "  {:<24}{:>10}   (pass device at its worst-case junction temperature)",
+                "limit knee, hot",
+                eng(hot, "A")
+            )?;
+        }
+    }
+    writeln!(w)?;
+    writeln!(
+        w,
+        "input: {} nominal, {} highest (high line, no load), {} lowest (low line, full load, bottom of {} ripple)",
+        eng(e.input.nominal_v, "V"),
+        eng(e.input.max_v, "V"),
+        eng(e.input.min_v, "V"),
+        eng(e.input.ripple_v, "V"),
+    )?;
+    writeln!(w)?;
+    writeln!(
+        w,
+        "  {:<24}{:>10}{:>10}{:>10}{:>11}   condition",
+        "dissipation", "worst", "rated", "allowed", "suggested"
+    )?;
+    for (name, s) in &e.dissipation {
+        let opt = |v: Option<f64>| v.map(|x| eng(x, "W")).unwrap_or_else(|| "-".into());
+        writeln!(
+            w,
+            "  {:<24}{:>10}{:>10}{:>10}{:>11}   {}",
+            name,
+            eng(s.watts, "W"),
+            opt(s.rating_watts),
+            opt(s.allowed_watts),
+            opt(s.suggested_rating_watts),
+            s.condition
+        )?;
+    }
+    writeln!(w)?;
+    let sink = if e.thermal.max_theta_sa < 0.0 {
+        "none can: reduce the worst-case dissipation (lower input, lower limit, foldback) or share it"
+            .to_string()
+    } else {
+        eng(e.thermal.max_theta_sa, "degC/W")
+    };
+    match (e.junction_temp_c, e.thermal.theta_total) {
+        (Some(tj), Some(th)) => writeln!(
+            w,
+            "thermal: pass device T_j {} at {} ambient through {} total; largest heatsink for T_j <= {}: {}",
+            eng(tj, "degC"),
+            eng(d.environment.ambient_max_c, "degC"),
+            eng(th, "degC/W"),
+            eng(d.pass.tj_max_c - d.rules.tj_margin_c, "degC"),
+            sink,
+        )?,
+        _ => writeln!(
+            w,
+            "thermal: no heatsink given; largest heatsink for T_j <= {}: {}",
+            eng(d.pass.tj_max_c - d.rules.tj_margin_c, "degC"),
+            sink,
+        )?,
+    }
+    writeln!(w)?;
+    writeln!(w, "checks")?;
+    for c in &e.checks {
+        let pct = if c.limit.abs() > 1e-12 {
+            format!(" ({:+.1} %)", 100.0 * c.margin / c.limit.abs())
+        } else {
+            String::new()
+        };
+        writeln!(
+            w,
+            "  {:<9}{:<34}{:>10} against {:<10} margin {}{}",
+            c.verdict.as_str(),
+            c.name,
+            eng(c.value, &c.unit),
+            eng(c.limit, &c.unit),
+            signed_eng(c.margin, &c.unit),
+            pct
+        )?;
+    }
+    let overall = e.verdict();
+    writeln!(w)?;
+    writeln!(
+        w,
+        "overall: {}{}",
+        overall.as_str(),
+        match overall {
+            Verdict::Ok => "",
+            Verdict::Marginal => " (inside ratings, outside the margins the rules ask for)",
+            Verdict::Fail => " (a check is outside its limit: see above)",
+        }
+    )?;
+    Ok(())
+}
+
+fn signed_eng(v: f64, unit: &str) -> String {
+    let s = eng(v, unit);
+    if v >= 0.0 {
+        format!("+{s}")
+    } else {
+        s
+    }
+}
