@@ -10,29 +10,12 @@
 use crate::analysis::Metrics;
 use serde::{Deserialize, Serialize};
 
-/// Lower and upper limit of a band.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-pub struct Limits {
-    pub min: f64,
-    pub max: f64,
-}
-
-/// Monte Carlo spread of a quantity: mean, standard deviation and the low/high percentiles.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-pub struct MonteCarlo {
-    pub mean: f64,
-    pub sigma: f64,
-    pub p_low: f64,
-    pub p_high: f64,
-}
-
-/// What the design expects of one quantity.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
-pub struct ExpectedBand {
-    pub nominal: f64,
-    pub worst_case: Limits,
-    pub monte_carlo: MonteCarlo,
-}
+/// Lower and upper limit of a band (the design model's interval).
+pub type Limits = crate::design::Interval;
+/// Monte Carlo spread of a quantity (the design model's statistics).
+pub type MonteCarlo = crate::design::McStats;
+/// What the design expects of one quantity: nominal, worst case, Monte Carlo.
+pub type ExpectedBand = crate::design::Band;
 
 /// How the current limit is made, with nominal element values (for likely causes).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
@@ -74,7 +57,9 @@ pub struct LimitModel {
     pub clamp: Clamp,
 }
 
-/// The design's expectation as the comparison needs it.
+/// The design's expectation as the comparison needs it: the bands of the measured metrics,
+/// the limit model with nominal element values, and the expected V-I curves (nominal and the
+/// worst-case edges; empty when unknown).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct DesignExpectation {
     pub design_name: String,
@@ -82,6 +67,50 @@ pub struct DesignExpectation {
     pub limit_current: ExpectedBand,
     pub short_circuit_current: Option<ExpectedBand>,
     pub limit: Option<LimitModel>,
+    #[serde(default)]
+    pub curve: Vec<(f64, f64)>,
+    #[serde(default)]
+    pub curve_low: Vec<(f64, f64)>,
+    #[serde(default)]
+    pub curve_high: Vec<(f64, f64)>,
+}
+
+impl DesignExpectation {
+    /// The comparison's view of a design and its computed expectation.
+    pub fn from_design(d: &crate::design::Design, e: &crate::design::Expectation) -> Self {
+        use crate::design::Clamp as C;
+        let clamp = match d.limit.clamp {
+            C::Transistor => Some(Clamp::Transistor {
+                v_be: d.limit.vbe_v,
+            }),
+            C::DiodeString => d.limit.diodes.map(|n| Clamp::DiodeString {
+                diodes: n,
+                v_f: d.limit.diode_vf_v,
+                pass_junctions: d.pass.stage.junctions(),
+                v_be: d.pass.vbe_v,
+            }),
+            C::Foldback => match (&d.limit.divider_top, &d.limit.divider_bottom) {
+                (Some(t), Some(b)) if t.ohms + b.ohms > 0.0 => Some(Clamp::Foldback {
+                    v_be: d.limit.vbe_v,
+                    k: b.ohms / (t.ohms + b.ohms),
+                }),
+                _ => None,
+            },
+        };
+        DesignExpectation {
+            design_name: e.design_name.clone(),
+            vout: e.vout.setting_band,
+            limit_current: e.limit_current,
+            short_circuit_current: Some(e.short_circuit_current),
+            limit: clamp.map(|clamp| LimitModel {
+                sense_ohms: d.limit.sense.ohms,
+                clamp,
+            }),
+            curve: e.curve.clone(),
+            curve_low: e.curve_low.clone(),
+            curve_high: e.curve_high.clone(),
+        }
+    }
 }
 
 /// Pass: inside the Monte Carlo band. Marginal: inside the worst case, outside the Monte
@@ -207,48 +236,14 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
     }
 }
 
-/// IEC 60063 E12 and E24 decade values, as two-digit mantissas (tables, not formulas).
-const E12: [u32; 12] = [10, 12, 15, 18, 22, 27, 33, 39, 47, 56, 68, 82];
-const E24: [u32; 24] = [
-    10, 11, 12, 13, 15, 16, 18, 20, 22, 24, 27, 30, 33, 36, 39, 43, 47, 51, 56, 62, 68, 75, 82, 91,
-];
-
 /// The preferred value nearest to `value` (by ratio), from E12 when one lies within
-/// `tolerance`, otherwise from E24. The one place that knows the E-series tables here; to be
-/// replaced by the design module's E-series functions.
+/// `tolerance`, otherwise from E24 (IEC 60063 tables in `design::eseries`).
 pub fn nearest_preferred(value: f64, tolerance: f64) -> Option<f64> {
-    if !(value > 0.0 && value.is_finite()) {
-        return None;
-    }
-    let nearest = |table: &[u32]| -> f64 {
-        let e = value.log10().floor() as i32;
-        let mut best = f64::NAN;
-        let mut best_err = f64::INFINITY;
-        for exp in [e - 1, e, e + 1] {
-            for v in table {
-                // Mantissa 47 at exponent -1 is 47 / 100: an integer over a power of ten
-                // rounds once, so the result is the closest double to 0.47.
-                let p = exp - 1;
-                let c = if p >= 0 {
-                    *v as f64 * 10f64.powi(p)
-                } else {
-                    *v as f64 / 10f64.powi(-p)
-                };
-                let err = (value / c).ln().abs();
-                if err < best_err {
-                    best_err = err;
-                    best = c;
-                }
-            }
-        }
-        best
-    };
-    let e12 = nearest(&E12);
-    if (value / e12 - 1.0).abs() <= tolerance {
-        return Some(e12);
-    }
-    let e24 = nearest(&E24);
-    ((value / e24 - 1.0).abs() <= tolerance).then_some(e24)
+    use crate::design::eseries::{nearest, Series};
+    [Series::E12, Series::E24]
+        .into_iter()
+        .filter_map(|series| nearest(value, series))
+        .find(|p| (value / p - 1.0).abs() <= tolerance)
 }
 
 /// Relative tolerance within which a fitted element value is said to match a preferred value
@@ -281,9 +276,13 @@ pub fn likely_causes(metrics: &Metrics, exp: &DesignExpectation, checks: &[Check
             let v_eff = c.measured * model.sense_ohms;
             let dev = (c.measured / i_nom - 1.0) * 100.0;
             let dir = if dev < 0.0 { "low" } else { "high" };
+            let what = match model.clamp {
+                Clamp::Foldback { .. } => "short-circuit sense voltage (V_BE / k)",
+                _ => "clamp voltage",
+            };
             out.push(format!(
                 "{} {:.0} % {dir}: implies an effective sense resistance of {} (design {}) or a \
-                 clamp voltage of {:.3} V (design {:.3} V)",
+                 {what} of {:.3} V (design {:.3} V)",
                 c.metric.replace('_', " "),
                 dev.abs(),
                 fmt_ohms(r_eff),
@@ -326,7 +325,10 @@ pub fn likely_causes(metrics: &Metrics, exp: &DesignExpectation, checks: &[Check
             }
         }
     }
-    if let Some(sc) = &metrics.short_circuit {
+    // Heating is named only when something is off; a few percent of drift during a short is
+    // normal for a junction-referenced clamp.
+    let off = checks.iter().any(|c| c.verdict != Verdict::Pass);
+    if let Some(sc) = metrics.short_circuit.as_ref().filter(|_| off) {
         if sc.drift_percent.abs() > HEATING_DRIFT_PERCENT {
             let tau = sc
                 .time_constant
@@ -640,6 +642,7 @@ mod tests {
                 max: nominal * (1.0 + wc),
             },
             monte_carlo: MonteCarlo {
+                samples: 1000,
                 mean: nominal,
                 sigma: nominal * mc / 3.0,
                 p_low: nominal * (1.0 - mc),
@@ -705,6 +708,9 @@ mod tests {
                 sense_ohms: 0.47,
                 clamp: Clamp::Transistor { v_be: 0.6 },
             }),
+            curve: vec![],
+            curve_low: vec![],
+            curve_high: vec![],
         };
         let checks = vec![check("limit_current", "A", 0.6 / 0.68, &exp.limit_current)];
         assert_eq!(checks[0].verdict, Verdict::Fail);
@@ -737,6 +743,9 @@ mod tests {
                 sense_ohms: r,
                 clamp,
             }),
+            curve: vec![],
+            curve_low: vec![],
+            curve_high: vec![],
         };
         let checks = vec![check("limit_current", "A", 1.95, &exp.limit_current)];
         let m = crate::analysis::analyse(&[], &Default::default());

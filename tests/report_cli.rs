@@ -156,3 +156,108 @@ fn corrupt_readings_name_the_file_and_line() {
         "{err}"
     );
 }
+
+const DESIGN: &str = "tests/report_golden/bench12.toml";
+
+fn design_path() -> std::path::PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join(DESIGN)
+}
+
+/// Records of `n` good synthetic units (one record each), plus optionally one unit with a
+/// 0.68 ohm sense resistor fitted instead of 0.47 ohm.
+fn population_records(root: &Path, n: u64, with_bad: bool) -> Vec<String> {
+    let mut out = Vec::new();
+    for seed in 1..=n {
+        let mut rng = Rng::new(seed);
+        let u = sup::Unit::draw(&mut rng);
+        let rows = sup::run_rows(&u, &mut rng, sup::day(0), 30, 30, 20.0, 0.5);
+        let dir = sup::write_record(root, &format!("SYN-{seed:03}"), sup::day(0), &rows);
+        out.push(dir.display().to_string());
+    }
+    if with_bad {
+        let mut rng = Rng::new(99);
+        let u = sup::Unit::draw(&mut rng).with_sense(0.68);
+        let rows = sup::run_rows(&u, &mut rng, sup::day(0), 30, 30, 20.0, 0.5);
+        let dir = sup::write_record(root, "SYN-BAD", sup::day(0), &rows);
+        out.push(dir.display().to_string());
+    }
+    out
+}
+
+#[test]
+fn compare_against_a_design_file_passes_good_units_with_cpk() {
+    let tmp = tempfile::tempdir().unwrap();
+    let recs = population_records(tmp.path(), 20, false);
+    let design = design_path();
+    let mut args = vec![
+        "compare",
+        "--design",
+        design.to_str().unwrap(),
+        "--plot-dir",
+        "hist",
+    ];
+    args.extend(recs.iter().map(String::as_str));
+    let out = regulus(&args, tmp.path());
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{stdout}{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(!stdout.contains("OUTLIER"), "{stdout}");
+    assert!(
+        stdout.contains("limit_current") && stdout.contains("Cpk "),
+        "{stdout}"
+    );
+    assert!(tmp.path().join("hist/limit_current.svg").is_file());
+}
+
+#[test]
+fn compare_fails_and_names_a_wrong_sense_resistor() {
+    let tmp = tempfile::tempdir().unwrap();
+    let recs = population_records(tmp.path(), 20, true);
+    let design = design_path();
+    let mut args = vec!["compare", "--design", design.to_str().unwrap()];
+    args.extend(recs.iter().map(String::as_str));
+    let out = regulus(&args, tmp.path());
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(1), "{stdout}");
+    assert!(stdout.contains("FAIL      SYN-BAD"), "{stdout}");
+    assert!(
+        stdout.contains("0.68 ohm sense resistor fitted instead of 0.47 ohm"),
+        "{stdout}"
+    );
+    assert!(
+        stdout.contains("OUTLIER SYN-BAD: limit_current"),
+        "{stdout}"
+    );
+    assert!(!stdout.contains("OUTLIER SYN-0"), "{stdout}");
+}
+
+#[test]
+fn report_uses_the_records_design_snapshot_and_exits_1_on_fail() {
+    let tmp = tempfile::tempdir().unwrap();
+    let recs = population_records(tmp.path(), 1, true);
+    for r in &recs {
+        std::fs::copy(design_path(), Path::new(r).join("design.toml")).unwrap();
+    }
+    let good = regulus(&["report", &recs[0]], tmp.path());
+    assert_eq!(
+        good.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&good.stdout)
+    );
+    let bad = regulus(&["report", &recs[1]], tmp.path());
+    assert_eq!(bad.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&bad.stdout).contains("verdict: FAIL"));
+    // A broken design file is a configuration error.
+    std::fs::write(
+        Path::new(&recs[0]).join("design.toml"),
+        "[design]\nname = 3\n",
+    )
+    .unwrap();
+    let broken = regulus(&["report", &recs[0]], tmp.path());
+    assert_eq!(broken.status.code(), Some(2));
+}

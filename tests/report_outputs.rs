@@ -22,6 +22,7 @@ fn expectation() -> DesignExpectation {
                 max: 12.6,
             },
             monte_carlo: MonteCarlo {
+                samples: 1000,
                 mean: 12.0,
                 sigma: 0.1,
                 p_low: 11.7,
@@ -32,6 +33,7 @@ fn expectation() -> DesignExpectation {
             nominal: 1.0,
             worst_case: Limits { min: 0.9, max: 1.1 },
             monte_carlo: MonteCarlo {
+                samples: 1000,
                 mean: 1.0,
                 sigma: 0.0167,
                 p_low: 0.95,
@@ -43,6 +45,9 @@ fn expectation() -> DesignExpectation {
             sense_ohms: 0.6,
             clamp: Clamp::Transistor { v_be: 0.6 },
         }),
+        curve: vec![],
+        curve_low: vec![],
+        curve_high: vec![],
     }
 }
 

@@ -24,6 +24,9 @@ pub struct Args {
     /// Print JSON instead of a table.
     #[arg(long)]
     pub json: bool,
+    /// Draw a histogram of each specified metric across the records into DIR (SVG).
+    #[arg(long, value_name = "DIR")]
+    pub plot_dir: Option<PathBuf>,
     #[command(flatten)]
     pub analysis: AnalysisArgs,
 }
@@ -79,6 +82,20 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     )
     .collect::<Vec<_>>();
     let population = compare::population(&units, &specs, args.z_limit);
+    if let Some(dir) = &args.plot_dir {
+        std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
+        for (metric, spec) in &specs {
+            let values: Vec<f64> = units.iter().filter_map(|(_, kv)| kv.get(*metric)).collect();
+            let chart = crate::report::plots::Chart::Histogram {
+                metric: *metric,
+                values: &values,
+                spec: Some(*spec),
+            };
+            let svg = chart.to_svg(crate::report::plots::SIZE)?;
+            let path = dir.join(format!("{}.svg", metric.as_str()));
+            std::fs::write(&path, svg).with_context(|| format!("writing {}", path.display()))?;
+        }
+    }
     let any_fail = judged.iter().any(|j| j.comparison.verdict == Verdict::Fail);
     let out = Output {
         design: exp.design_name.clone(),
@@ -124,12 +141,11 @@ fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
         }
     }
     for s in &out.population.stats {
-        let cpk = s.cpk.map(|c| format!("Cpk {c:.2}")).unwrap_or_else(|| {
-            format!(
-                "Cpk needs {}+ units with spec limits",
-                compare::MIN_UNITS_FOR_CPK
-            )
-        });
+        let cpk = match (s.cpk, s.spec) {
+            (Some(c), _) => format!("Cpk {c:.2}"),
+            (None, Some(_)) => format!("Cpk needs {}+ units", compare::MIN_UNITS_FOR_CPK),
+            (None, None) => "no spec limits".to_string(),
+        };
         writeln!(
             w,
             "{:<22} n {:>3}  mean {:>10}  sigma {:>10}  {cpk}",

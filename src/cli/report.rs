@@ -79,17 +79,12 @@ pub mod analysis_args {
     }
 }
 
-/// Load a design file and compute the expectation the comparison needs.
+/// Load a design file and compute the expectation the comparison needs. A bad design file
+/// is a configuration error (exit 2) located by file, line and column.
 pub fn load_expectation(path: &Path) -> anyhow::Result<crate::compare::DesignExpectation> {
-    Err(CodedError::new(
-        EXIT_USAGE,
-        format!(
-            "{}: judging against a design needs the design model, which this build lacks; \
-             use --no-design for metrics only",
-            path.display()
-        ),
-    )
-    .into())
+    let d = crate::design::Design::load(path)?;
+    let e = crate::design::expect(&d);
+    Ok(crate::compare::DesignExpectation::from_design(&d, &e))
 }
 
 /// Turn a report error into an anyhow error with the right exit code: an unreadable or

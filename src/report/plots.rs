@@ -172,9 +172,14 @@ fn draw_vi<DB: DrawingBackend>(
     if let Some(e) = exp {
         imax = imax.max(e.limit_current.worst_case.max);
         vmax = vmax.max(e.vout.worst_case.max);
+        for (i, v) in e.curve.iter().chain(&e.curve_low).chain(&e.curve_high) {
+            imax = imax.max(*i);
+            vmax = vmax.max(*v);
+        }
     }
     let imax = if imax > 0.0 { imax * 1.1 } else { 1.0 };
-    let vmax = if vmax > 0.0 { vmax * 1.1 } else { 1.0 };
+    // Head room above the curve for the legend.
+    let vmax = if vmax > 0.0 { vmax * 1.5 } else { 1.0 };
     let mut chart = ChartBuilder::on(root)
         .caption("Output voltage against load current", (FONT, 22))
         .margin(12)
@@ -192,21 +197,39 @@ fn draw_vi<DB: DrawingBackend>(
         .draw()
         .map_err(s)?;
     if let Some(e) = exp {
-        let vb = e.vout.worst_case;
-        let ib = e.limit_current.worst_case;
         let fill = BAND.mix(0.35).filled();
-        chart
-            .draw_series([
-                Rectangle::new([(0.0, vb.min), (ib.min, vb.max)], fill),
-                Rectangle::new([(ib.min, 0.0), (ib.max, vb.max)], fill),
+        let banded = if !e.curve_low.is_empty() && !e.curve_high.is_empty() {
+            // The region between the worst-case edge curves. Those curves run through the
+            // lowest and highest limit corners, whose output voltages are arbitrary: rescale
+            // them to the output's worst-case extremes so the band covers both.
+            let vb = e.vout.worst_case;
+            let scaled = |c: &[(f64, f64)], v_to: f64| -> Vec<(f64, f64)> {
+                let v0 = c.first().map(|p| p.1).filter(|v| *v > 0.0).unwrap_or(v_to);
+                c.iter().map(|(i, v)| (*i, v * v_to / v0)).collect()
+            };
+            let mut ring = scaled(&e.curve_high, vb.max);
+            ring.extend(scaled(&e.curve_low, vb.min).into_iter().rev());
+            chart.draw_series([Polygon::new(ring, fill)])
+        } else {
+            let vb = e.vout.worst_case;
+            let ib = e.limit_current.worst_case;
+            chart.draw_series([
+                Rectangle::new([(0.0, vb.min), (ib.min, vb.max)], fill).into_dyn(),
+                Rectangle::new([(ib.min, 0.0), (ib.max, vb.max)], fill).into_dyn(),
             ])
+        };
+        banded
             .map_err(s)?
             .label("design worst-case band")
             .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], fill));
-        let vn = e.vout.nominal;
-        let il = e.limit_current.nominal;
-        let isc = e.short_circuit_current.map(|b| b.nominal).unwrap_or(il);
-        let pts = vec![(0.0, vn), (il, vn), (isc, 0.0)];
+        let pts = if e.curve.len() >= 2 {
+            e.curve.clone()
+        } else {
+            let vn = e.vout.nominal;
+            let il = e.limit_current.nominal;
+            let isc = e.short_circuit_current.map(|b| b.nominal).unwrap_or(il);
+            vec![(0.0, vn), (il, vn), (isc, 0.0)]
+        };
         chart
             .draw_series(DashedLineSeries::new(pts, 10, 6, EXPECTED.stroke_width(2)))
             .map_err(s)?
@@ -259,7 +282,14 @@ fn draw_vi<DB: DrawingBackend>(
                 });
         }
     }
-    legend(&mut chart)
+    chart
+        .configure_series_labels()
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK)
+        .label_font((FONT, 14))
+        .position(SeriesLabelPosition::UpperRight)
+        .draw()
+        .map_err(s)
 }
 
 fn draw_regulation<DB: DrawingBackend>(

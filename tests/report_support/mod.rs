@@ -108,6 +108,7 @@ pub fn expectation() -> DesignExpectation {
             nominal,
             worst_case: wc,
             monte_carlo: MonteCarlo {
+                samples: xs.len(),
                 mean,
                 sigma,
                 p_low: pct(0.00135),
@@ -146,6 +147,9 @@ pub fn expectation() -> DesignExpectation {
             sense_ohms: R_SENSE,
             clamp: Clamp::Transistor { v_be: V_BE },
         }),
+        curve: vec![],
+        curve_low: vec![],
+        curve_high: vec![],
     }
 }
 
