@@ -24,6 +24,14 @@ pub struct PlotError {
 /// Default plot size in pixels.
 pub const SIZE: (u32, u32) = (800, 520);
 
+/// Most measured points drawn per series; longer series are thinned by an even stride so a
+/// 100,000-row record still gives a small page (fits and knees use every point).
+pub const MAX_POINTS: usize = 2000;
+
+fn stride(n: usize) -> usize {
+    n.div_ceil(MAX_POINTS).max(1)
+}
+
 const FONT: &str = font::FAMILY;
 const MEASURED: RGBColor = RGBColor(0, 0, 0);
 const EXPECTED: RGBColor = RGBColor(30, 80, 160);
@@ -242,6 +250,7 @@ fn draw_vi<DB: DrawingBackend>(
         .draw_series(
             curve
                 .iter()
+                .step_by(stride(curve.len()))
                 .map(|p| Circle::new((p.current, p.voltage), 3, MEASURED.stroke_width(1))),
         )
         .map_err(s)?
@@ -342,6 +351,7 @@ fn draw_regulation<DB: DrawingBackend>(
     chart
         .draw_series(
             pts.iter()
+                .step_by(stride(pts.len()))
                 .map(|p| Cross::new(*p, 5, MEASURED.stroke_width(2))),
         )
         .map_err(s)?
@@ -402,6 +412,7 @@ fn draw_short_circuit<DB: DrawingBackend>(
         .draw_series(
             series
                 .iter()
+                .step_by(stride(series.len()))
                 .map(|p| Circle::new(*p, 3, MEASURED.stroke_width(1))),
         )
         .map_err(s)?
