@@ -458,11 +458,23 @@ pub struct HistoryEntry {
     pub values: KeyValues,
 }
 
+/// What a drift flag compares with.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum DriftBasis {
+    /// A step from the previous record.
+    PreviousRecord,
+    /// A slow change: the sum of small steps since the unit's first record.
+    FirstRecord,
+}
+
 /// A flagged change.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct DriftFlag {
     pub record: String,
     pub metric: KeyMetric,
+    pub basis: DriftBasis,
+    /// The value compared with (previous or first record).
     pub previous: f64,
     pub value: f64,
     /// value - previous, in the metric's unit.
@@ -470,8 +482,44 @@ pub struct DriftFlag {
     pub message: String,
 }
 
-/// Flags where a key metric changed from one record to the next (entries sorted by date)
-/// beyond its threshold (`thresholds` overrides the defaults by metric).
+fn beyond(th: Threshold, base: f64, change: f64) -> bool {
+    match th {
+        Threshold::Relative(f) => base != 0.0 && (change / base).abs() > f,
+        Threshold::Absolute(a) => change.abs() > a,
+    }
+}
+
+fn drift_flag(e: &HistoryEntry, k: KeyMetric, basis: DriftBasis, base: f64, v: f64) -> DriftFlag {
+    let change = v - base;
+    let rel = if base != 0.0 {
+        format!(" ({:+.1} %)", change / base * 100.0)
+    } else {
+        String::new()
+    };
+    let since = match basis {
+        DriftBasis::PreviousRecord => "since the previous record",
+        DriftBasis::FirstRecord => "since the unit's first record (slow drift)",
+    };
+    DriftFlag {
+        record: e.record.clone(),
+        metric: k,
+        basis,
+        previous: base,
+        value: v,
+        change,
+        message: format!(
+            "{} changed from {} to {}{rel} {since}",
+            k.as_str(),
+            crate::units::eng(base, k.unit()),
+            crate::units::eng(v, k.unit())
+        ),
+    }
+}
+
+/// Flags where a key metric changed beyond its threshold (`thresholds` overrides the
+/// defaults by metric), entries sorted by date: a step from the previous record, or a slow
+/// drift whose sum since the unit's first record crosses the threshold (flagged once, at the
+/// crossing, unless a step flag already marks that record).
 pub fn unit_drift(
     entries: &[HistoryEntry],
     thresholds: &[(KeyMetric, Threshold)],
@@ -484,35 +532,25 @@ pub fn unit_drift(
             .map(|(_, t)| *t)
             .unwrap_or(k.default_threshold());
         let mut prev: Option<f64> = None;
+        let mut first: Option<f64> = None;
+        let mut crossed = false;
         for e in entries {
             let Some(v) = e.values.get(k) else { continue };
+            let mut stepped = false;
             if let Some(p) = prev {
-                let change = v - p;
-                let beyond = match th {
-                    Threshold::Relative(f) => p != 0.0 && (change / p).abs() > f,
-                    Threshold::Absolute(a) => change.abs() > a,
-                };
-                if beyond {
-                    let rel = if p != 0.0 {
-                        format!(" ({:+.1} %)", change / p * 100.0)
-                    } else {
-                        String::new()
-                    };
-                    flags.push(DriftFlag {
-                        record: e.record.clone(),
-                        metric: k,
-                        previous: p,
-                        value: v,
-                        change,
-                        message: format!(
-                            "{} changed from {} to {}{rel} since the previous record",
-                            k.as_str(),
-                            crate::units::eng(p, k.unit()),
-                            crate::units::eng(v, k.unit())
-                        ),
-                    });
+                if beyond(th, p, v - p) {
+                    flags.push(drift_flag(e, k, DriftBasis::PreviousRecord, p, v));
+                    stepped = true;
                 }
             }
+            if let Some(f) = first {
+                let out = beyond(th, f, v - f);
+                if out && !crossed && !stepped {
+                    flags.push(drift_flag(e, k, DriftBasis::FirstRecord, f, v));
+                }
+                crossed = out;
+            }
+            first.get_or_insert(v);
             prev = Some(v);
         }
     }
@@ -768,5 +806,24 @@ mod tests {
         let p = population(&units, &[], DEFAULT_OUTLIER_Z);
         assert_eq!(p.outliers.len(), 1);
         assert_eq!(p.outliers[0].unit, "BAD");
+    }
+
+    #[test]
+    fn slow_drift_is_flagged_once_at_the_crossing() {
+        // Limit current falling 2 % per record: each step is within the 5 % default, the sum
+        // since the first record passes 5 % at the third step (1 - 0.98^3 = 5.9 %).
+        let entries: Vec<HistoryEntry> = (0..6)
+            .map(|k| HistoryEntry {
+                record: format!("r{k}"),
+                started_utc: format!("2026-11-0{}T09:00:00.000Z", k + 1),
+                outcome: "completed".into(),
+                verdict: None,
+                values: KeyValues(vec![(KeyMetric::LimitCurrent, Some(1.0 * 0.98f64.powi(k)))]),
+            })
+            .collect();
+        let flags = unit_drift(&entries, &[]);
+        assert_eq!(flags.len(), 1, "{flags:?}");
+        assert_eq!(flags[0].record, "r3");
+        assert_eq!(flags[0].basis, DriftBasis::FirstRecord);
     }
 }

@@ -130,6 +130,9 @@ fn usage_errors_exit_2_with_a_hint() {
     let out = regulus(&["report", "--no-design", "nowhere"], tmp.path());
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("not a record folder"));
+    let out = regulus(&["report", recs[0].to_str().unwrap()], tmp.path());
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("no design.toml snapshot"));
     let out = regulus(&["history", "SN-9999"], tmp.path());
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("--records"));

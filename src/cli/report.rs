@@ -99,14 +99,6 @@ pub fn coded(e: crate::report::ReportError) -> anyhow::Error {
     }
 }
 
-/// The unit folder and records root of a record folder.
-pub fn unit_and_root(record: &Path) -> Option<(String, PathBuf)> {
-    let unit_dir = record.parent()?;
-    let unit = unit_dir.file_name()?.to_string_lossy().into_owned();
-    let root = unit_dir.parent()?.to_path_buf();
-    Some((unit, root))
-}
-
 pub fn run(args: Args) -> anyhow::Result<u8> {
     let aopts = args
         .analysis
@@ -125,25 +117,29 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let exp = if args.no_design {
         None
     } else {
-        let path = args
-            .design
-            .clone()
-            .unwrap_or_else(|| args.record.join("design.toml"));
+        let path = match &args.design {
+            Some(p) => p.clone(),
+            None => {
+                let snap = args.record.join("design.toml");
+                if !snap.is_file() {
+                    return Err(CodedError::new(
+                        EXIT_USAGE,
+                        format!(
+                            "{}: the record has no design.toml snapshot; give --design FILE, \
+                             or --no-design for metrics only",
+                            args.record.display()
+                        ),
+                    )
+                    .into());
+                }
+                snap
+            }
+        };
         Some(load_expectation(&path)?)
     };
-    let info = crate::report::load_run_info(&args.record).map_err(coded)?;
+    crate::report::load_run_info(&args.record).map_err(coded)?;
     // Earlier records of the same unit, for drift flags.
-    let earlier = match unit_and_root(&args.record) {
-        Some((unit, root)) => crate::report::history(&root, &unit, &aopts)
-            .map(|h| {
-                h.entries
-                    .into_iter()
-                    .filter(|e| e.started_utc < info.started_utc)
-                    .collect()
-            })
-            .unwrap_or_default(),
-        None => Vec::new(),
-    };
+    let earlier = crate::report::earlier_entries(&args.record, &aopts);
     let opts = crate::report::ReportOptions {
         analysis: aopts,
         earlier,

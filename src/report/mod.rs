@@ -369,6 +369,41 @@ pub fn write_report(
     Ok(Written { summary, files })
 }
 
+/// [`write_report`] against a loaded design and its computed expectation (what the runner
+/// holds when a run ends).
+pub fn write_report_for_design(
+    dir: &Path,
+    design: &crate::design::Design,
+    expectation: &crate::design::Expectation,
+    opts: &ReportOptions,
+) -> Result<Written, ReportError> {
+    let exp = DesignExpectation::from_design(design, expectation);
+    write_report(dir, Some(&exp), opts)
+}
+
+/// History entries of the same unit that started before the record in `dir` (the record's
+/// folder sits in `<records>/<unit>/`), oldest first, for drift flags. Unreadable siblings
+/// are skipped; no siblings give an empty list.
+pub fn earlier_entries(dir: &Path, opts: &AnalysisOptions) -> Vec<HistoryEntry> {
+    let Ok(info) = load_run_info(dir) else {
+        return Vec::new();
+    };
+    let Some(unit_dir) = dir.parent() else {
+        return Vec::new();
+    };
+    let (Some(unit), Some(root)) = (unit_dir.file_name(), unit_dir.parent()) else {
+        return Vec::new();
+    };
+    history(root, &unit.to_string_lossy(), opts)
+        .map(|h| {
+            h.entries
+                .into_iter()
+                .filter(|e| e.started_utc < info.started_utc)
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
 /// The plots a record gets (only those with data).
 pub fn charts_for<'a>(
     curve: &'a [analysis::CurvePoint],
