@@ -5,13 +5,16 @@
 //! transports, instruments, the runner and the record writer sit at the edges.
 
 pub mod analysis;
+pub mod bench;
 pub mod cli;
 pub mod compare;
 pub mod config;
 pub mod control;
 pub mod design;
 pub mod measure;
+pub mod protocol;
 pub mod record;
 pub mod report;
 pub mod rng;
+pub mod transport;
 pub mod units;
