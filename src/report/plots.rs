@@ -137,10 +137,23 @@ fn s<E: std::fmt::Debug>(e: E) -> String {
     format!("{e:?}")
 }
 
+/// Largest magnitude plotted: readings beyond it are instrument garbage, and plotters'
+/// integer pixel arithmetic overflows on absurd coordinates.
+const SANE: f64 = 1e6;
+
+fn sane(v: f64) -> bool {
+    v.is_finite() && v.abs() < SANE
+}
+
+/// True when a point lies inside the axis ranges (points outside are not drawn).
+fn inside(p: (f64, f64), xr: (f64, f64), yr: (f64, f64)) -> bool {
+    p.0 >= xr.0 && p.0 <= xr.1 && p.1 >= yr.0 && p.1 <= yr.1
+}
+
 fn range_of(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
     let mut lo = f64::INFINITY;
     let mut hi = f64::NEG_INFINITY;
-    for v in values.filter(|v| v.is_finite()) {
+    for v in values.filter(|v| sane(*v)) {
         lo = lo.min(v);
         hi = hi.max(v);
     }
@@ -178,16 +191,28 @@ fn draw_vi<DB: DrawingBackend>(
         .map(|r| r.1)
         .unwrap_or(1.0);
     if let Some(e) = exp {
-        imax = imax.max(e.limit_current.worst_case.max);
-        vmax = vmax.max(e.vout.worst_case.max);
-        for (i, v) in e.curve.iter().chain(&e.curve_low).chain(&e.curve_high) {
-            imax = imax.max(*i);
-            vmax = vmax.max(*v);
+        let extra = [
+            (e.limit_current.worst_case.max, e.vout.worst_case.max),
+            (e.limit_current.nominal, e.vout.nominal),
+        ];
+        for (i, v) in e
+            .curve
+            .iter()
+            .chain(&e.curve_low)
+            .chain(&e.curve_high)
+            .chain(extra.iter())
+        {
+            if sane(*i) && sane(*v) {
+                imax = imax.max(*i);
+                vmax = vmax.max(*v);
+            }
         }
     }
     let imax = if imax > 0.0 { imax * 1.1 } else { 1.0 };
     // Head room above the curve for the legend.
     let vmax = if vmax > 0.0 { vmax * 1.5 } else { 1.0 };
+    let (xr, yr) = ((0.0, imax), (0.0, vmax));
+    let keep = |p: &(f64, f64)| inside(*p, xr, yr);
     let mut chart = ChartBuilder::on(root)
         .caption("Output voltage against load current", (FONT, 22))
         .margin(12)
@@ -217,6 +242,7 @@ fn draw_vi<DB: DrawingBackend>(
             };
             let mut ring = scaled(&e.curve_high, vb.max);
             ring.extend(scaled(&e.curve_low, vb.min).into_iter().rev());
+            ring.retain(keep);
             chart.draw_series([Polygon::new(ring, fill)])
         } else {
             let vb = e.vout.worst_case;
@@ -238,6 +264,7 @@ fn draw_vi<DB: DrawingBackend>(
             let isc = e.short_circuit_current.map(|b| b.nominal).unwrap_or(il);
             vec![(0.0, vn), (il, vn), (isc, 0.0)]
         };
+        let pts: Vec<(f64, f64)> = pts.into_iter().filter(keep).collect();
         chart
             .draw_series(DashedLineSeries::new(pts, 10, 6, EXPECTED.stroke_width(2)))
             .map_err(s)?
@@ -251,13 +278,15 @@ fn draw_vi<DB: DrawingBackend>(
             curve
                 .iter()
                 .step_by(stride(curve.len()))
-                .map(|p| Circle::new((p.current, p.voltage), 3, MEASURED.stroke_width(1))),
+                .map(|p| (p.current, p.voltage))
+                .filter(keep)
+                .map(|p| Circle::new(p, 3, MEASURED.stroke_width(1))),
         )
         .map_err(s)?
         .label("measured (circles)")
         .legend(|(x, y)| Circle::new((x + 9, y), 3, MEASURED.stroke_width(1)));
     if let Some(k) = &metrics.knee {
-        if let Some(p) = k.fixed_drop {
+        if let Some(p) = k.fixed_drop.filter(|p| keep(&(p.current, p.voltage))) {
             chart
                 .draw_series([TriangleMarker::new(
                     (p.current, p.voltage),
@@ -272,7 +301,7 @@ fn draw_vi<DB: DrawingBackend>(
                 ))
                 .legend(|(x, y)| TriangleMarker::new((x + 9, y), 7, KNEE_A.filled()));
         }
-        if let Some(p) = k.two_segment {
+        if let Some(p) = k.two_segment.filter(|p| keep(&(p.current, p.voltage))) {
             chart
                 .draw_series([Rectangle::new(
                     [
@@ -321,6 +350,7 @@ fn draw_regulation<DB: DrawingBackend>(
         .iter()
         .filter(|p| p.voltage >= thr && p.current <= i_max)
         .map(|p| (p.current, (p.voltage - v_nl) * 1000.0))
+        .filter(|p| sane(p.0) && sane(p.1))
         .collect();
     let xr = pad(
         range_of(pts.iter().map(|p| p.0)).unwrap_or((0.0, 1.0)),
@@ -365,7 +395,11 @@ fn draw_regulation<DB: DrawingBackend>(
         let x_end = range_of(pts.iter().map(|p| p.0))
             .map(|r| r.1)
             .unwrap_or(xr.1);
-        let line = vec![(0.0, 0.0), (x_end, -r.ohms * x_end * 1000.0)];
+        let y_end = (-r.ohms * x_end * 1000.0).clamp(yr.0, yr.1);
+        let line: Vec<(f64, f64)> = [(0.0, 0.0), (x_end, y_end)]
+            .into_iter()
+            .filter(|p| inside(*p, (xr.0.min(0.0), xr.1), yr))
+            .collect();
         chart
             .draw_series(DashedLineSeries::new(line, 10, 6, EXPECTED.stroke_width(2)))
             .map_err(s)?
@@ -413,6 +447,7 @@ fn draw_short_circuit<DB: DrawingBackend>(
             series
                 .iter()
                 .step_by(stride(series.len()))
+                .filter(|p| inside(**p, xr, yr))
                 .map(|p| Circle::new(*p, 3, MEASURED.stroke_width(1))),
         )
         .map_err(s)?
@@ -425,6 +460,7 @@ fn draw_short_circuit<DB: DrawingBackend>(
                 let t = xr.0.max(0.0) + (xr.1 - xr.0.max(0.0)) * k as f64 / n as f64;
                 (t, f.i_inf + (f.i_0 - f.i_inf) * (-t / f.tau_s).exp())
             })
+            .filter(|p| inside(*p, xr, yr))
             .collect();
         chart
             .draw_series(DashedLineSeries::new(line, 10, 6, EXPECTED.stroke_width(2)))
@@ -475,6 +511,7 @@ fn draw_history<DB: DrawingBackend>(
             .iter()
             .zip(&xs)
             .filter_map(|(e, x)| e.values.get(k).map(|v| (*x, (v / b - 1.0) * 100.0)))
+            .filter(|p| sane(p.0) && sane(p.1))
             .collect();
         series.push((k, c, m, pts));
     }
@@ -549,7 +586,8 @@ fn draw_histogram<DB: DrawingBackend>(
     values: &[f64],
     spec: Option<Limits>,
 ) -> DrawResult {
-    let vals: Vec<f64> = values.iter().copied().filter(|v| v.is_finite()).collect();
+    let vals: Vec<f64> = values.iter().copied().filter(|v| sane(*v)).collect();
+    let spec = spec.filter(|sp| sane(sp.min) && sane(sp.max));
     let mut r = range_of(vals.iter().copied()).unwrap_or((0.0, 1.0));
     if let Some(sp) = spec {
         r = (r.0.min(sp.min), r.1.max(sp.max));
