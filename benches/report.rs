@@ -37,9 +37,15 @@ fn bench_report(c: &mut Criterion) {
             let curve = analysis::curve_points(&rows);
             let dwell = analysis::dwell_series(&rows);
             let charts = report::charts_for(&curve, &dwell, &s.metrics, Some(&exp));
-            let svgs: Vec<(&str, String)> = charts
+            let svgs: Vec<(&str, &str, String)> = charts
                 .iter()
-                .map(|c| (c.name(), c.to_svg(report::plots::SIZE).expect("svg")))
+                .map(|c| {
+                    (
+                        c.name(),
+                        c.caption(),
+                        c.to_svg(report::plots::SIZE).expect("svg"),
+                    )
+                })
                 .collect();
             let mut page = Vec::new();
             report::html::write_html(&mut page, &info, &s, &svgs).expect("html");

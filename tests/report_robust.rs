@@ -102,7 +102,7 @@ proptest! {
         for c in &charts {
             // A chart may refuse odd data with an error; it must not panic.
             if let Ok(svg) = c.to_svg((400, 300)) {
-                svgs.push((c.name(), svg));
+                svgs.push((c.name(), c.caption(), svg));
             }
         }
         let mut page = Vec::new();

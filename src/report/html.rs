@@ -53,7 +53,7 @@ pub fn write_html<W: Write>(
     mut w: W,
     info: &RunInfo,
     s: &Summary,
-    svgs: &[(&str, String)],
+    svgs: &[(&str, &str, String)],
 ) -> std::io::Result<()> {
     let e = escape;
     writeln!(
@@ -79,6 +79,14 @@ pub fn write_html<W: Write>(
         e(&info.unit),
         e(&info.plan_name)
     )?;
+    if info.outcome == crate::record::Outcome::Running {
+        writeln!(
+            w,
+            "<p><strong>Incomplete record:</strong> run.json still says the run is in progress. If \
+             no process is writing it, the run stopped unexpectedly; the figures below cover only \
+             the rows taken.</p>"
+        )?;
+    }
     writeln!(
         w,
         "<div class=\"caution\" id=\"cautions\"><strong>Cautions.</strong> Supplies under test \
@@ -365,14 +373,14 @@ pub fn write_html<W: Write>(
     }
 
     writeln!(w, "<h2>Plots</h2>")?;
-    for (name, svg) in svgs {
+    for (name, caption, svg) in svgs {
         // Drop the XML declaration if present; the SVG element itself is inlined.
         let body = svg.find("<svg").map(|i| &svg[i..]).unwrap_or(svg.as_str());
         writeln!(
             w,
             "<figure id=\"plot-{}\">{body}<figcaption>{}</figcaption></figure>",
             e(name),
-            e(&name.replace('_', " "))
+            e(caption)
         )?;
     }
     writeln!(

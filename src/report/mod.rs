@@ -354,7 +354,7 @@ pub fn write_report(
             c.to_png(&p, plots::SIZE)?;
             files.push(p);
         }
-        svgs.push((c.name(), svg));
+        svgs.push((c.name(), c.caption(), svg));
     }
     let mut page = Vec::new();
     html::write_html(&mut page, &rec.info, &summary, &svgs).map_err(|source| {

@@ -83,6 +83,28 @@ impl Chart<'_> {
         }
     }
 
+    /// A sentence describing the plot, for figure captions.
+    pub fn caption(&self) -> &'static str {
+        match self {
+            Chart::VoltageCurrent { .. } => {
+                "Output voltage against load current: measured points, the design's nominal \
+                 curve and worst-case band, and the knee by both methods."
+            }
+            Chart::Regulation { .. } => {
+                "Regulation region: change from the no-load voltage against load current, with \
+                 the least-squares line whose slope is the output resistance."
+            }
+            Chart::ShortCircuit { .. } => {
+                "Short-circuit current over the dwell with the fitted first-order curve \
+                 (junction heating moves the limit)."
+            }
+            Chart::History { .. } => {
+                "Key metrics of one unit over dates, as change from its first record."
+            }
+            Chart::Histogram { .. } => "Distribution across units with the spec limits.",
+        }
+    }
+
     /// Draw as an SVG document (text as `<text>` elements).
     pub fn to_svg(&self, size: (u32, u32)) -> Result<String, PlotError> {
         let mut s = String::new();
