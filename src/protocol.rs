@@ -575,7 +575,7 @@ pub fn unit_prefix_multiplier(unit: &str) -> Option<f64> {
         return Some(1.0);
     }
     // Whole-word units that begin with a prefix letter.
-    const BARE: [&str; 4] = ["mho", "min", "Pa", "Hz"];
+    const BARE: [&str; 5] = ["mho", "min", "Pa", "Hz", "ppm"];
     if BARE.contains(&unit) {
         return Some(1.0);
     }

@@ -271,17 +271,28 @@ impl Instrument {
                 self.send_locked(&mut port, q).await?;
                 drop(port);
                 let deadline = sent + self.cfg.reply_timeout;
-                match self
+                // The reply is a line that is not a stream line. A partial stream line (the
+                // link opened mid-line) is not one either, so prefer a reply in the IEEE 488.2
+                // identity form (four comma-separated fields); otherwise take the last
+                // non-stream line seen when the deadline passes.
+                let mut fallback: Option<String> = None;
+                let got = self
                     .wait_stream(stream, deadline, |t, line| {
-                        (t >= sent
-                            && !line.trim().is_empty()
-                            && self.cfg.reply.parse(line).is_err())
-                        .then(|| line.trim().to_string())
+                        let l = line.trim();
+                        if t < sent || l.is_empty() || self.cfg.reply.parse(line).is_ok() {
+                            return None;
+                        }
+                        if crate::protocol::parse_identity(l).is_some() {
+                            return Some(l.to_string());
+                        }
+                        fallback = Some(l.to_string());
+                        None
                     })
-                    .await
-                {
-                    Ok(s) => return Ok(s),
-                    Err(e) => last = self.err(q, e),
+                    .await;
+                match (got, fallback) {
+                    (Ok(s), _) => return Ok(s),
+                    (Err(LinkError::Timeout), Some(f)) => return Ok(f),
+                    (Err(e), _) => last = self.err(q, e),
                 }
                 continue;
             }
@@ -562,6 +573,23 @@ impl Instrument {
             if let Err(e) = self.send_locked(&mut port, c).await {
                 errors.push(e);
             }
+        }
+        // A link known to be closed cannot have delivered the sequence, even if the write
+        // went into a socket buffer: say so, so the user checks the instrument by hand.
+        let reader_closed = port.reader.as_ref().is_some_and(|r| r.is_closed());
+        let stream_ended = self
+            .stream
+            .as_ref()
+            .and_then(|s| s.state.lock().ok().map(|st| st.ended.is_some()))
+            .unwrap_or(false);
+        if errors.is_empty() && (reader_closed || stream_ended) {
+            errors.push(BenchError::Closed {
+                instrument: self.cfg.name.clone(),
+                command: format!(
+                    "safe state {}; make sure by hand that it is safe",
+                    cmds.join(" / ")
+                ),
+            });
         }
         errors
     }

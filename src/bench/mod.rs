@@ -398,3 +398,36 @@ impl BenchControl for Bench {
             .collect()
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The runner may move a bench and its futures between threads (tokio::spawn).
+    #[allow(dead_code)]
+    fn bench_and_its_futures_are_send(b: &mut Bench) {
+        fn is_send<T: Send>(_: &T) {}
+        fn is_sync<T: Sync>() {}
+        is_sync::<Bench>();
+        is_send(&b.measure());
+        is_send(&b.set_load(LoadMode::ConstantCurrent, 0.1));
+        is_send(&b.safe_state());
+    }
+
+    #[test]
+    fn control_errors_do_not_repeat_the_instrument() {
+        let e = control_error(BenchError::NoReply {
+            instrument: "dmm".into(),
+            command: "MEAS:VOLT?".into(),
+            ms: 500,
+        });
+        assert_eq!(e.instrument, "dmm");
+        assert!(
+            e.detail
+                .starts_with("no reply to 'MEAS:VOLT?' within 500 ms"),
+            "{}",
+            e.detail
+        );
+        assert_eq!(e.to_string().matches("'dmm'").count(), 1);
+    }
+}

@@ -5,9 +5,11 @@
 
 use std::io::Write as _;
 use std::path::Path;
+use std::pin::Pin;
 use std::sync::Mutex;
+use std::task::Poll;
 use std::time::Duration;
-use tokio::io::{AsyncRead, AsyncReadExt, AsyncWrite, AsyncWriteExt};
+use tokio::io::{AsyncRead, AsyncReadExt, AsyncWrite, AsyncWriteExt, ReadBuf};
 use tokio::time::Instant;
 
 /// Longest line kept; longer runs without a terminator are cut into lines of this size.
@@ -120,14 +122,26 @@ impl<R: AsyncRead + Unpin> LineReader<R> {
             if self.closed {
                 break;
             }
-            match tokio::time::timeout(Duration::ZERO, self.src.read(&mut chunk)).await {
-                Err(_) => break,
-                Ok(Ok(0)) => {
+            // Poll the link once, without a timer (a zero timeout would still wait for the
+            // timer's next millisecond tick).
+            let src = &mut self.src;
+            let once = std::future::poll_fn(|cx| {
+                let mut rb = ReadBuf::new(&mut chunk);
+                match Pin::new(&mut *src).poll_read(cx, &mut rb) {
+                    Poll::Ready(Ok(())) => Poll::Ready(Some(Ok(rb.filled().len()))),
+                    Poll::Ready(Err(e)) => Poll::Ready(Some(Err(e))),
+                    Poll::Pending => Poll::Ready(None),
+                }
+            })
+            .await;
+            match once {
+                None => break,
+                Some(Ok(0)) => {
                     self.closed = true;
                     break;
                 }
-                Ok(Ok(n)) => self.buf.extend_from_slice(&chunk[..n]),
-                Ok(Err(e)) => {
+                Some(Ok(n)) => self.buf.extend_from_slice(&chunk[..n]),
+                Some(Err(e)) => {
                     let err = io_err(e);
                     if err == LinkError::Closed {
                         self.closed = true;
