@@ -1,6 +1,7 @@
 //! The HTML report opened in headless Chromium: the page must render its tables and inline
 //! SVG plots. Skips with a notice when chromium is absent, except when `CI` is set (then it
-//! fails). Set `REGULUS_KEEP_REPORT=DIR` to keep the record, plots and screenshot in DIR.
+//! fails). Set `REGULUS_KEEP_REPORT=DIR` to keep the record, plots and screenshot in DIR, and
+//! `REGULUS_CHROMIUM=PATH` to choose the browser.
 
 mod report_support;
 
@@ -10,7 +11,13 @@ use report_support as sup;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+/// The browser: `REGULUS_CHROMIUM` when set (a missing path counts as absent), otherwise the
+/// first of the usual names on PATH.
 fn chromium() -> Option<PathBuf> {
+    if let Some(p) = std::env::var_os("REGULUS_CHROMIUM") {
+        let p = PathBuf::from(p);
+        return p.is_file().then_some(p);
+    }
     ["chromium", "chromium-browser", "google-chrome"]
         .iter()
         .find_map(|name| {
