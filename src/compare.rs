@@ -826,4 +826,36 @@ mod tests {
         assert_eq!(flags[0].record, "r3");
         assert_eq!(flags[0].basis, DriftBasis::FirstRecord);
     }
+
+    #[test]
+    fn limit_model_from_design_files_agrees_with_the_design_model() {
+        // The comparison's limit model re-derives the limit from nominal element values
+        // (I = V_sense / R for a plain clamp, I_sc = V_BE / (k R) for foldback); the design
+        // model computes the same at its junction temperatures, so they agree within a few %.
+        for (text, name) in [
+            (
+                include_str!("../samples/teaching-lab-0-20v.toml"),
+                "teaching-lab",
+            ),
+            (
+                include_str!("../samples/fixed-12v-3a-foldback.toml"),
+                "fixed-12v",
+            ),
+        ] {
+            let d = crate::design::Design::parse(text, name).unwrap();
+            let e = crate::design::expect_with(&d, 200, 1);
+            let x = DesignExpectation::from_design(&d, &e);
+            let lm = x.limit.unwrap();
+            let i_model = lm.clamp.sense_voltage() / lm.sense_ohms;
+            let i_design = match lm.clamp {
+                Clamp::Foldback { .. } => e.short_circuit_current.nominal,
+                _ => e.limit_current.nominal,
+            };
+            assert!(
+                (i_model / i_design - 1.0).abs() < 0.05,
+                "{name}: {i_model} vs {i_design}"
+            );
+            assert_eq!(x.vout, e.vout.setting_band);
+        }
+    }
 }
