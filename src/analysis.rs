@@ -312,6 +312,21 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
     }
 
     let knee = no_load.map(|nl| knee_metrics(&curve, nl.voltage, d, opts.regulation_span));
+    if let Some(k) = &knee {
+        if k.fixed_drop.is_none() {
+            notes.push(format!(
+                "no curve point fell below {:.4} V ({} % under no load): the limit was not reached",
+                k.threshold_voltage,
+                d * 100.0
+            ));
+        } else if k.two_segment.is_none() {
+            notes.push(
+                "two-segment knee: needs two regulation points and two limit-line points whose \
+                 lines meet inside the measured range"
+                    .into(),
+            );
+        }
+    }
     let threshold = knee.as_ref().map(|k| k.threshold_voltage);
 
     let full_load = match (threshold, opts.full_load_current) {
@@ -500,7 +515,10 @@ fn knee_metrics(curve: &[CurvePoint], v_nl: f64, d: f64, span: f64) -> KneeMetri
         }
         let i = (lfit.intercept + lfit.slope * rfit.intercept) / den;
         let v = rfit.intercept + rfit.slope * i;
-        (i.is_finite() && v.is_finite()).then_some(CurvePoint {
+        // Reject an intersection far outside the measured curve (near-parallel lines).
+        let i_max = curve.iter().map(|p| p.current).fold(0.0, f64::max);
+        let plausible = i > 0.0 && i <= 2.0 * i_max && v > 0.0 && v <= 1.5 * v_nl;
+        (i.is_finite() && v.is_finite() && plausible).then_some(CurvePoint {
             current: i,
             voltage: v,
         })
@@ -900,5 +918,22 @@ mod tests {
         let m = analyse(&[], &AnalysisOptions::default());
         assert!(m.no_load.is_none() && m.knee.is_none() && m.short_circuit.is_none());
         assert!(!m.notes.is_empty());
+    }
+
+    #[test]
+    fn sweep_that_never_limits_has_no_knee_and_says_why() {
+        let rows: Vec<Row> = (0..10)
+            .map(|k| {
+                let i = k as f64 * 0.1;
+                row(StepKind::LoadSweep, k as f64, 12.0 - 0.05 * i, i)
+            })
+            .collect();
+        let m = analyse(&rows, &AnalysisOptions::default());
+        let k = m.knee.unwrap();
+        assert!(k.fixed_drop.is_none() && k.two_segment.is_none());
+        assert!(m.limit_current().is_none());
+        assert!(m.notes.iter().any(|n| n.contains("limit was not reached")));
+        // The regulation figures still exist.
+        assert!((m.output_resistance.unwrap().ohms - 0.05).abs() < 1e-9);
     }
 }
