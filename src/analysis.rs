@@ -165,6 +165,8 @@ pub struct OutputResistance {
     pub points: usize,
     /// Highest load current among the fitted points, A.
     pub max_current: f64,
+    /// The fitted line's output voltage at zero current, V.
+    pub intercept_voltage: f64,
 }
 
 /// The limit knee by both methods.
@@ -383,6 +385,7 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
                 std_uncertainty: f.slope_u,
                 points: f.n,
                 max_current: xs.iter().copied().fold(f64::NEG_INFINITY, f64::max),
+                intercept_voltage: f.intercept,
             })
         }
         _ => None,

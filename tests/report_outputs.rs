@@ -69,6 +69,7 @@ fn summary_metrics_match_hand_calculation() {
     // Sweep V = 12 - 0.05 I: output resistance 0.05 ohm (points 0..0.6 A; the regulation
     // region stops at 80 % of the fixed-drop knee).
     assert!((m.output_resistance.unwrap().ohms - 0.05).abs() < 1e-9);
+    assert!((m.output_resistance.unwrap().intercept_voltage - 12.0).abs() < 1e-9);
     // Fixed drop (d = 2 %): threshold 11.76 V between (0.8 A, 11.96 V) and (1.0 A, 11.0 V):
     // I = 0.8 + 0.2 * (0.2 / 0.96) = 0.841667 A.
     let k = m.knee.unwrap();

@@ -417,8 +417,10 @@ fn draw_regulation<DB: DrawingBackend>(
         let x_end = range_of(pts.iter().map(|p| p.0))
             .map(|r| r.1)
             .unwrap_or(xr.1);
-        let y_end = (-r.ohms * x_end * 1000.0).clamp(yr.0, yr.1);
-        let line: Vec<(f64, f64)> = [(0.0, 0.0), (x_end, y_end)]
+        // The fitted line itself: its intercept need not sit exactly on the no-load point.
+        let y0 = ((r.intercept_voltage - v_nl) * 1000.0).clamp(yr.0, yr.1);
+        let y_end = ((r.intercept_voltage - v_nl - r.ohms * x_end) * 1000.0).clamp(yr.0, yr.1);
+        let line: Vec<(f64, f64)> = [(0.0, y0), (x_end, y_end)]
             .into_iter()
             .filter(|p| inside(*p, (xr.0.min(0.0), xr.1), yr))
             .collect();
