@@ -241,8 +241,9 @@ pub struct Limit {
     pub vbe_v: f64,
     #[serde(default = "default_junction_spread")]
     pub vbe_spread_v: f64,
-    /// Foldback: divider from the sense resistor's supply side to the output (top) and from the
-    /// limiter's base to the output (bottom); k = bottom / (top + bottom).
+    /// Foldback: divider from the pass-device end of the sense resistor to ground, its tap on
+    /// the limiter's base (top: emitter end to base; bottom: base to ground); the limiter's
+    /// emitter sits on the output. k = bottom / (top + bottom).
     #[serde(default)]
     pub divider_top: Option<Resistor>,
     #[serde(default)]
