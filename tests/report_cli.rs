@@ -155,7 +155,7 @@ fn corrupt_readings_name_the_file_and_line() {
     assert_eq!(out.status.code(), Some(2));
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(
-        err.contains("readings.csv, line 5") && err.contains("load_swoop"),
+        err.contains("readings.csv: line 5") && err.contains("load_swoop"),
         "{err}"
     );
 }
@@ -263,4 +263,31 @@ fn report_uses_the_records_design_snapshot_and_exits_1_on_fail() {
     .unwrap();
     let broken = regulus(&["report", &recs[0]], tmp.path());
     assert_eq!(broken.status.code(), Some(2));
+}
+
+#[test]
+fn a_record_left_running_by_a_dead_process_reads_as_incomplete() {
+    // ARCHITECTURE.md: outcome still `running` and no live writer reads as incomplete.
+    let tmp = tempfile::tempdir().unwrap();
+    let recs = unit_records(tmp.path());
+    let run = recs[1].join("run.json");
+    let text = std::fs::read_to_string(&run).unwrap();
+    std::fs::write(&run, text.replace("\"completed\"", "\"running\"")).unwrap();
+    let out = regulus(
+        &["report", "--no-design", recs[1].to_str().unwrap()],
+        tmp.path(),
+    );
+    assert_eq!(out.status.code(), Some(0));
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(recs[1].join("summary.json")).unwrap())
+            .unwrap();
+    assert_eq!(summary["record_state"], "incomplete");
+    let html = std::fs::read_to_string(recs[1].join("report.html")).unwrap();
+    assert!(html.contains("Incomplete record"));
+    let out = regulus(&["history", "SN-0100", "--csv"], tmp.path());
+    let csv = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        csv.lines().nth(2).unwrap().contains(",incomplete,"),
+        "{csv}"
+    );
 }

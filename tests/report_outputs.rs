@@ -51,8 +51,16 @@ fn expectation() -> DesignExpectation {
     }
 }
 
+/// Rows of the fixed readings, read through the record module from a temporary file.
+fn read(text: &str) -> Result<Vec<regulus::record::Row>, regulus::record::RecordError> {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let p = dir.path().join("readings.csv");
+    std::fs::write(&p, text).expect("write readings");
+    regulus::record::read_rows(&p)
+}
+
 fn summary() -> report::Summary {
-    let rows = report::parse_readings(READINGS).expect("fixed readings parse");
+    let rows = read(READINGS).expect("fixed readings parse");
     let info: RunInfo = serde_json::from_str(RUN).expect("fixed run.json parses");
     report::summarize(
         &info,
@@ -191,10 +199,6 @@ fn bad_readings_report_the_line() {
     let mut text = READINGS.to_string();
     text.push_str("2026-11-02T09:00:15.000Z,15.000,2,short_circuit,6,off,,18,4,twelve,0.001,0.0,0.001,18.000,0.002,,,31,0.1,\n");
     text.push_str("2026-11-02T09:00:16.000Z,16.000,2,short_circuit,7,off,,18,4,12.0,0.001,0.0,0.001,18.000,0.002,,,31,0.1,\n");
-    let (line, detail) = report::parse_readings(&text).unwrap_err();
-    assert_eq!(line, 17);
-    assert!(
-        detail.contains("column 10") && detail.contains("twelve"),
-        "{detail}"
-    );
+    let err = read(&text).unwrap_err().to_string();
+    assert!(err.contains("line 17") && err.contains("twelve"), "{err}");
 }

@@ -90,11 +90,15 @@ pub fn load_expectation(path: &Path) -> anyhow::Result<crate::compare::DesignExp
 /// Turn a report error into an anyhow error with the right exit code: an unreadable or
 /// malformed record is a usage error (2), anything else aborts (3).
 pub fn coded(e: crate::report::ReportError) -> anyhow::Error {
+    use crate::record::RecordError;
     use crate::report::ReportError;
     match e {
-        ReportError::Read { .. } | ReportError::Parse { .. } => {
-            CodedError::new(EXIT_USAGE, e.to_string()).into()
+        ReportError::Record(RecordError::Io { action, .. })
+            if action != "read" && action != "list" =>
+        {
+            e.into()
         }
+        ReportError::Record(_) => CodedError::new(EXIT_USAGE, e.to_string()).into(),
         other => other.into(),
     }
 }

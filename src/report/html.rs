@@ -79,13 +79,19 @@ pub fn write_html<W: Write>(
         e(&info.unit),
         e(&info.plan_name)
     )?;
-    if info.outcome == crate::record::Outcome::Running {
-        writeln!(
+    match s.record_state.as_str() {
+        "incomplete" => writeln!(
             w,
-            "<p><strong>Incomplete record:</strong> run.json still says the run is in progress. If \
-             no process is writing it, the run stopped unexpectedly; the figures below cover only \
-             the rows taken.</p>"
-        )?;
+            "<p id=\"state\"><strong>Incomplete record:</strong> the run stopped without \
+             finishing run.json (no process holds it). The figures below cover only the rows \
+             taken.</p>"
+        )?,
+        "running" => writeln!(
+            w,
+            "<p id=\"state\"><strong>Run in progress:</strong> a process is still writing this \
+             record; the figures below cover the rows taken so far.</p>"
+        )?,
+        _ => {}
     }
     writeln!(
         w,

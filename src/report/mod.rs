@@ -13,7 +13,7 @@ use crate::analysis::{self, AnalysisOptions, Metrics};
 use crate::compare::{
     self, Comparison, DesignExpectation, DriftFlag, HistoryEntry, KeyValues, Verdict,
 };
-use crate::record::{Cell, Outcome, Row, RunInfo, StepKind, READINGS_HEADER};
+use crate::record::{self, Outcome, RecordError, RecordState, Row, RunInfo, RunRecord};
 use serde::Serialize;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -24,161 +24,35 @@ pub const SUMMARY_SCHEMA_VERSION: u32 = 1;
 /// A report problem, phrased so the user knows which file to check.
 #[derive(Debug, thiserror::Error)]
 pub enum ReportError {
-    #[error("{path}: cannot read: {source}")]
-    Read {
-        path: PathBuf,
-        source: std::io::Error,
-    },
+    /// The record could not be read (file, line and what to check come from the record).
+    #[error(transparent)]
+    Record(#[from] RecordError),
     #[error("{path}: cannot write: {source}")]
     Write {
         path: PathBuf,
         source: std::io::Error,
     },
-    #[error("{path}, line {line}: {detail}")]
-    Parse {
-        path: PathBuf,
-        line: u64,
-        detail: String,
-    },
     #[error(transparent)]
     Plot(#[from] plots::PlotError),
 }
 
-/// A record as read from its folder.
-#[derive(Debug, Clone)]
-pub struct Record {
-    pub dir: PathBuf,
-    pub info: RunInfo,
-    pub rows: Vec<Row>,
-}
-
-fn read_to_string(path: &Path) -> Result<String, ReportError> {
-    std::fs::read_to_string(path).map_err(|source| ReportError::Read {
-        path: path.to_path_buf(),
-        source,
-    })
-}
-
 /// Read `run.json` of a record folder.
 pub fn load_run_info(dir: &Path) -> Result<RunInfo, ReportError> {
-    let path = dir.join("run.json");
-    let text = read_to_string(&path)?;
-    serde_json::from_str(&text).map_err(|e| ReportError::Parse {
-        path,
-        line: e.line() as u64,
-        detail: format!("column {}: {e}", e.column()),
-    })
+    Ok(record::read_info(dir)?)
 }
 
-/// Read a record folder (`run.json` and `readings.csv`). The one place that parses the
-/// readings file here; to be swapped for the record module's readers.
-pub fn load_record(dir: &Path) -> Result<Record, ReportError> {
-    let info = load_run_info(dir)?;
-    let path = dir.join("readings.csv");
-    let text = read_to_string(&path)?;
-    let rows = parse_readings(&text).map_err(|(line, detail)| ReportError::Parse {
-        path: path.clone(),
-        line,
-        detail,
-    })?;
-    Ok(Record {
-        dir: dir.to_path_buf(),
-        info,
-        rows,
-    })
+/// Read a record folder (run.json, its state, readings.csv) through the record module.
+pub fn load_record(dir: &Path) -> Result<RunRecord, ReportError> {
+    Ok(record::read_run(dir)?)
 }
 
-/// Parse `readings.csv` text into rows; errors give the 1-based line.
-pub fn parse_readings(text: &str) -> Result<Vec<Row>, (u64, String)> {
-    let mut lines = text.lines();
-    let header = lines.next().unwrap_or("");
-    if header.trim_end() != READINGS_HEADER {
-        return Err((
-            1,
-            "unexpected header; this is not a schema-1 readings.csv".to_string(),
-        ));
+/// Words for a record's state in the summary: `finished`, `running` or `incomplete`.
+pub fn state_word(state: RecordState) -> &'static str {
+    match state {
+        RecordState::Finished(_) => "finished",
+        RecordState::Running => "running",
+        RecordState::Incomplete => "incomplete",
     }
-    let mut rows = Vec::new();
-    for (idx, line) in lines.enumerate() {
-        let lineno = idx as u64 + 2;
-        if line.trim().is_empty() {
-            continue;
-        }
-        let f: Vec<&str> = line.split(',').collect();
-        if f.len() != 20 {
-            // A crash can leave a half-written last line: skip it, keep the rest.
-            if idx + 2 == text.lines().count() {
-                continue;
-            }
-            return Err((lineno, format!("expected 20 fields, found {}", f.len())));
-        }
-        let num = |i: usize, name: &str| -> Result<Option<f64>, (u64, String)> {
-            let t = f[i].trim();
-            if t.is_empty() {
-                return Ok(None);
-            }
-            t.parse::<f64>().map(Some).map_err(|_| {
-                (
-                    lineno,
-                    format!("column {} ({name}): not a number: '{t}'", i + 1),
-                )
-            })
-        };
-        let int = |i: usize, name: &str| -> Result<u64, (u64, String)> {
-            f[i].trim().parse::<u64>().map_err(|_| {
-                (
-                    lineno,
-                    format!("column {} ({name}): not a whole number: '{}'", i + 1, f[i]),
-                )
-            })
-        };
-        let cell = |i: usize| -> Result<Option<Cell>, (u64, String)> {
-            let t = f[i].trim();
-            if t.is_empty() {
-                return Ok(None);
-            }
-            if t == "overrange" {
-                return Ok(Some(Cell::Overrange));
-            }
-            let mean = t.parse::<f64>().map_err(|_| {
-                (
-                    lineno,
-                    format!("column {}: not a number or 'overrange': '{t}'", i + 1),
-                )
-            })?;
-            let spread = num(i + 1, "spread")?.unwrap_or(0.0);
-            Ok(Some(Cell::Value { mean, spread }))
-        };
-        let step_kind = StepKind::parse(f[3].trim()).ok_or_else(|| {
-            (
-                lineno,
-                format!("column 4 (step_kind): unknown kind '{}'", f[3]),
-            )
-        })?;
-        rows.push(Row {
-            utc: f[0].to_string(),
-            elapsed_s: num(1, "elapsed_s")?.unwrap_or(0.0),
-            step: int(2, "step")? as usize,
-            step_kind,
-            point: int(4, "point")? as usize,
-            load_mode: f[5].trim().to_string(),
-            setpoint: num(6, "setpoint")?,
-            source_volts: num(7, "source_volts")?,
-            samples: int(8, "samples")? as u32,
-            output_voltage: cell(9)?,
-            output_current: cell(11)?,
-            input_voltage: cell(13)?,
-            input_current: cell(15)?,
-            temperature: cell(17)?,
-            flags: f[19]
-                .split(';')
-                .map(str::trim)
-                .filter(|s| !s.is_empty())
-                .map(String::from)
-                .collect(),
-        });
-    }
-    Ok(rows)
 }
 
 /// Analysis settings recorded in the summary.
@@ -199,6 +73,9 @@ pub struct Summary {
     pub design_name: String,
     pub started_utc: String,
     pub outcome: Outcome,
+    /// `finished`, `running` (a live writer holds the record) or `incomplete` (the run
+    /// stopped without finishing run.json).
+    pub record_state: String,
     pub settings: AnalysisSettings,
     pub metrics: Metrics,
     pub comparison: Option<Comparison>,
@@ -249,6 +126,12 @@ pub fn summarize(
         design_name: info.design.name.clone(),
         started_utc: info.started_utc.clone(),
         outcome: info.outcome,
+        record_state: if info.outcome == Outcome::Running {
+            "running"
+        } else {
+            "finished"
+        }
+        .to_string(),
         settings: AnalysisSettings {
             knee_drop: aopts.knee_drop,
             regulation_span: aopts.regulation_span,
@@ -317,6 +200,7 @@ pub fn write_report(
 ) -> Result<Written, ReportError> {
     let rec = load_record(dir)?;
     let mut summary = summarize(&rec.info, &rec.rows, exp, opts);
+    summary.record_state = state_word(rec.state).to_string();
     // Drift flags name the record by its folder.
     let folder = dir
         .file_name()
@@ -459,28 +343,30 @@ pub fn history_from_entries(unit: &str, mut entries: Vec<HistoryEntry>) -> Histo
     }
 }
 
-/// Read a unit's records under `records/<unit>/`. Each record's `summary.json` is used when
-/// present (it is derived from the readings); otherwise the readings are analysed.
+/// Read a unit's records under `records/<unit>/` (listed by the record module, oldest
+/// first). Each record's `summary.json` is used when present (it is derived from the
+/// readings); otherwise the readings are analysed. A run whose writer died reads as
+/// `incomplete`; folders without a readable run.json are listed in `unreadable`.
 pub fn history(records: &Path, unit: &str, opts: &AnalysisOptions) -> Result<History, ReportError> {
-    let udir = records.join(unit);
-    let rd = std::fs::read_dir(&udir).map_err(|source| ReportError::Read {
-        path: udir.clone(),
-        source,
-    })?;
-    let mut dirs: Vec<PathBuf> = rd
-        .filter_map(|e| e.ok())
-        .map(|e| e.path())
-        .filter(|p| p.join("run.json").is_file())
-        .collect();
-    dirs.sort();
-    let mut entries = Vec::with_capacity(dirs.len());
+    let runs = record::list_runs(records, unit)?;
+    let mut entries = Vec::with_capacity(runs.len());
     let mut unreadable = Vec::new();
-    for d in dirs {
-        let name = d
+    for run in runs {
+        let name = run
+            .dir
             .file_name()
             .map(|s| s.to_string_lossy().into_owned())
             .unwrap_or_default();
-        match entry_from_dir(&d, &name, opts) {
+        let result = match run.info {
+            Ok(info) => entry_from_dir(&run.dir, &name, &info, opts).map(|mut e| {
+                if run.state == Some(RecordState::Incomplete) {
+                    e.outcome = "incomplete".to_string();
+                }
+                e
+            }),
+            Err(err) => Err(err.into()),
+        };
+        match result {
             Ok(e) => entries.push(e),
             Err(e) => unreadable.push(format!("{name}: {e}")),
         }
@@ -499,20 +385,20 @@ struct SummaryLite {
 fn entry_from_dir(
     d: &Path,
     name: &str,
+    info: &RunInfo,
     opts: &AnalysisOptions,
 ) -> Result<HistoryEntry, ReportError> {
-    let info = load_run_info(d)?;
     let sp = d.join("summary.json");
     if let Ok(text) = std::fs::read_to_string(&sp) {
         if let Ok(s) = serde_json::from_str::<SummaryLite>(&text) {
-            return Ok(entry_for(name, &info, &s.metrics, s.verdict));
+            return Ok(entry_for(name, info, &s.metrics, s.verdict));
         }
     }
-    let rec = load_record(d)?;
-    let m = analysis::analyse(&rec.rows, opts);
+    let rows = record::read_rows(&d.join(record::READINGS_FILE))?;
+    let m = analysis::analyse(&rows, opts);
     let verdict =
         matches!(info.outcome, Outcome::Aborted | Outcome::Failed).then_some(Verdict::Fail);
-    Ok(entry_for(name, &info, &m, verdict))
+    Ok(entry_for(name, info, &m, verdict))
 }
 
 fn fmt_opt(v: Option<f64>, decimals: usize) -> String {
