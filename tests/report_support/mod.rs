@@ -292,48 +292,13 @@ pub fn run_rows(
     rows
 }
 
-fn fmt_cell(c: &Option<Cell>) -> (String, String) {
-    match c {
-        Some(Cell::Value { mean, spread }) => (format!("{mean:.6}"), format!("{spread:.6}")),
-        Some(Cell::Overrange) => ("overrange".into(), String::new()),
-        None => (String::new(), String::new()),
-    }
-}
-
-fn opt(v: Option<f64>) -> String {
-    v.map(|x| format!("{x}")).unwrap_or_default()
-}
-
-/// Write rows as `readings.csv` text (schema 1 layout).
+/// Write rows as `readings.csv` text with the record module's own field formatting.
 pub fn readings_csv(rows: &[Row]) -> String {
     let mut s = String::new();
     s.push_str(READINGS_HEADER);
     s.push('\n');
     for r in rows {
-        let mut f = vec![
-            r.utc.clone(),
-            format!("{:.3}", r.elapsed_s),
-            r.step.to_string(),
-            r.step_kind.as_str().to_string(),
-            r.point.to_string(),
-            r.load_mode.clone(),
-            opt(r.setpoint),
-            opt(r.source_volts),
-            r.samples.to_string(),
-        ];
-        for c in [
-            &r.output_voltage,
-            &r.output_current,
-            &r.input_voltage,
-            &r.input_current,
-            &r.temperature,
-        ] {
-            let (a, b) = fmt_cell(c);
-            f.push(a);
-            f.push(b);
-        }
-        f.push(r.flags.join(";"));
-        s.push_str(&f.join(","));
+        s.push_str(&regulus::record::row_fields(r).join(","));
         s.push('\n');
     }
     s
