@@ -18,6 +18,7 @@ pub mod record;
 pub mod report;
 pub mod rng;
 pub mod runner;
+pub mod sim;
 pub mod spice;
 pub mod transport;
 pub mod units;

@@ -1,9 +1,154 @@
-//! `regulus demo`: not yet written.
+//! `regulus demo`: no hardware, no arguments. Starts the built-in simulated bench in-process on
+//! pseudo-terminals and loopback TCP, runs the standard plan on two simulated units of the
+//! teaching-lab demo design (one built right, one with a wrong sense resistor), writes their
+//! records and reports, and says where they are. Uses the same code path as `regulus run`.
 
-/// Options of `regulus demo`.
+use super::run::{self as run_cmd, Prepared};
+use super::{CodedError, EXIT_ABORTED, EXIT_OK, EXIT_USAGE};
+use crate::bench::{Bench, BenchConfig};
+use crate::design::Design;
+use crate::runner::CancelToken;
+use crate::sim::{Fault, SimBench, SimOptions};
+use anyhow::Context;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// The demo design (invented) and plan, built into the binary so the demo runs anywhere.
+const DESIGN: &str = include_str!("../../samples/teaching-lab-0-20v.toml");
+const PLAN: &str = include_str!("../../samples/plans/standard.toml");
+
+/// Options of `regulus demo` (none are needed).
 #[derive(Debug, clap::Args)]
-pub struct Args {}
+pub struct Args {
+    /// Folder for the demo's inputs, records and reports (created when missing).
+    #[arg(long, value_name = "DIR", default_value = "regulus-demo")]
+    pub records: PathBuf,
+    /// Seed of the simulated units' part tolerances and meter noise.
+    #[arg(long, value_name = "N", default_value_t = 2026)]
+    pub seed: u64,
+}
 
-pub fn run(_args: Args) -> anyhow::Result<u8> {
-    Err(super::CodedError::new(super::EXIT_USAGE, "`regulus demo` is not available yet").into())
+/// One simulated unit of the demo.
+struct DemoUnit {
+    serial: &'static str,
+    what: &'static str,
+    fault: Option<&'static str>,
+}
+
+const UNITS: [DemoUnit; 2] = [
+    DemoUnit {
+        serial: "TLB-0001",
+        what: "built as designed",
+        fault: None,
+    },
+    DemoUnit {
+        serial: "TLB-0002",
+        what: "a 0.68 ohm sense resistor fitted where the design has 0.39 ohm",
+        fault: Some("sense=0.68"),
+    },
+];
+
+fn usage(message: impl Into<String>) -> anyhow::Error {
+    CodedError::new(EXIT_USAGE, message).into()
+}
+
+fn write_input(dir: &Path, name: &str, text: &str) -> anyhow::Result<PathBuf> {
+    let path = dir.join(name);
+    std::fs::write(&path, text).with_context(|| format!("writing {}", path.display()))?;
+    Ok(path)
+}
+
+pub fn run(args: Args) -> anyhow::Result<u8> {
+    let inputs = args.records.join("inputs");
+    std::fs::create_dir_all(&inputs)
+        .map_err(|e| usage(format!("cannot create {}: {e}", inputs.display())))?;
+    let design_path = write_input(&inputs, "teaching-lab-0-20v.toml", DESIGN)?;
+    let plan_path = write_input(&inputs, "standard.toml", PLAN)?;
+    let design = Design::parse(DESIGN, &design_path.display().to_string())?;
+
+    let stdout = std::io::stdout();
+    let mut out = stdout.lock();
+    writeln!(out, "regulus demo: a simulated bench, no hardware needed.")?;
+    writeln!(
+        out,
+        "design: {} ({})",
+        design.design.name,
+        design_path.display()
+    )?;
+    writeln!(out, "plan:   standard ({})", plan_path.display())?;
+    writeln!(
+        out,
+        "On a real bench this plan shorts the unit's output: the pass device then dissipates about\n\
+         V_in x I_sc and its heatsink gets hot. Follow local codes and licensed practice.\n"
+    )?;
+    drop(out);
+
+    let cancel = CancelToken::new();
+    let c = cancel.clone();
+    ctrlc::set_handler(move || {
+        eprintln!("\ninterrupt: stopping, switching the simulated load and source off...");
+        c.cancel();
+    })
+    .context("cannot install the Ctrl-C handler")?;
+    let rt = tokio::runtime::Builder::new_multi_thread()
+        .worker_threads(2)
+        .enable_all()
+        .build()
+        .context("cannot start the async runtime")?;
+
+    let mut results = Vec::new();
+    for (k, unit) in UNITS.iter().enumerate() {
+        let mut opts = SimOptions::default().seed(args.seed + k as u64);
+        if let Some(spec) = unit.fault {
+            opts = opts.fault(Fault::parse(spec).map_err(usage)?);
+        }
+        let sim = SimBench::start(&design, opts).context("starting the simulated bench")?;
+        let bench_path = write_input(
+            &inputs,
+            &format!("bench-{}.toml", unit.serial),
+            &sim.bench_toml(),
+        )?;
+        println!(
+            "unit {} ({}): simulated instruments on",
+            unit.serial, unit.what
+        );
+        for p in sim.ports() {
+            println!("  {:<8} {}", p.name, p.link);
+        }
+        let run_args = run_cmd::Args {
+            bench: bench_path.clone(),
+            design: design_path.clone(),
+            plan: plan_path.clone(),
+            unit: unit.serial.to_string(),
+            records: args.records.clone(),
+            operator: Some("demo".to_string()),
+            note: Some(format!("simulated unit: {}", unit.what)),
+            yes: true,
+        };
+        let prep: Prepared = run_cmd::prepare(&run_args)?;
+        let cfg = BenchConfig::load(&bench_path).map_err(|e| usage(e.to_string()))?;
+        let code = rt.block_on(async {
+            let mut bench = Bench::open(&cfg)
+                .await
+                .map_err(|e| anyhow::Error::from(CodedError::new(EXIT_ABORTED, e.to_string())))?;
+            run_cmd::execute(&mut bench, &prep, &run_args, &cancel).await
+        })?;
+        sim.shutdown();
+        println!();
+        results.push((unit, code));
+        if cancel.is_cancelled() {
+            break;
+        }
+    }
+    let worst = results.iter().map(|(_, c)| *c).max().unwrap_or(EXIT_OK);
+    println!(
+        "demo finished; records, plots and reports are under {}",
+        args.records.display()
+    );
+    // The demo's own exit code: 0 when it ran through (one unit is meant to fail).
+    Ok(if worst >= EXIT_ABORTED {
+        worst
+    } else {
+        EXIT_OK
+    })
 }
