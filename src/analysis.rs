@@ -242,7 +242,18 @@ pub struct Metrics {
     pub foldback_ratio: Option<f64>,
     pub line_regulation: Option<LineRegulation>,
     pub max_temperature: Option<f64>,
+    /// Conditions of the curve row nearest the knee (for reading the limit model hot).
+    pub knee_conditions: Option<KneeConditions>,
     pub notes: Vec<String>,
+}
+
+/// What the pass device saw at the knee: its case temperature and dissipation.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct KneeConditions {
+    /// Thermometer reading (pass device case), degC.
+    pub case_temperature: Option<f64>,
+    /// (V_in - V_out) * I_out, W; V_in measured, or the programmed source voltage.
+    pub pass_watts: Option<f64>,
 }
 
 impl Metrics {
@@ -399,6 +410,11 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
 
     let line_regulation = line_regulation(rows, opts, no_load.map(|p| p.voltage));
 
+    let knee_conditions = knee
+        .as_ref()
+        .and_then(|k| k.two_segment.or(k.fixed_drop))
+        .and_then(|kp| knee_conditions(rows, kp.current));
+
     let max_temperature = rows
         .iter()
         .filter_map(|r| r.value(Quantity::Temperature))
@@ -416,8 +432,33 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         foldback_ratio,
         line_regulation,
         max_temperature,
+        knee_conditions,
         notes,
     }
+}
+
+/// Conditions of the curve row whose current is nearest `i_knee` (among rows with V and I).
+fn knee_conditions(rows: &[Row], i_knee: f64) -> Option<KneeConditions> {
+    let r = rows
+        .iter()
+        .filter(|r| is_curve_kind(r.step_kind))
+        .filter(|r| curve_point(r).is_some())
+        .min_by(|a, b| {
+            let da = (a.value(Quantity::OutputCurrent).unwrap_or(f64::INFINITY) - i_knee).abs();
+            let db = (b.value(Quantity::OutputCurrent).unwrap_or(f64::INFINITY) - i_knee).abs();
+            da.total_cmp(&db)
+        })?;
+    let v = r.value(Quantity::OutputVoltage)?;
+    let i = r.value(Quantity::OutputCurrent)?;
+    let pass_watts = r
+        .value(Quantity::InputVoltage)
+        .or(r.source_volts)
+        .map(|vin| (vin - v) * i)
+        .filter(|w| w.is_finite() && *w >= 0.0);
+    Some(KneeConditions {
+        case_temperature: r.value(Quantity::Temperature).filter(|t| t.is_finite()),
+        pass_watts,
+    })
 }
 
 /// Load regulation in percent: (V_NL - V_FL) / V_ref * 100.
@@ -535,7 +576,11 @@ fn knee_metrics(curve: &[CurvePoint], v_nl: f64, d: f64, span: f64) -> KneeMetri
     }
 }
 
-/// Short-circuit rows of the dwell as (t from dwell start, current), and the dwell rows.
+/// Output voltage, as a fraction of the regulated output, below which a short-circuit row
+/// counts as shorted (10 %: a project choice well above the drop across leads and load).
+pub const SHORTED_FRACTION: f64 = 0.1;
+
+/// Short-circuit rows of the dwell as (t from the first shorted reading, current).
 pub fn dwell_series(rows: &[Row]) -> Vec<(f64, f64)> {
     let sc: Vec<&Row> = rows
         .iter()
@@ -552,8 +597,23 @@ pub fn dwell_series(rows: &[Row]) -> Vec<(f64, f64)> {
     if sc.is_empty() || end < start {
         return Vec::new();
     }
+    // A reading flagged at the start of the dwell can straddle the moment the short is
+    // applied and still show the regulated output: keep only rows whose output is actually
+    // shorted (below SHORTED_FRACTION of the highest load-sweep voltage), or whose voltage
+    // was not measured.
+    let v_max = rows
+        .iter()
+        .filter(|r| r.step_kind == StepKind::LoadSweep)
+        .filter_map(|r| r.value(Quantity::OutputVoltage))
+        .filter(|v| v.is_finite())
+        .fold(f64::NEG_INFINITY, f64::max);
+    let shorted = |r: &Row| match r.value(Quantity::OutputVoltage) {
+        Some(v) if v_max > 0.0 => v < SHORTED_FRACTION * v_max,
+        _ => true,
+    };
     let pts: Vec<(f64, f64)> = sc[start..=end]
         .iter()
+        .filter(|r| shorted(r))
         .filter_map(|r| Some((r.elapsed_s, r.value(Quantity::OutputCurrent)?)))
         .filter(|(t, i)| t.is_finite() && i.is_finite())
         .collect();
@@ -647,6 +707,11 @@ pub fn fit_exponential(ts: &[f64], ys: &[f64]) -> Option<ExpFit> {
     if best_k == 0 || best_k == STEPS {
         return None;
     }
+    // A time constant under two sample intervals is not resolved by the data (a meter's
+    // settling or one transitional reading, not first-order heating).
+    let mut dts: Vec<f64> = ts[..n].windows(2).map(|w| w[1] - w[0]).collect();
+    dts.sort_by(|a, b| a.total_cmp(b));
+    let median_dt = dts[dts.len() / 2];
     // Golden-section refinement between the neighbours of the best grid point.
     let (mut a, mut b) = (grid[best_k - 1], grid[best_k + 1]);
     let g = (5f64.sqrt() - 1.0) / 2.0;
@@ -663,7 +728,7 @@ pub fn fit_exponential(ts: &[f64], ys: &[f64]) -> Option<ExpFit> {
     }
     let ln_tau = (a + b) / 2.0;
     let (ssr, i_inf, amp) = ssr_at(ln_tau);
-    if !ssr.is_finite() {
+    if !ssr.is_finite() || ln_tau.exp() < 2.0 * median_dt {
         return None;
     }
     Some(ExpFit {
@@ -938,5 +1003,46 @@ mod tests {
         assert!(m.notes.iter().any(|n| n.contains("limit was not reached")));
         // The regulation figures still exist.
         assert!((m.output_resistance.unwrap().ohms - 0.05).abs() < 1e-9);
+    }
+
+    #[test]
+    fn dwell_ignores_a_start_reading_taken_before_the_output_collapsed() {
+        // The first row flagged dwell_start still shows 12 V (the short was applied during
+        // the reading); the dwell starts at the first shorted row.
+        let mut rows = ideal_curve();
+        let mut first = row(StepKind::ShortCircuit, 100.0, 11.95, 0.4);
+        first.flags.push("dwell_start".into());
+        rows.push(first);
+        for k in 1..=10 {
+            let mut r = row(
+                StepKind::ShortCircuit,
+                100.0 + k as f64,
+                0.05,
+                1.0 + 0.01 * k as f64,
+            );
+            if k == 10 {
+                r.flags.push("dwell_end".into());
+            }
+            rows.push(r);
+        }
+        let sc = analyse(&rows, &AnalysisOptions::default())
+            .short_circuit
+            .unwrap();
+        assert_eq!(sc.points, 10);
+        assert!((sc.start_current - 1.01).abs() < 1e-12);
+        assert!((sc.dwell_s - 9.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_step_faster_than_the_sampling_is_not_a_time_constant() {
+        // One low first reading then a slow linear rise: the best exponential has a time
+        // constant under the 0.2 s sample interval, which the data cannot resolve.
+        let ts: Vec<f64> = (0..15).map(|k| k as f64 * 0.2).collect();
+        let is: Vec<f64> = ts
+            .iter()
+            .enumerate()
+            .map(|(k, t)| if k == 0 { 1.5 } else { 1.84 + 0.06 * t })
+            .collect();
+        assert!(fit_exponential(&ts, &is).is_none());
     }
 }

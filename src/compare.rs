@@ -50,11 +50,54 @@ impl Clamp {
     }
 }
 
-/// The limit model: sense resistance and clamp.
+/// The limit model: sense resistance and clamp, with what is needed to read it hot.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct LimitModel {
     pub sense_ohms: f64,
     pub clamp: Clamp,
+    /// Junction drop temperature coefficient, V per degC (about -0.002 V/degC, textbook).
+    #[serde(default = "default_tempco")]
+    pub tempco_v_per_c: f64,
+    /// Pass device junction-to-case thermal resistance, degC/W.
+    #[serde(default)]
+    pub pass_theta_jc: Option<f64>,
+}
+
+fn default_tempco() -> f64 {
+    -0.002
+}
+
+/// Temperature at which the design's junction drops are given (degC).
+pub const JUNCTION_REFERENCE_C: f64 = 25.0;
+
+impl LimitModel {
+    /// The clamp's sense voltage with the pass junctions at `pass_junction_c`: a diode
+    /// string's threshold rises as the pass junctions heat (V_sense = n V_F - m V_BE(T)); a
+    /// transistor limiter sits off the heatsink and is read at its reference temperature.
+    pub fn sense_voltage_at(&self, pass_junction_c: Option<f64>) -> f64 {
+        match (self.clamp, pass_junction_c) {
+            (
+                Clamp::DiodeString {
+                    diodes,
+                    v_f,
+                    pass_junctions,
+                    v_be,
+                },
+                Some(tj),
+            ) => {
+                let v_be_hot = v_be + self.tempco_v_per_c * (tj - JUNCTION_REFERENCE_C);
+                diodes as f64 * v_f - pass_junctions as f64 * v_be_hot
+            }
+            _ => self.clamp.sense_voltage(),
+        }
+    }
+
+    /// Estimated pass junction temperature from the case reading and dissipation at the knee
+    /// (T_j = T_case + P theta_jc), when both are known.
+    pub fn pass_junction_c(&self, k: &crate::analysis::KneeConditions) -> Option<f64> {
+        let t = k.case_temperature?;
+        Some(t + k.pass_watts.unwrap_or(0.0) * self.pass_theta_jc.unwrap_or(0.0))
+    }
 }
 
 /// The design's expectation as the comparison needs it: the bands of the measured metrics,
@@ -105,6 +148,8 @@ impl DesignExpectation {
             limit: clamp.map(|clamp| LimitModel {
                 sense_ohms: d.limit.sense.ohms,
                 clamp,
+                tempco_v_per_c: d.environment.junction_tempco_mv_per_c / 1000.0,
+                pass_theta_jc: Some(d.pass.theta_jc),
             }),
             curve: e.curve.clone(),
             curve_low: e.curve_low.clone(),
@@ -239,11 +284,35 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
 /// The preferred value nearest to `value` (by ratio), from E12 when one lies within
 /// `tolerance`, otherwise from E24 (IEC 60063 tables in `design::eseries`).
 pub fn nearest_preferred(value: f64, tolerance: f64) -> Option<f64> {
-    use crate::design::eseries::{nearest, Series};
-    [Series::E12, Series::E24]
-        .into_iter()
-        .filter_map(|series| nearest(value, series))
-        .find(|p| (value / p - 1.0).abs() <= tolerance)
+    preferred_in_range(value, value, tolerance)
+}
+
+/// A preferred value inside `[lo (1 - tol), hi (1 + tol)]`: from E12 when any lies there,
+/// otherwise from E24; among several, the one nearest (by ratio) to the range's geometric
+/// middle.
+pub fn preferred_in_range(lo: f64, hi: f64, tolerance: f64) -> Option<f64> {
+    use crate::design::eseries::{next_up, Series};
+    let (lo, hi) = (lo.min(hi), lo.max(hi));
+    if !(lo > 0.0 && hi.is_finite()) {
+        return None;
+    }
+    let (a, b) = (lo * (1.0 - tolerance), hi * (1.0 + tolerance));
+    let mid = (lo * hi).sqrt();
+    for series in [Series::E12, Series::E24] {
+        let mut found = Vec::new();
+        let mut c = next_up(a, series);
+        while let Some(v) = c.filter(|v| *v <= b) {
+            found.push(v);
+            c = next_up(v * (1.0 + 1e-6), series);
+        }
+        if let Some(best) = found
+            .into_iter()
+            .min_by(|x, y| (x / mid).ln().abs().total_cmp(&(y / mid).ln().abs()))
+        {
+            return Some(best);
+        }
+    }
+    None
 }
 
 /// Relative tolerance within which a fitted element value is said to match a preferred value
@@ -271,8 +340,31 @@ pub fn likely_causes(metrics: &Metrics, exp: &DesignExpectation, checks: &[Check
         };
         if let Some(c) = check.filter(|c| c.verdict != Verdict::Pass && c.measured > 0.0) {
             let i_nom = nominal_current.unwrap_or(c.nominal);
-            let v_sense = i_nom * model.sense_ohms;
-            let r_eff = v_sense / c.measured;
+            // A diode string's threshold depends on the pass junction temperature, which is
+            // bracketed by the case reading (no rise above the case) and the case reading plus
+            // dissipation times theta_jc (junction settled against the case).
+            let (tj_lo, tj_hi) = match (model.clamp, &metrics.knee_conditions) {
+                (Clamp::DiodeString { .. }, Some(k)) => (
+                    k.case_temperature,
+                    k.case_temperature.and_then(|_| model.pass_junction_c(k)),
+                ),
+                _ => (None, None),
+            };
+            let v_nom = i_nom * model.sense_ohms;
+            let (v_lo, v_hi) = match (tj_lo, tj_hi) {
+                (Some(_), Some(_)) => {
+                    let (x, y) = (model.sense_voltage_at(tj_lo), model.sense_voltage_at(tj_hi));
+                    (x.min(y), x.max(y))
+                }
+                _ => (v_nom, v_nom),
+            };
+            if let (Some(a), Some(b)) = (tj_lo, tj_hi) {
+                out.push(format!(
+                    "clamp read hot: pass junction estimated at {a:.0} to {b:.0} degC (case \
+                     reading, plus dissipation times theta_jc), threshold {v_lo:.3} to {v_hi:.3} V"
+                ));
+            }
+            let (r_lo, r_hi) = (v_lo / c.measured, v_hi / c.measured);
             let v_eff = c.measured * model.sense_ohms;
             let dev = (c.measured / i_nom - 1.0) * 100.0;
             let dir = if dev < 0.0 { "low" } else { "high" };
@@ -280,17 +372,24 @@ pub fn likely_causes(metrics: &Metrics, exp: &DesignExpectation, checks: &[Check
                 Clamp::Foldback { .. } => "short-circuit sense voltage (V_BE / k)",
                 _ => "clamp voltage",
             };
+            let fmt_range = |a: f64, b: f64, f: &dyn Fn(f64) -> String| {
+                if (b / a - 1.0).abs() < 0.005 {
+                    f(a)
+                } else {
+                    format!("{} to {}", f(a), f(b))
+                }
+            };
             out.push(format!(
                 "{} {:.0} % {dir}: implies an effective sense resistance of {} (design {}) or a \
-                 {what} of {:.3} V (design {:.3} V)",
+                 {what} of {:.3} V (design {})",
                 c.metric.replace('_', " "),
                 dev.abs(),
-                fmt_ohms(r_eff),
+                fmt_range(r_lo, r_hi, &fmt_ohms),
                 fmt_ohms(model.sense_ohms),
                 v_eff,
-                v_sense
+                fmt_range(v_lo, v_hi, &|v| format!("{v:.3} V")),
             ));
-            if let Some(pref) = nearest_preferred(r_eff, MATCH_TOLERANCE) {
+            if let Some(pref) = preferred_in_range(r_lo, r_hi, MATCH_TOLERANCE) {
                 if (pref / model.sense_ohms - 1.0).abs() > 0.01 {
                     out.push(format!(
                         "{} {:.0} % {dir}: matches a {} sense resistor fitted instead of {}",
@@ -313,12 +412,31 @@ pub fn likely_causes(metrics: &Metrics, exp: &DesignExpectation, checks: &[Check
                     if n < 1 {
                         continue;
                     }
-                    let v_alt = n as f64 * v_f - pass_junctions as f64 * v_be;
-                    if v_alt > 0.0 && (v_eff / v_alt - 1.0).abs() <= MATCH_TOLERANCE {
+                    let alt = LimitModel {
+                        clamp: Clamp::DiodeString {
+                            diodes: n as u32,
+                            v_f,
+                            pass_junctions,
+                            v_be,
+                        },
+                        ..model
+                    };
+                    let (a, b) = match (tj_lo, tj_hi) {
+                        (Some(_), Some(_)) => {
+                            (alt.sense_voltage_at(tj_lo), alt.sense_voltage_at(tj_hi))
+                        }
+                        _ => (alt.clamp.sense_voltage(), alt.clamp.sense_voltage()),
+                    };
+                    let (a, b) = (a.min(b), a.max(b));
+                    if a > 0.0
+                        && v_eff >= a * (1.0 - MATCH_TOLERANCE)
+                        && v_eff <= b * (1.0 + MATCH_TOLERANCE)
+                    {
                         out.push(format!(
                             "clamp voltage {:.3} V matches one junction {word} in the diode \
-                             string ({n} diodes instead of {diodes}: {:.3} V)",
-                            v_eff, v_alt
+                             string ({n} diodes instead of {diodes}: {})",
+                            v_eff,
+                            fmt_range(a, b, &|v| format!("{v:.3} V"))
                         ));
                     }
                 }
@@ -745,6 +863,8 @@ mod tests {
             limit: Some(LimitModel {
                 sense_ohms: 0.47,
                 clamp: Clamp::Transistor { v_be: 0.6 },
+                tempco_v_per_c: -0.002,
+                pass_theta_jc: None,
             }),
             curve: vec![],
             curve_low: vec![],
@@ -780,6 +900,8 @@ mod tests {
             limit: Some(LimitModel {
                 sense_ohms: r,
                 clamp,
+                tempco_v_per_c: -0.002,
+                pass_theta_jc: None,
             }),
             curve: vec![],
             curve_low: vec![],
@@ -857,5 +979,57 @@ mod tests {
             );
             assert_eq!(x.vout, e.vout.setting_band);
         }
+    }
+
+    #[test]
+    fn diode_string_limit_is_read_at_the_measured_temperature() {
+        // Diode string: V_sense = n V_F - m V_BE(T), V_BE falling 2 mV/degC (textbook value).
+        // Design: 3 x 0.65 V over a Darlington (2 x 0.65 V) and 0.39 ohm: 0.65 V, 1.667 A cold.
+        // Built with 0.68 ohm and tested with the pass junction at 40 degC: V_sense =
+        // 1.95 - 2 (0.65 - 0.002 * 15) = 0.71 V, so the limit reads 0.71 / 0.68 = 1.044 A;
+        // read cold that would imply 0.65 / 1.044 = 0.62 ohm, the wrong neighbour.
+        let clamp = Clamp::DiodeString {
+            diodes: 3,
+            v_f: 0.65,
+            pass_junctions: 2,
+            v_be: 0.65,
+        };
+        let exp = DesignExpectation {
+            design_name: "t".into(),
+            vout: band(20.0, 0.05, 0.03),
+            limit_current: band(0.65 / 0.39, 0.15, 0.08),
+            short_circuit_current: None,
+            limit: Some(LimitModel {
+                sense_ohms: 0.39,
+                clamp,
+                tempco_v_per_c: -0.002,
+                pass_theta_jc: Some(1.0),
+            }),
+            curve: vec![],
+            curve_low: vec![],
+            curve_high: vec![],
+        };
+        let measured = 0.71 / 0.68;
+        let checks = vec![check("limit_current", "A", measured, &exp.limit_current)];
+        let mut m = crate::analysis::analyse(&[], &Default::default());
+        // Case at 28 degC, 15 W in the pass device, theta_jc 1 degC/W: 28 to 43 degC.
+        m.knee_conditions = Some(crate::analysis::KneeConditions {
+            case_temperature: Some(28.0),
+            pass_watts: Some(15.0),
+        });
+        let causes = likely_causes(&m, &exp, &checks);
+        assert!(
+            causes
+                .iter()
+                .any(|c| c.contains("0.68 ohm sense resistor fitted instead of 0.39 ohm")),
+            "{causes:?}"
+        );
+        // Without the temperature the cold reading names the neighbour below.
+        m.knee_conditions = None;
+        let cold = likely_causes(&m, &exp, &checks);
+        assert!(
+            cold.iter().any(|c| c.contains("0.62 ohm sense resistor")),
+            "{cold:?}"
+        );
     }
 }

@@ -44,6 +44,8 @@ fn expectation() -> DesignExpectation {
         limit: Some(LimitModel {
             sense_ohms: 0.6,
             clamp: Clamp::Transistor { v_be: 0.6 },
+            tempco_v_per_c: -0.002,
+            pass_theta_jc: None,
         }),
         curve: vec![],
         curve_low: vec![],
@@ -97,6 +99,11 @@ fn summary_metrics_match_hand_calculation() {
     assert_eq!(sc.peak_temperature, Some(31.0));
     // Foldback ratio 1.10 / 0.841667.
     assert!((m.foldback_ratio.unwrap() - 1.1 / (0.8 + 0.2 * 0.2 / 0.96)).abs() < 1e-9);
+    // Knee conditions: first row nearest the 1.0 A knee is (11.0 V, 1.0 A) with 18.000 V in
+    // and 26 degC on the case: (18 - 11) * 1.0 = 7 W.
+    let kc = m.knee_conditions.unwrap();
+    assert_eq!(kc.case_temperature, Some(26.0));
+    assert!((kc.pass_watts.unwrap() - 7.0).abs() < 1e-9);
     assert_eq!(s.verdict, Some(Verdict::Pass));
 }
 

@@ -146,6 +146,8 @@ pub fn expectation() -> DesignExpectation {
         limit: Some(LimitModel {
             sense_ohms: R_SENSE,
             clamp: Clamp::Transistor { v_be: V_BE },
+            tempco_v_per_c: -0.002,
+            pass_theta_jc: None,
         }),
         curve: vec![],
         curve_low: vec![],
