@@ -140,6 +140,32 @@ pub fn linear_fit(xs: &[f64], ys: &[f64]) -> Option<LineFit> {
     })
 }
 
+/// Least squares with one pass of outlier rejection: points whose residual exceeds four
+/// robust standard deviations (1.4826 x the median absolute residual, the normal-consistent
+/// MAD) are dropped and the line refitted, when at least two points remain. A reading taken
+/// while the output was still settling then does not tilt a near-vertical limit line.
+pub fn robust_fit(xs: &[f64], ys: &[f64]) -> Option<LineFit> {
+    let first = linear_fit(xs, ys)?;
+    let n = xs.len().min(ys.len());
+    let res: Vec<f64> = (0..n)
+        .map(|i| (ys[i] - first.intercept - first.slope * xs[i]).abs())
+        .collect();
+    let mut sorted = res.clone();
+    sorted.sort_by(|a, b| a.total_cmp(b));
+    let mad = sorted[sorted.len() / 2];
+    let limit = 4.0 * 1.4826 * mad;
+    if limit.is_nan() || limit <= 0.0 {
+        return Some(first);
+    }
+    let keep: Vec<usize> = (0..n).filter(|i| res[*i] <= limit).collect();
+    if keep.len() == n || keep.len() < 2 {
+        return Some(first);
+    }
+    let kx: Vec<f64> = keep.iter().map(|i| xs[*i]).collect();
+    let ky: Vec<f64> = keep.iter().map(|i| ys[*i]).collect();
+    linear_fit(&kx, &ky).or(Some(first))
+}
+
 /// One point of a V-I curve.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct CurvePoint {
@@ -551,7 +577,7 @@ fn knee_metrics(curve: &[CurvePoint], v_nl: f64, d: f64, span: f64) -> KneeMetri
         }
         let lv: Vec<f64> = lim.iter().map(|p| p.voltage).collect();
         let li: Vec<f64> = lim.iter().map(|p| p.current).collect();
-        let lfit = linear_fit(&lv, &li)?;
+        let lfit = robust_fit(&lv, &li)?;
         // V = a + s I ; I = c + g V  =>  I = (c + g a) / (1 - g s)
         let den = 1.0 - lfit.slope * rfit.slope;
         if den.abs() < 1e-12 {
@@ -1044,5 +1070,21 @@ mod tests {
             .map(|(k, t)| if k == 0 { 1.5 } else { 1.84 + 0.06 * t })
             .collect();
         assert!(fit_exponential(&ts, &is).is_none());
+    }
+
+    #[test]
+    fn robust_fit_drops_a_settling_reading() {
+        // Limit line I = 1.7 + 0.005 V, plus one reading at (15.8 V, 1.08 A) taken while the
+        // output settled; the plain fit tilts, the robust fit recovers the line.
+        let mut v: Vec<f64> = (0..12).map(|k| 19.0 - 1.5 * k as f64).collect();
+        let mut i: Vec<f64> = v.iter().map(|v| 1.7 + 0.005 * v).collect();
+        v.push(15.8);
+        i.push(1.08);
+        let plain = linear_fit(&v, &i).unwrap();
+        let robust = robust_fit(&v, &i).unwrap();
+        assert!((plain.slope - 0.005).abs() > 0.005);
+        assert!((robust.slope - 0.005).abs() < 1e-12);
+        assert!((robust.intercept - 1.7).abs() < 1e-12);
+        assert_eq!(robust.n, 12);
     }
 }
