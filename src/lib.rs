@@ -4,8 +4,10 @@
 //! Pure modules (design, protocol parsing, plan expansion, analysis, comparison) do no I/O;
 //! transports, instruments, the runner and the record writer sit at the edges.
 
+pub mod analysis;
 pub mod bench;
 pub mod cli;
+pub mod compare;
 pub mod config;
 pub mod control;
 pub mod design;
@@ -13,6 +15,7 @@ pub mod measure;
 pub mod plan;
 pub mod protocol;
 pub mod record;
+pub mod report;
 pub mod rng;
 pub mod runner;
 pub mod sim;

@@ -47,6 +47,10 @@ pub fn sig3(x: f64) -> String {
     let s = format!("{:.*}", decimals, x);
     // Rounding may have carried into a new digit (999.6 -> 1000): re-format.
     let rounded: f64 = s.parse().unwrap_or(x);
+    if rounded == 0.0 {
+        // Below the 12 decimals shown (e.g. 1e-15): log10 would be -inf.
+        return s;
+    }
     let mag2 = rounded.abs().log10().floor() as i32;
     if mag2 != mag {
         let decimals = (2 - mag2).clamp(0, 12) as usize;
@@ -102,6 +106,8 @@ mod tests {
         assert_eq!(eng(-0.0123, "V"), "-12.3 mV");
         assert_eq!(eng(0.9996, "A"), "1.00 A");
         assert_eq!(eng(0.0, "W"), "0 W");
+        // Regression: a value far below the smallest prefix must not overflow.
+        assert_eq!(eng(1e-30, "A"), "0.000000000000 fA");
     }
 
     #[test]

@@ -1,9 +1,169 @@
-//! `regulus compare`: not yet written.
+//! `regulus compare --design D RECORD...`: re-evaluate records against a design (for instance a
+//! new revision) without rewriting them; across several units, flag outliers and give Cpk.
+//! Exit 1 when any verdict fails.
+
+use super::report::{analysis_args::AnalysisArgs, load_expectation};
+use super::{CodedError, EXIT_FAIL, EXIT_OK, EXIT_USAGE};
+use crate::compare::{self, KeyMetric, KeyValues, Verdict};
+use anyhow::Context;
+use std::io::Write;
+use std::path::PathBuf;
 
 /// Options of `regulus compare`.
 #[derive(Debug, clap::Args)]
-pub struct Args {}
+pub struct Args {
+    /// Design file to judge the records against.
+    #[arg(long, value_name = "FILE")]
+    pub design: PathBuf,
+    /// Record folders.
+    #[arg(required = true, value_name = "RECORD")]
+    pub records: Vec<PathBuf>,
+    /// Outlier limit on |z| across units.
+    #[arg(long, default_value_t = compare::DEFAULT_OUTLIER_Z)]
+    pub z_limit: f64,
+    /// Print JSON instead of a table.
+    #[arg(long)]
+    pub json: bool,
+    /// Draw a histogram of each specified metric across the records into DIR (SVG).
+    #[arg(long, value_name = "DIR")]
+    pub plot_dir: Option<PathBuf>,
+    #[command(flatten)]
+    pub analysis: AnalysisArgs,
+}
 
-pub fn run(_args: Args) -> anyhow::Result<u8> {
-    Err(super::CodedError::new(super::EXIT_USAGE, "`regulus compare` is not available yet").into())
+#[derive(serde::Serialize)]
+struct Judged {
+    record: String,
+    unit: String,
+    comparison: compare::Comparison,
+}
+
+#[derive(serde::Serialize)]
+struct Output {
+    design: String,
+    records: Vec<Judged>,
+    population: compare::Population,
+}
+
+pub fn run(args: Args) -> anyhow::Result<u8> {
+    let aopts = args
+        .analysis
+        .options()
+        .map_err(|m| CodedError::new(EXIT_USAGE, m))?;
+    if args.z_limit.is_nan() || args.z_limit <= 0.0 {
+        return Err(CodedError::new(EXIT_USAGE, "--z-limit must be positive (default 3)").into());
+    }
+    let exp = load_expectation(&args.design)?;
+    let mut judged = Vec::new();
+    let mut units: Vec<(String, KeyValues)> = Vec::new();
+    for r in &args.records {
+        let rec = crate::report::load_record(r)
+            .map_err(super::report::coded)
+            .with_context(|| format!("reading record {}", r.display()))?;
+        let mut ao = aopts.clone();
+        ao.nominal_voltage.get_or_insert(exp.vout.nominal);
+        let m = crate::analysis::analyse(&rec.rows, &ao);
+        let c = compare::compare(&m, &exp);
+        units.push((rec.info.unit.clone(), KeyValues::from_metrics(&m)));
+        judged.push(Judged {
+            record: r.display().to_string(),
+            unit: rec.info.unit.clone(),
+            comparison: c,
+        });
+    }
+    let specs = vec![
+        (KeyMetric::OutputVoltage, exp.vout.worst_case),
+        (KeyMetric::LimitCurrent, exp.limit_current.worst_case),
+    ]
+    .into_iter()
+    .chain(
+        exp.short_circuit_current
+            .map(|b| (KeyMetric::ShortCircuitCurrent, b.worst_case)),
+    )
+    .collect::<Vec<_>>();
+    let population = compare::population(&units, &specs, args.z_limit);
+    if let Some(dir) = &args.plot_dir {
+        std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
+        for (metric, spec) in &specs {
+            let values: Vec<f64> = units.iter().filter_map(|(_, kv)| kv.get(*metric)).collect();
+            let chart = crate::report::plots::Chart::Histogram {
+                metric: *metric,
+                values: &values,
+                spec: Some(*spec),
+            };
+            let svg = chart.to_svg(crate::report::plots::SIZE)?;
+            let path = dir.join(format!("{}.svg", metric.as_str()));
+            std::fs::write(&path, svg).with_context(|| format!("writing {}", path.display()))?;
+        }
+    }
+    let any_fail = judged.iter().any(|j| j.comparison.verdict == Verdict::Fail);
+    let out = Output {
+        design: exp.design_name.clone(),
+        records: judged,
+        population,
+    };
+    let mut w = std::io::stdout().lock();
+    if args.json {
+        serde_json::to_writer_pretty(&mut w, &out)?;
+        writeln!(w)?;
+    } else {
+        write_table(&mut w, &out)?;
+    }
+    Ok(if any_fail { EXIT_FAIL } else { EXIT_OK })
+}
+
+fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
+    writeln!(w, "design {}", out.design)?;
+    for j in &out.records {
+        let checks: Vec<String> = j
+            .comparison
+            .checks
+            .iter()
+            .map(|c| {
+                format!(
+                    "{} {} ({})",
+                    c.metric,
+                    crate::units::eng(c.measured, &c.unit),
+                    c.verdict.as_str()
+                )
+            })
+            .collect();
+        writeln!(
+            w,
+            "{:<9} {}  {}: {}",
+            j.comparison.verdict.as_str().to_uppercase(),
+            j.unit,
+            j.record,
+            checks.join(", ")
+        )?;
+        for cause in &j.comparison.likely_causes {
+            writeln!(w, "          likely cause: {cause}")?;
+        }
+    }
+    for s in &out.population.stats {
+        let cpk = match (s.cpk, s.spec) {
+            (Some(c), _) => format!("Cpk {c:.2}"),
+            (None, Some(_)) => format!("Cpk needs {}+ units", compare::MIN_UNITS_FOR_CPK),
+            (None, None) => "no spec limits".to_string(),
+        };
+        writeln!(
+            w,
+            "{:<22} n {:>3}  mean {:>10}  sigma {:>10}  {cpk}",
+            s.metric.as_str(),
+            s.n,
+            crate::units::eng(s.mean, s.metric.unit()),
+            crate::units::eng(s.sigma, s.metric.unit())
+        )?;
+    }
+    for o in &out.population.outliers {
+        writeln!(
+            w,
+            "OUTLIER {}: {} = {} (z = {:+.1})",
+            o.unit,
+            o.metric.as_str(),
+            crate::units::eng(o.value, o.metric.unit()),
+            o.z
+        )?;
+    }
+    Ok(())
 }

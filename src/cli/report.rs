@@ -1,9 +1,196 @@
-//! `regulus report`: not yet written.
+//! `regulus report RECORD`: regenerate a record's summary.json, plots and report.html, compared
+//! with the record's design snapshot (or another design file). Exit 1 on a failing verdict.
+
+use super::{CodedError, EXIT_FAIL, EXIT_OK, EXIT_USAGE};
+use analysis_args::AnalysisArgs;
+use anyhow::Context;
+use std::path::{Path, PathBuf};
 
 /// Options of `regulus report`.
 #[derive(Debug, clap::Args)]
-pub struct Args {}
+pub struct Args {
+    /// Record folder: <records>/<unit>/<UTC stamp>_<plan>.
+    pub record: PathBuf,
+    /// Design file to judge against (default: the record's design.toml snapshot).
+    #[arg(long, value_name = "FILE")]
+    pub design: Option<PathBuf>,
+    /// Write metrics only, without comparing against a design.
+    #[arg(long, conflicts_with = "design")]
+    pub no_design: bool,
+    /// Also write PNG plots beside the SVG plots.
+    #[arg(long)]
+    pub png: bool,
+    #[command(flatten)]
+    pub analysis: AnalysisArgs,
+}
 
-pub fn run(_args: Args) -> anyhow::Result<u8> {
-    Err(super::CodedError::new(super::EXIT_USAGE, "`regulus report` is not available yet").into())
+/// Analysis settings shared by `report`, `history` and `compare`.
+pub mod analysis_args {
+    use crate::analysis::{AnalysisOptions, RegulationReference};
+
+    /// Denominator of load regulation.
+    #[derive(Debug, Clone, Copy, clap::ValueEnum)]
+    pub enum ReferenceArg {
+        FullLoad,
+        NoLoad,
+        Nominal,
+    }
+
+    #[derive(Debug, Clone, clap::Args)]
+    pub struct AnalysisArgs {
+        /// Fixed-drop knee criterion: percent below the no-load voltage.
+        #[arg(long, value_name = "PERCENT", default_value_t = 2.0)]
+        pub knee_drop: f64,
+        /// Denominator of load regulation.
+        #[arg(long, value_enum, default_value = "full-load")]
+        pub regulation_reference: ReferenceArg,
+        /// Rated full-load current in amperes (default: the last regulating sweep point).
+        #[arg(long, value_name = "AMPERES")]
+        pub full_load: Option<f64>,
+    }
+
+    impl AnalysisArgs {
+        /// Checked analysis options, or a message saying what to fix.
+        pub fn options(&self) -> Result<AnalysisOptions, String> {
+            if !(self.knee_drop > 0.0 && self.knee_drop < 50.0) {
+                return Err(format!(
+                    "--knee-drop {} is out of range: give a percentage between 0 and 50 (default 2)",
+                    self.knee_drop
+                ));
+            }
+            if let Some(i) = self.full_load {
+                if !(i > 0.0 && i.is_finite()) {
+                    return Err(format!(
+                        "--full-load {i} must be a positive current in amperes"
+                    ));
+                }
+            }
+            Ok(AnalysisOptions {
+                knee_drop: self.knee_drop / 100.0,
+                reference: match self.regulation_reference {
+                    ReferenceArg::FullLoad => RegulationReference::FullLoad,
+                    ReferenceArg::NoLoad => RegulationReference::NoLoad,
+                    ReferenceArg::Nominal => RegulationReference::Nominal,
+                },
+                full_load_current: self.full_load,
+                ..AnalysisOptions::default()
+            })
+        }
+    }
+}
+
+/// Load a design file and compute the expectation the comparison needs. A bad design file
+/// is a configuration error (exit 2) located by file, line and column.
+pub fn load_expectation(path: &Path) -> anyhow::Result<crate::compare::DesignExpectation> {
+    let d = crate::design::Design::load(path)?;
+    let e = crate::design::expect(&d);
+    Ok(crate::compare::DesignExpectation::from_design(&d, &e))
+}
+
+/// Turn a report error into an anyhow error with the right exit code: an unreadable or
+/// malformed record is a usage error (2), anything else aborts (3).
+pub fn coded(e: crate::report::ReportError) -> anyhow::Error {
+    use crate::record::RecordError;
+    use crate::report::ReportError;
+    match e {
+        ReportError::Record(RecordError::Io { action, .. })
+            if action != "read" && action != "list" =>
+        {
+            e.into()
+        }
+        ReportError::Record(_) => CodedError::new(EXIT_USAGE, e.to_string()).into(),
+        other => other.into(),
+    }
+}
+
+pub fn run(args: Args) -> anyhow::Result<u8> {
+    let aopts = args
+        .analysis
+        .options()
+        .map_err(|m| CodedError::new(EXIT_USAGE, m))?;
+    if !args.record.join("run.json").is_file() {
+        return Err(CodedError::new(
+            EXIT_USAGE,
+            format!(
+                "{}: not a record folder (no run.json); give <records>/<unit>/<stamp>_<plan>",
+                args.record.display()
+            ),
+        )
+        .into());
+    }
+    let exp = if args.no_design {
+        None
+    } else {
+        let path = match &args.design {
+            Some(p) => p.clone(),
+            None => {
+                let snap = args.record.join("design.toml");
+                if !snap.is_file() {
+                    return Err(CodedError::new(
+                        EXIT_USAGE,
+                        format!(
+                            "{}: the record has no design.toml snapshot; give --design FILE, \
+                             or --no-design for metrics only",
+                            args.record.display()
+                        ),
+                    )
+                    .into());
+                }
+                snap
+            }
+        };
+        Some(load_expectation(&path)?)
+    };
+    crate::report::load_run_info(&args.record).map_err(coded)?;
+    // Earlier records of the same unit, for drift flags.
+    let earlier = crate::report::earlier_entries(&args.record, &aopts);
+    let opts = crate::report::ReportOptions {
+        analysis: aopts,
+        earlier,
+        png: args.png,
+    };
+    let written = crate::report::write_report(&args.record, exp.as_ref(), &opts)
+        .map_err(coded)
+        .with_context(|| format!("writing the report of {}", args.record.display()))?;
+    let mut out = std::io::stdout().lock();
+    print_outcome(&mut out, &written)?;
+    Ok(match written.summary.verdict {
+        Some(crate::compare::Verdict::Fail) => EXIT_FAIL,
+        _ => EXIT_OK,
+    })
+}
+
+fn print_outcome<W: std::io::Write>(
+    mut w: W,
+    written: &crate::report::Written,
+) -> std::io::Result<()> {
+    let s = &written.summary;
+    if let Some(c) = &s.comparison {
+        for ch in &c.checks {
+            writeln!(
+                w,
+                "{:<22} {:>10}  nominal {:>10}  worst case {} .. {}  {}",
+                ch.metric,
+                crate::units::eng(ch.measured, &ch.unit),
+                crate::units::eng(ch.nominal, &ch.unit),
+                crate::units::eng(ch.worst_case.min, &ch.unit),
+                crate::units::eng(ch.worst_case.max, &ch.unit),
+                ch.verdict.as_str().to_uppercase()
+            )?;
+        }
+        for cause in &c.likely_causes {
+            writeln!(w, "likely cause: {cause}")?;
+        }
+    }
+    for f in &s.drift {
+        writeln!(w, "DRIFT: {}", f.message)?;
+    }
+    match s.verdict {
+        Some(v) => writeln!(w, "verdict: {}", v.as_str().to_uppercase())?,
+        None => writeln!(w, "no design given: metrics only")?,
+    }
+    for f in &written.files {
+        writeln!(w, "wrote {}", f.display())?;
+    }
+    Ok(())
 }
