@@ -3,7 +3,7 @@
 
 mod link_support;
 
-use link_support::{pty_pair, pty_responder, pty_streamer, reply, runtime, Act};
+use link_support::{pty_pair, pty_responder, pty_streamer, reply, runtime, tcp_responder, Act};
 use regulus::bench::{Bench, BenchConfig, BenchError};
 use regulus::control::BenchControl;
 use regulus::measure::{Quantity, Reading, Role};
@@ -141,6 +141,58 @@ fn stale_stream_lines_are_not_used() {
     let e = later.unwrap_err();
     assert!(matches!(e, BenchError::NoReply { .. }), "{e:?}");
     assert!(e.to_string().contains("stream (output_voltmeter)"), "{e}");
+}
+
+/// Regression: a streamed line that arrived before the bench changed the load describes the
+/// old operating point; the first reading after the change (a short circuit read "at once")
+/// must not average it in.
+#[test]
+fn stream_lines_from_before_a_setting_change_are_not_used() {
+    let meter = pty_streamer(
+        vec!["DCV +5.0000 V OK\n".to_string(); 3],
+        Duration::from_millis(1),
+        false,
+        Some("Regulus Simulated Bench,SDMM-1,SN0010,1.0".to_string()),
+    );
+    let load = tcp_responder(|line| {
+        if line == "*IDN?" {
+            reply("Regulus Simulated Bench,SL-1,SN0011,1.0")
+        } else {
+            Act::Silent
+        }
+    });
+    let text = format!(
+        "{}{}",
+        serial_instrument(
+            "strm",
+            "\"output_voltmeter\"",
+            "tagged_stream_meter",
+            &meter.address,
+            "reply_timeout_ms = 300\n[instrument.reading]\nmax_age_ms = 5000",
+        ),
+        format!(
+            "[[instrument]]\nname = \"eload\"\nroles = [\"load\"]\npreset = \"scpi_load\"\ntcp = {{ host = \"127.0.0.1\", port = {} }}\n",
+            load.address
+        )
+    );
+    let cfg = config(&text);
+    let (before, after) = runtime().block_on(async {
+        let mut bench = Bench::open(&cfg).await.unwrap();
+        tokio::time::sleep(Duration::from_millis(100)).await;
+        let before = bench.read_role(Role::OutputVoltmeter).await;
+        bench
+            .set_load(regulus::measure::LoadMode::ConstantResistance, 0.05)
+            .await
+            .unwrap();
+        let after = bench.read_role(Role::OutputVoltmeter).await;
+        (before, after)
+    });
+    // Fresh (within max_age) before the change: read.
+    assert_eq!(before.unwrap().0, Reading::Value(5.0));
+    // After the change nothing new arrived: no reading rather than the old value.
+    let e = after.unwrap_err();
+    assert!(matches!(e, BenchError::NoReply { .. }), "{e:?}");
+    assert!(load.received().iter().any(|l| l.starts_with("RES ")));
 }
 
 #[test]

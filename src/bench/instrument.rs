@@ -28,6 +28,9 @@ const STREAM_KEEP: usize = 2048;
 struct StreamState {
     lines: VecDeque<(Instant, String)>,
     ended: Option<LinkError>,
+    /// When the bench last changed a setting (load, source): lines that arrived before it
+    /// describe the old operating point and never count towards a later reading.
+    fresh_after: Option<Instant>,
 }
 
 struct Stream {
@@ -344,6 +347,16 @@ impl Instrument {
         Ok(())
     }
 
+    /// The bench changed a setting at `at`: a streaming instrument's lines from before it no
+    /// longer describe the unit. Does nothing for query instruments.
+    pub fn setting_changed(&self, at: Instant) {
+        if let Some(stream) = &self.stream {
+            if let Ok(mut st) = stream.state.lock() {
+                st.fresh_after = Some(at);
+            }
+        }
+    }
+
     /// Take one reading for `role`: a query, or the stream's newest / averaged fresh lines.
     pub async fn read(&self, role: Role) -> Result<Reading, BenchError> {
         match &self.cfg.reading {
@@ -489,12 +502,12 @@ impl Instrument {
                     .lock()
                     .map_err(|_| self.err(&what, LinkError::Io("stream state poisoned".into())))?;
                 let now = Instant::now();
-                // Stale lines are dropped for good.
-                while st
-                    .lines
-                    .front()
-                    .is_some_and(|(t, _)| now.duration_since(*t) > max_age)
-                {
+                // Stale lines (too old, or from before the last setting change) are dropped
+                // for good.
+                let fresh_after = st.fresh_after;
+                while st.lines.front().is_some_and(|(t, _)| {
+                    now.duration_since(*t) > max_age || fresh_after.is_some_and(|f| *t < f)
+                }) {
                     st.lines.pop_front();
                 }
                 let span = match pick {

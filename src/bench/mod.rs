@@ -283,6 +283,15 @@ impl Bench {
         errors
     }
 
+    /// Tell streaming instruments that the operating point changed now (even after a failed
+    /// command, which may have been acted on).
+    fn settings_changed(&self) {
+        let now = tokio::time::Instant::now();
+        for inst in &self.instruments {
+            inst.setting_changed(now);
+        }
+    }
+
     async fn set_load_inner(&self, mode: LoadMode, value: f64) -> Result<(), BenchError> {
         let inst = self.holder(Role::Load)?;
         let c = &inst.cfg.commands;
@@ -367,23 +376,27 @@ impl BenchControl for Bench {
     }
 
     async fn set_load(&mut self, mode: LoadMode, value: f64) -> Result<(), ControlError> {
-        self.set_load_inner(mode, value)
-            .await
-            .map_err(control_error)
+        let r = self.set_load_inner(mode, value).await;
+        self.settings_changed();
+        r.map_err(control_error)
     }
 
     async fn set_load_input(&mut self, on: bool) -> Result<(), ControlError> {
-        self.switch(Role::Load, on).await.map_err(control_error)
+        let r = self.switch(Role::Load, on).await;
+        self.settings_changed();
+        r.map_err(control_error)
     }
 
     async fn set_source_voltage(&mut self, volts: f64) -> Result<(), ControlError> {
-        self.set_source_inner(volts).await.map_err(control_error)
+        let r = self.set_source_inner(volts).await;
+        self.settings_changed();
+        r.map_err(control_error)
     }
 
     async fn set_source_output(&mut self, on: bool) -> Result<(), ControlError> {
-        self.switch(Role::InputSource, on)
-            .await
-            .map_err(control_error)
+        let r = self.switch(Role::InputSource, on).await;
+        self.settings_changed();
+        r.map_err(control_error)
     }
 
     async fn measure(&mut self) -> Result<Measurement, ControlError> {

@@ -160,7 +160,8 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     })
 }
 
-fn print_outcome<W: std::io::Write>(
+/// Print the comparison, likely causes, drift flags, verdict and written files.
+pub fn print_outcome<W: std::io::Write>(
     mut w: W,
     written: &crate::report::Written,
 ) -> std::io::Result<()> {

@@ -50,6 +50,8 @@ pub struct Args {
 #[derive(Debug, Clone)]
 pub struct Prepared {
     pub plan: Plan,
+    pub design: Design,
+    pub expectation: design::Expectation,
     pub targets: DesignTargets,
     pub design_ref: DesignRef,
     pub design_bytes: Vec<u8>,
@@ -89,6 +91,8 @@ pub fn prepare(args: &Args) -> anyhow::Result<Prepared> {
     };
     Ok(Prepared {
         plan,
+        design: d,
+        expectation: e,
         targets,
         design_ref,
         design_bytes,
@@ -162,7 +166,6 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         .enable_all()
         .build()
         .context("cannot start the async runtime")?;
-    // TODO(integrator): once `compare` lands, return EXIT_FAIL for a failing verdict.
     rt.block_on(async {
         let mut bench = Bench::open(&cfg).await.map_err(|e| {
             let code = if e.is_config() {
@@ -206,13 +209,47 @@ pub async fn execute<B: BenchControl>(
     };
     let stdout = std::io::stdout();
     write_summary(&mut stdout.lock(), &report).context("writing the summary")?;
-    Ok(exit_code(&report))
+    // Judge the record against the design and write summary.json, plots and report.html.
+    // The record is already safe on disk: a report that cannot be written is a warning.
+    let verdict = match write_run_report(&report, prep) {
+        Ok(written) => {
+            super::report::print_outcome(&mut stdout.lock(), &written)
+                .context("writing the verdict")?;
+            written.summary.verdict
+        }
+        Err(e) => {
+            eprintln!(
+                "warning: the report of {} was not written: {e:#}; the record is complete, \
+                 retry with `regulus report {}`",
+                report.dir.display(),
+                report.dir.display()
+            );
+            None
+        }
+    };
+    Ok(exit_code(&report, verdict))
 }
 
-/// Exit code of a finished run (until the comparator lands: 0 on completion).
-pub fn exit_code(report: &RunReport) -> u8 {
-    match report.outcome {
-        Outcome::Completed => EXIT_OK,
+/// Write summary.json, plots (SVG and PNG) and report.html for a finished run, with drift
+/// flags against the unit's earlier records.
+fn write_run_report(report: &RunReport, prep: &Prepared) -> anyhow::Result<crate::report::Written> {
+    let exp = crate::compare::DesignExpectation::from_design(&prep.design, &prep.expectation);
+    let analysis = crate::analysis::AnalysisOptions::default();
+    let earlier = crate::report::earlier_entries(&report.dir, &analysis);
+    let opts = crate::report::ReportOptions {
+        analysis,
+        earlier,
+        png: true,
+    };
+    Ok(crate::report::write_report(&report.dir, Some(&exp), &opts)?)
+}
+
+/// Exit code of a finished run: 3 when it did not complete; 1 when it completed with a
+/// failing verdict; 0 otherwise.
+pub fn exit_code(report: &RunReport, verdict: Option<crate::compare::Verdict>) -> u8 {
+    match (report.outcome, verdict) {
+        (Outcome::Completed, Some(crate::compare::Verdict::Fail)) => super::EXIT_FAIL,
+        (Outcome::Completed, _) => EXIT_OK,
         _ => EXIT_ABORTED,
     }
 }
