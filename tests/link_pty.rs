@@ -161,19 +161,16 @@ fn stream_lines_from_before_a_setting_change_are_not_used() {
             Act::Silent
         }
     });
+    let meter_text = serial_instrument(
+        "strm",
+        "\"output_voltmeter\"",
+        "tagged_stream_meter",
+        &meter.address,
+        "reply_timeout_ms = 300\n[instrument.reading]\nmax_age_ms = 5000",
+    );
     let text = format!(
-        "{}{}",
-        serial_instrument(
-            "strm",
-            "\"output_voltmeter\"",
-            "tagged_stream_meter",
-            &meter.address,
-            "reply_timeout_ms = 300\n[instrument.reading]\nmax_age_ms = 5000",
-        ),
-        format!(
-            "[[instrument]]\nname = \"eload\"\nroles = [\"load\"]\npreset = \"scpi_load\"\ntcp = {{ host = \"127.0.0.1\", port = {} }}\n",
-            load.address
-        )
+        "{meter_text}[[instrument]]\nname = \"eload\"\nroles = [\"load\"]\npreset = \"scpi_load\"\ntcp = {{ host = \"127.0.0.1\", port = {} }}\n",
+        load.address
     );
     let cfg = config(&text);
     let (before, after) = runtime().block_on(async {
