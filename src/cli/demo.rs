@@ -142,8 +142,22 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     }
     let worst = results.iter().map(|(_, c)| *c).max().unwrap_or(EXIT_OK);
     println!(
-        "demo finished; records, plots and reports are under {}",
+        "demo finished: records, plots and reports are under {}",
         args.records.display()
+    );
+    for (unit, _) in &results {
+        let (verdict, causes, report) = recap(&args.records, unit.serial);
+        println!("  {:<9} {:<5} {}", unit.serial, verdict, unit.what);
+        for c in causes {
+            println!("  {:<9} {:<5} likely cause: {c}", "", "");
+        }
+        println!("  {:<9} {:<5} report: {report}", "", "");
+    }
+    println!(
+        "next: open a report.html in a browser, or try `regulus history TLB-0002 --records {}` \
+         and `regulus design {}`",
+        args.records.display(),
+        design_path.display()
     );
     // The demo's own exit code: 0 when it ran through (one unit is meant to fail).
     Ok(if worst >= EXIT_ABORTED {
@@ -151,4 +165,47 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     } else {
         EXIT_OK
     })
+}
+
+/// Verdict, the likely causes worth showing, and the report path of a unit's newest record.
+fn recap(records: &Path, serial: &str) -> (String, Vec<String>, String) {
+    let Some(dir) = crate::record::list_runs(records, serial)
+        .ok()
+        .and_then(|runs| runs.last().map(|r| r.dir.clone()))
+    else {
+        return ("?".into(), Vec::new(), "(no record)".into());
+    };
+    let summary: Option<serde_json::Value> = std::fs::read(dir.join("summary.json"))
+        .ok()
+        .and_then(|b| serde_json::from_slice(&b).ok());
+    let verdict = summary
+        .as_ref()
+        .and_then(|s| s["verdict"].as_str())
+        .unwrap_or("none")
+        .to_uppercase();
+    let all: Vec<String> = summary
+        .as_ref()
+        .and_then(|s| s["comparison"]["likely_causes"].as_array())
+        .map(|a| {
+            a.iter()
+                .filter_map(|c| c.as_str().map(String::from))
+                .collect()
+        })
+        .unwrap_or_default();
+    // The named part is the most useful line; fall back to the first cause.
+    let named: Vec<String> = all
+        .iter()
+        .filter(|c| c.contains("matches"))
+        .cloned()
+        .collect();
+    let causes = if named.is_empty() {
+        all.into_iter().take(1).collect()
+    } else {
+        named
+    };
+    (
+        verdict,
+        causes,
+        dir.join("report.html").display().to_string(),
+    )
 }
