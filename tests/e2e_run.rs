@@ -308,7 +308,7 @@ fn run_against_a_regulus_sim_process_as_a_user_would() {
         .unwrap();
     assert_eq!(run.status.code(), Some(0), "{}", show(&run));
     let stdout = String::from_utf8_lossy(&run.stdout);
-    assert!(stdout.contains("limit current"), "{stdout}");
+    assert!(stdout.contains("knee search located"), "{stdout}");
     let run_dir = std::fs::read_dir(records.join("E2E-0006"))
         .unwrap()
         .next()

@@ -154,12 +154,11 @@ fn stream_lines_from_before_a_setting_change_are_not_used() {
         false,
         Some("Regulus Simulated Bench,SDMM-1,SN0010,1.0".to_string()),
     );
-    let load = tcp_responder(|line| {
-        if line == "*IDN?" {
-            reply("Regulus Simulated Bench,SL-1,SN0011,1.0")
-        } else {
-            Act::Silent
-        }
+    let load = tcp_responder(|line| match line {
+        "*IDN?" => reply("Regulus Simulated Bench,SL-1,SN0011,1.0"),
+        // IEEE 488.2 *OPC? answers 1 once pending operations are complete.
+        "*OPC?" => reply("1"),
+        _ => Act::Silent,
     });
     let meter_text = serial_instrument(
         "strm",
@@ -189,7 +188,10 @@ fn stream_lines_from_before_a_setting_change_are_not_used() {
     // After the change nothing new arrived: no reading rather than the old value.
     let e = after.unwrap_err();
     assert!(matches!(e, BenchError::NoReply { .. }), "{e:?}");
-    assert!(load.received().iter().any(|l| l.starts_with("RES ")));
+    let got = load.received();
+    assert!(got.iter().any(|l| l.starts_with("RES ")), "{got:?}");
+    // The setting was confirmed before the stream was read again.
+    assert!(got.iter().any(|l| l == "*OPC?"), "{got:?}");
 }
 
 #[test]

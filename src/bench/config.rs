@@ -61,6 +61,7 @@ struct RawInstrument {
     retries: Option<Spanned<u32>>,
     init: Option<Vec<String>>,
     identity_query: Option<String>,
+    confirm_query: Option<String>,
     safe_state: Option<Vec<String>>,
     traffic_log: Option<PathBuf>,
     commands: Option<RawCommands>,
@@ -256,6 +257,9 @@ pub struct InstrumentConfig {
     pub retries: u32,
     pub init: Vec<String>,
     pub identity_query: Option<String>,
+    /// Sent after setting commands; its reply means the instrument has applied them (SCPI
+    /// `*OPC?`, IEEE 488.2 section 10.19). `None`: settings are not confirmed.
+    pub confirm_query: Option<String>,
     pub safe_state: Vec<String>,
     pub traffic_log: Option<PathBuf>,
     pub commands: CommandSet,
@@ -383,6 +387,7 @@ pub fn line_column(text: &str, offset: usize) -> (usize, usize) {
 struct Preset {
     commands: RawCommands,
     identity_query: Option<&'static str>,
+    confirm_query: Option<&'static str>,
     reply: ReplySpec,
     stream: bool,
 }
@@ -395,6 +400,7 @@ fn preset(name: &str) -> Option<Preset> {
     let mut p = Preset {
         commands: RawCommands::default(),
         identity_query: Some("*IDN?"),
+        confirm_query: None,
         reply: ReplySpec::default(),
         stream: false,
     };
@@ -414,6 +420,7 @@ fn preset(name: &str) -> Option<Preset> {
             c.load_set_resistance = cmd("RES {value:.4}");
             c.load_input_on = cmd("INP ON");
             c.load_input_off = cmd("INP OFF");
+            p.confirm_query = Some("*OPC?");
             c.measure_voltage = cmd("MEAS:VOLT?");
             c.measure_current = cmd("MEAS:CURR?");
         }
@@ -421,6 +428,7 @@ fn preset(name: &str) -> Option<Preset> {
             c.source_set_voltage = cmd("VOLT {value:.4}");
             c.source_output_on = cmd("OUTP ON");
             c.source_output_off = cmd("OUTP OFF");
+            p.confirm_query = Some("*OPC?");
             c.measure_voltage = cmd("MEAS:VOLT?");
             c.measure_current = cmd("MEAS:CURR?");
         }
@@ -863,6 +871,13 @@ fn check_instrument(
             .as_ref()
             .and_then(|p| p.identity_query.map(str::to_string)),
     };
+    let confirm_query = match raw.confirm_query {
+        Some(q) if q.trim().is_empty() => None,
+        Some(q) => Some(q),
+        None => preset
+            .as_ref()
+            .and_then(|p| p.confirm_query.map(str::to_string)),
+    };
     let safe_state = match raw.safe_state {
         Some(s) => s,
         None => {
@@ -894,6 +909,7 @@ fn check_instrument(
         retries,
         init: raw.init.unwrap_or_default(),
         identity_query,
+        confirm_query,
         safe_state,
         traffic_log: raw.traffic_log,
         commands,

@@ -259,6 +259,15 @@ impl Instrument {
         Ok(())
     }
 
+    /// Wait until the instrument has applied the settings sent so far, when it has a confirm
+    /// query (`*OPC?` for SCPI loads and sources); any reply line confirms.
+    pub async fn confirm(&self) -> Result<(), BenchError> {
+        match self.cfg.confirm_query.clone() {
+            Some(q) => self.raw_query(&q).await.map(|_| ()),
+            None => Ok(()),
+        }
+    }
+
     /// Send a query and return its first non-empty reply line as text (identity and such).
     /// On a streaming instrument, the first line after sending that is not a stream line.
     pub async fn raw_query(&self, q: &str) -> Result<String, BenchError> {

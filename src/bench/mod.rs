@@ -316,7 +316,8 @@ impl Bench {
         if let Some(m) = mode_cmd {
             inst.send_template(m, 0.0).await?;
         }
-        inst.send_template(set_cmd, value).await
+        inst.send_template(set_cmd, value).await?;
+        inst.confirm().await
     }
 
     async fn switch(&self, role: Role, on: bool) -> Result<(), BenchError> {
@@ -329,7 +330,10 @@ impl Bench {
             (_, false) => (&c.source_output_off, "source_output_off"),
         };
         match t {
-            Some(t) => inst.send_template(t, 0.0).await,
+            Some(t) => {
+                inst.send_template(t, 0.0).await?;
+                inst.confirm().await
+            }
             None => Err(BenchError::Command {
                 instrument: inst.cfg.name.clone(),
                 detail: format!("no {key} command: add it under [instrument.commands]"),
@@ -340,7 +344,10 @@ impl Bench {
     async fn set_source_inner(&self, volts: f64) -> Result<(), BenchError> {
         let inst = self.holder(Role::InputSource)?;
         match &inst.cfg.commands.source_set_voltage {
-            Some(t) => inst.send_template(t, volts).await,
+            Some(t) => {
+                inst.send_template(t, volts).await?;
+                inst.confirm().await
+            }
             None => Err(BenchError::Command {
                 instrument: inst.cfg.name.clone(),
                 detail: "no source_set_voltage command".into(),

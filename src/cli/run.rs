@@ -271,12 +271,12 @@ pub fn write_summary(out: &mut impl Write, r: &RunReport) -> std::io::Result<()>
             match kn.limit_current_a {
                 Some(i) => writeln!(
                     out,
-                    "  step {}: limit current {} ({}, {} points, threshold {})",
+                    "  step {}: knee search {}: {} where the output fell to {} ({} points)",
                     k + 1,
-                    eng(i, "A"),
                     kn.outcome,
+                    eng(i, "A"),
+                    eng(kn.threshold_v, "V"),
                     kn.points,
-                    eng(kn.threshold_v, "V")
                 )?,
                 None => writeln!(out, "  step {}: knee {}", k + 1, kn.outcome)?,
             }

@@ -8,8 +8,7 @@ use crate::units::{eng, sig3};
 use std::io::{self, Write};
 
 fn band_row(w: &mut impl Write, label: &str, b: &Band, unit: &str) -> io::Result<()> {
-    writeln!(
-        w,
+    let line = format!(
         "  {:<24}{:>10}   {:>10} .. {:<10}   {:>10} .. {:<10}",
         label,
         eng(b.nominal, unit),
@@ -17,7 +16,8 @@ fn band_row(w: &mut impl Write, label: &str, b: &Band, unit: &str) -> io::Result
         eng(b.worst_case.max, unit),
         eng(b.monte_carlo.p_low, unit),
         eng(b.monte_carlo.p_high, unit),
-    )
+    );
+    writeln!(w, "{}", line.trim_end())
 }
 
 fn clamp_text(d: &Design) -> String {
@@ -52,11 +52,11 @@ pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> 
         e.seed
     )?;
     writeln!(w)?;
-    writeln!(
-        w,
+    let header = format!(
         "  {:<24}{:>10}   {:^24}   {:^24}",
         "", "nominal", "worst case", "Monte Carlo (+-3 sigma)"
-    )?;
+    );
+    writeln!(w, "{}", header.trim_end())?;
     if e.vout.adjustable {
         band_row(w, "output, lowest", &e.vout.min_band, "V")?;
         band_row(w, "output, highest", &e.vout.max_band, "V")?;

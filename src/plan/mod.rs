@@ -936,7 +936,8 @@ impl Cx<'_> {
         let ceiling = opt(&s.ceiling, "ceiling", 1.6 * expected)?;
         let drop = match &s.drop {
             Some(v) => self.percent(v, "drop", 0.05, 50.0)?,
-            None => 0.01,
+            // The same fixed-drop criterion the analysis reports, so the two agree.
+            None => crate::analysis::DEFAULT_KNEE_DROP,
         };
         let resolution = match &s.resolution {
             Some(v) => self.percent(v, "resolution", 0.01, 10.0)?,
