@@ -324,13 +324,16 @@ fn a_refused_connection_says_what_to_check() {
 /// reported, so the user checks it by hand).
 #[test]
 fn safe_state_reaches_every_instrument_when_one_fails() {
+    // Both answer *OPC? as IEEE 488.2 instruments do (the presets confirm settings with it).
     let load = tcp_responder(|line| match line {
         "*IDN?" => reply("Regulus Simulated Bench,LOAD-2,SN0002,1.0"),
+        "*OPC?" => reply("1"),
         "MEAS:CURR?" => Act::Close,
         _ => Act::Silent,
     });
     let source = tcp_responder(|line| match line {
         "*IDN?" => reply("Regulus Simulated Bench,PSU-3,SN0003,1.0"),
+        "*OPC?" => reply("1"),
         "MEAS:VOLT?" => reply("+1.80000E+01"),
         _ => Act::Silent,
     });
@@ -377,13 +380,29 @@ fn safe_state_reaches_every_instrument_when_one_fails() {
         std::thread::sleep(Duration::from_millis(10));
         got = source.received();
     }
+    // Each setting is confirmed with *OPC? before the next; the safe state is sent as is.
     assert_eq!(
         got,
-        vec!["*IDN?", "VOLT 18.0000", "OUTP ON", "MEAS:VOLT?", "OUTP OFF"]
+        vec![
+            "*IDN?",
+            "VOLT 18.0000",
+            "*OPC?",
+            "OUTP ON",
+            "*OPC?",
+            "MEAS:VOLT?",
+            "OUTP OFF"
+        ]
     );
     assert_eq!(
-        &load.received()[..4],
-        &["*IDN?", "FUNC CURR", "CURR 0.2500", "INP ON"]
+        &load.received()[..6],
+        &[
+            "*IDN?",
+            "FUNC CURR",
+            "CURR 0.2500",
+            "*OPC?",
+            "INP ON",
+            "*OPC?"
+        ]
     );
 }
 
@@ -404,12 +423,13 @@ fn load_modes_render_their_commands() {
     );
     // Two loads on one bench is refused (one instrument per role): check each on its own.
     assert!(BenchConfig::parse(&text, "x").is_err());
+    // This test checks the rendered commands only: no confirm query.
     let first = config(&instrument(
         "eload",
         "\"load\"",
         "scpi_load",
         &load.address,
-        "",
+        "confirm_query = \"\"",
     ));
     let second = config(&text[text.find("[[instrument]]\nname = \"cc-only\"").unwrap()..]);
     let rt = runtime();
@@ -462,7 +482,7 @@ fn command_gap_spaces_commands() {
         "\"load\"",
         "scpi_load",
         &load.address,
-        "command_gap_ms = 40",
+        "command_gap_ms = 40\nconfirm_query = \"\"",
     ));
     let elapsed = runtime().block_on(async {
         let mut b = Bench::open(&cfg).await.unwrap();

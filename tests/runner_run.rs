@@ -453,7 +453,7 @@ async fn knee_search_finds_a_foldback_knee_in_cr_and_cc() {
     };
     for mode in ["cr", "cc"] {
         let text = format!(
-            "name = \"fb\"\nsettle = \"1 ms\"\nsamples = 1\n[[step]]\nkind = \"knee_search\"\nmode = \"{mode}\"\n"
+            "name = \"fb\"\nsettle = \"1 ms\"\nsamples = 1\n[[step]]\nkind = \"knee_search\"\nmode = \"{mode}\"\ndrop = \"1 %\"\n"
         );
         let mut bench = FakeBench::full();
         bench.foldback = Some(f);

@@ -7,7 +7,6 @@ use super::run::{self as run_cmd, Prepared};
 use super::{CodedError, EXIT_ABORTED, EXIT_OK, EXIT_USAGE};
 use crate::bench::{Bench, BenchConfig};
 use crate::design::Design;
-use crate::runner::CancelToken;
 use crate::sim::{Fault, SimBench, SimOptions};
 use anyhow::Context;
 use std::io::Write;
@@ -83,18 +82,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     )?;
     drop(out);
 
-    let cancel = CancelToken::new();
-    let c = cancel.clone();
-    ctrlc::set_handler(move || {
-        eprintln!("\ninterrupt: stopping, switching the simulated load and source off...");
-        c.cancel();
-    })
-    .context("cannot install the Ctrl-C handler")?;
-    let rt = tokio::runtime::Builder::new_multi_thread()
-        .worker_threads(2)
-        .enable_all()
-        .build()
-        .context("cannot start the async runtime")?;
+    let (cancel, rt) = run_cmd::interruptible_runtime()?;
 
     let mut results = Vec::new();
     for (k, unit) in UNITS.iter().enumerate() {

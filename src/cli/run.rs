@@ -153,7 +153,23 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         &mut stdin.lock(),
         &mut std::io::stderr(),
     )?;
-    // Ctrl-C from here on only asks the runner to stop; it then reaches the safe state.
+    let (cancel, rt) = interruptible_runtime()?;
+    rt.block_on(async {
+        let mut bench = Bench::open(&cfg).await.map_err(|e| {
+            let code = if e.is_config() {
+                EXIT_USAGE
+            } else {
+                EXIT_ABORTED
+            };
+            anyhow::Error::from(CodedError::new(code, e.to_string()))
+        })?;
+        execute(&mut bench, &prep, &args, &cancel).await
+    })
+}
+
+/// Wire Ctrl-C to a cancellation token (from then on it only asks the runner to stop, and
+/// the runner reaches the safe state) and start the async runtime the bench runs on.
+pub fn interruptible_runtime() -> anyhow::Result<(CancelToken, tokio::runtime::Runtime)> {
     let cancel = CancelToken::new();
     let c = cancel.clone();
     ctrlc::set_handler(move || {
@@ -166,17 +182,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         .enable_all()
         .build()
         .context("cannot start the async runtime")?;
-    rt.block_on(async {
-        let mut bench = Bench::open(&cfg).await.map_err(|e| {
-            let code = if e.is_config() {
-                EXIT_USAGE
-            } else {
-                EXIT_ABORTED
-            };
-            anyhow::Error::from(CodedError::new(code, e.to_string()))
-        })?;
-        execute(&mut bench, &prep, &args, &cancel).await
-    })
+    Ok((cancel, rt))
 }
 
 /// Run a prepared plan on an open bench with a progress bar per step (`cancel` is wired to
