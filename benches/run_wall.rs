@@ -7,9 +7,17 @@
 //! Budget per point: settle + samples x (slowest meter's reply latency) + load-set latency.
 //! The meters are read concurrently (the query voltmeter and the thermometer answer one query
 //! each per sample; the streaming ammeter's lines are already buffered), so a sample costs one
-//! reply latency. Setting the load is two commands (mode, level) that have no reply, so the
-//! bench does not wait for them: their latency is 0 here, and the budget is also printed with
-//! the two commands counted at a full reply latency each, as a bound.
+//! reply latency. Setting the load is two commands (mode, level) with no reply of their own,
+//! followed by the confirm query (`*OPC?`) whose reply the bench waits for: one reply latency
+//! per point. A streaming meter's latency is its line period: after a change only lines sent
+//! after it count, so a point waits for the next line (up to one period, 50 ms here) when the
+//! settle time is shorter. Budget per point: confirm latency + the longer of (settle + samples x
+//! reply latency) and the stream period. It is also printed with every command counted at a
+//! full latency, as a bound.
+//!
+//! A second measurement reads one step on a bench of three meters (query voltmeter, streaming
+//! ammeter, query thermometer) that each answer after 50 ms (target: at most 60 ms, since the
+//! meters are read concurrently).
 
 use criterion::{criterion_group, criterion_main, Criterion};
 use regulus::bench::{Bench, BenchConfig};
@@ -18,6 +26,7 @@ use regulus::plan::{Action, DesignTargets, Plan};
 use regulus::record::{DesignRef, Snapshots};
 use regulus::runner::{self, CancelToken, RunSetup, Silent};
 use regulus::sim::instruments::InstrumentKind;
+use regulus::sim::serve::STREAM_PERIOD;
 use regulus::sim::{SimBench, SimOptions};
 use std::path::Path;
 use std::time::{Duration, Instant};
@@ -43,7 +52,10 @@ fn budget(plan: &Plan) -> (f64, f64) {
     let (mut lean, mut bound) = (0.0, 0.0);
     for step in &plan.steps {
         if let Action::Sweep { setpoints, .. } = &step.action {
-            let per_point = step.settle.as_secs_f64() + step.samples as f64 * l;
+            // The load setting's confirmation, then settle and samples or, when longer, the
+            // wait for the streaming meter's next line.
+            let reads = step.settle.as_secs_f64() + step.samples as f64 * l;
+            let per_point = l + reads.max(STREAM_PERIOD.as_secs_f64());
             lean += setpoints.len() as f64 * per_point;
             bound += setpoints.len() as f64 * (per_point + 2.0 * l);
         }
@@ -111,7 +123,7 @@ fn bench(c: &mut Criterion) {
     let wall = t0.elapsed().as_secs_f64() / runs as f64;
     println!(
         "plan wall time {:.1} ms; settle + latency budget {:.1} ms (overhead {:+.1} %), \
-         {:.1} ms with load-set commands at one latency each (overhead {:+.1} %)",
+         {:.1} ms with every command at one latency (overhead {:+.1} %)",
         wall * 1e3,
         lean * 1e3,
         100.0 * (wall / lean - 1.0),
@@ -128,5 +140,38 @@ fn bench(c: &mut Criterion) {
     g.finish();
 }
 
-criterion_group!(benches, bench);
+/// One step's reads on three meters that each answer after 50 ms.
+fn step_reads(c: &mut Criterion) {
+    use regulus::control::BenchControl;
+    let path = Path::new(env!("CARGO_MANIFEST_DIR")).join("samples/teaching-lab-0-20v.toml");
+    let d = Design::load(&path).expect("sample design loads");
+    let opts = SimOptions::default()
+        .seed(8)
+        .latency(Duration::from_millis(50))
+        .without(InstrumentKind::Source);
+    let sim = SimBench::start(&d, opts).expect("simulated bench starts");
+    let dir = tempfile::tempdir().expect("temp dir");
+    let bench_path = dir.path().join("bench.toml");
+    std::fs::write(&bench_path, sim.bench_toml()).expect("bench file written");
+    let cfg = BenchConfig::load(&bench_path).expect("bench file loads");
+    let rt = tokio::runtime::Builder::new_multi_thread()
+        .worker_threads(2)
+        .enable_all()
+        .build()
+        .expect("runtime");
+    let mut bench = rt.block_on(Bench::open(&cfg)).expect("bench opens");
+    let meters = bench
+        .identities()
+        .iter()
+        .filter(|i| i.roles.iter().any(|r| r.quantity().is_some()))
+        .count();
+    let mut g = c.benchmark_group("step_reads");
+    g.sample_size(10);
+    g.bench_function(format!("{meters} meters at 50 ms latency"), |b| {
+        b.iter(|| rt.block_on(bench.measure()).expect("reads"))
+    });
+    g.finish();
+}
+
+criterion_group!(benches, bench, step_reads);
 criterion_main!(benches);
