@@ -189,13 +189,14 @@ fn pad((lo, hi): (f64, f64), frac: f64) -> (f64, f64) {
 
 fn legend<'a, DB: DrawingBackend + 'a, CT: plotters::coord::CoordTranslate>(
     chart: &mut ChartContext<'a, DB, CT>,
+    position: SeriesLabelPosition,
 ) -> DrawResult {
     chart
         .configure_series_labels()
         .background_style(WHITE.mix(0.85))
         .border_style(BLACK)
         .label_font((FONT, 14))
-        .position(SeriesLabelPosition::LowerLeft)
+        .position(position)
         .draw()
         .map_err(s)
 }
@@ -342,14 +343,7 @@ fn draw_vi<DB: DrawingBackend>(
                 });
         }
     }
-    chart
-        .configure_series_labels()
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK)
-        .label_font((FONT, 14))
-        .position(SeriesLabelPosition::UpperRight)
-        .draw()
-        .map_err(s)
+    legend(&mut chart, SeriesLabelPosition::UpperRight)
 }
 
 fn draw_regulation<DB: DrawingBackend>(
@@ -435,7 +429,7 @@ fn draw_regulation<DB: DrawingBackend>(
                 DashedPathElement::new(vec![(x, y), (x + 18, y)], 5, 3, EXPECTED.stroke_width(2))
             });
     }
-    legend(&mut chart)
+    legend(&mut chart, SeriesLabelPosition::LowerLeft)
 }
 
 fn draw_short_circuit<DB: DrawingBackend>(
@@ -494,7 +488,7 @@ fn draw_short_circuit<DB: DrawingBackend>(
                 DashedPathElement::new(vec![(x, y), (x + 18, y)], 5, 3, EXPECTED.stroke_width(2))
             });
     }
-    legend(&mut chart)
+    legend(&mut chart, SeriesLabelPosition::LowerLeft)
 }
 
 fn days_since(first: &str, t: &str) -> Option<f64> {
@@ -601,7 +595,7 @@ fn draw_history<DB: DrawingBackend>(
             _ => Cross::new((x + 9, y), 5, c.stroke_width(2)).into_dyn(),
         });
     }
-    legend(&mut chart)
+    legend(&mut chart, SeriesLabelPosition::LowerLeft)
 }
 
 fn draw_histogram<DB: DrawingBackend>(
@@ -664,12 +658,5 @@ fn draw_histogram<DB: DrawingBackend>(
                 DashedPathElement::new(vec![(x, y), (x + 18, y)], 5, 3, KNEE_A.stroke_width(2))
             });
     }
-    chart
-        .configure_series_labels()
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK)
-        .label_font((FONT, 14))
-        .position(SeriesLabelPosition::UpperRight)
-        .draw()
-        .map_err(s)
+    legend(&mut chart, SeriesLabelPosition::UpperRight)
 }
