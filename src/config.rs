@@ -111,8 +111,8 @@ mod tests {
         let off = locate_path(src, &["a", "x"]).unwrap();
         assert_eq!(line_col(src, off), (2, 5));
         // Missing key falls back to the deepest existing place.
-        let off = locate_path(src, &["a", "missing"]);
-        assert!(off.is_some());
+        let off = locate_path(src, &["a", "missing"]).unwrap();
+        assert_eq!(line_col(src, off).0, 1, "points into table [a]");
     }
 
     #[test]

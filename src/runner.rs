@@ -188,8 +188,21 @@ pub async fn run<B: BenchControl, O: Observer>(
         }
         r.err()
     };
-    // Always end in the safe state, whatever happened above.
-    let safe_state_errors = bench.safe_state().await;
+    // Always end in the safe state, whatever happened above: the load input off first, then
+    // the source output (even when a bench file's safe-state sequences forget them), then
+    // every instrument's own safe-state sequence.
+    let mut safe_state_errors = Vec::new();
+    if bench.has_role(Role::Load) {
+        if let Err(e) = bench.set_load_input(false).await {
+            safe_state_errors.push(e);
+        }
+    }
+    if bench.has_role(Role::InputSource) {
+        if let Err(e) = bench.set_source_output(false).await {
+            safe_state_errors.push(e);
+        }
+    }
+    safe_state_errors.extend(bench.safe_state().await);
 
     let (mut outcome, mut reason) = match &stop {
         None => (Outcome::Completed, None),
@@ -361,7 +374,25 @@ impl<B: BenchControl, O: Observer> Exec<'_, B, O> {
         let mut trip: Option<String> = None;
         for _ in 0..at.samples.max(1) {
             self.check_cancel()?;
-            let m = self.bench.measure().await.map_err(|e| {
+            let reading = self.bench.measure();
+            let m = match self.short_since {
+                // During a short a hung meter must not hold the short beyond its dwell limit:
+                // the reading is abandoned when the limit passes and the run stops there.
+                Some(t) => {
+                    let limit = self.plan.interlocks.max_short_dwell;
+                    match tokio::time::timeout_at((t + limit).into(), reading).await {
+                        Ok(r) => r,
+                        Err(_) => {
+                            return Err(Stop::Interlock(format!(
+                                "short circuit held beyond max_short_dwell {:.2} s while waiting for a reading",
+                                limit.as_secs_f64()
+                            )))
+                        }
+                    }
+                }
+                None => reading.await,
+            }
+            .map_err(|e| {
                 Stop::Instrument(format!(
                     "{e} (while reading step {}, point {point})",
                     at.step + 1

@@ -1,4 +1,5 @@
-//! Outputs checked byte for byte on fixed inputs: `summary.json` of a hand-written record
+//! Outputs checked byte for byte on fixed inputs: `summary.json` of a hand-written record of
+//! invented test data (tests/report_golden/, not a real unit)
 //! whose metrics are worked out by hand below, and the history CSV and JSON.
 
 use regulus::compare::{

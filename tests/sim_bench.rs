@@ -115,7 +115,7 @@ fn generated_bench_file_reaches_the_limit_line_in_cv_mode() {
         bench.set_load_input(true).await.unwrap();
         tokio::time::sleep(Duration::from_millis(400)).await;
         let m = bench.measure().await.unwrap();
-        // On the limit line: I = (n V_F - m V_BE) / R_s (GUIDE.md section 5); the pass device
+        // On the limit line: I = (n V_F - m V_BE) / R_s (common practice); the pass device
         // has barely begun to heat within a second (time constant 8 s).
         let i = m.get(Quantity::OutputCurrent).unwrap();
         assert!(

@@ -132,7 +132,7 @@ fn load_setting_changes_the_measured_output() {
     let mut load = Client::open(sim.port(InstrumentKind::Load).unwrap());
     let mut dmm = Client::open(sim.port(InstrumentKind::QueryMeter).unwrap());
     let v0 = dmm.number("MEAS:VOLT:DC?");
-    // CV load at half the output: the unit sits on its limit line (GUIDE.md section 5).
+    // CV load at half the output: the unit sits on its limit line (common practice).
     load.send("FUNC VOLT");
     load.send(&format!("VOLT {:.3}", t.no_load_v / 2.0));
     load.send("INP ON");
@@ -277,7 +277,7 @@ fn short_circuit_dwell_heats_the_pass_device_and_moves_the_limit() {
     let i1 = load.number("MEAS:CURR?");
     let c1 = th.number("MEAS:TEMP?");
     load.send("INP OFF");
-    // Diode string: V_sense = n V_F - m V_BE rises as the pass junctions heat (GUIDE.md 5).
+    // Diode string: V_sense = n V_F - m V_BE rises as the pass junctions heat (common practice).
     assert!((i0 - t.short_circuit_current).abs() < 0.01, "{i0}");
     assert!(i1 > i0 + 0.02, "{i0} -> {i1}");
     assert!(c1 > c0 + 3.0, "{c0} -> {c1}");

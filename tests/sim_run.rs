@@ -81,7 +81,7 @@ fn knee_located_through_the_bench_matches_the_true_knee() {
     // Increasing load (falling resistance). With foldback, current is not monotone along the
     // curve, so the load setting orders the points.
     pts.sort_by(|a, b| b.0.total_cmp(&a.0));
-    // Fixed-drop criterion (GUIDE.md section 5): first point below 0.98 V_ref, interpolated
+    // Fixed-drop criterion (common practice): first point below 0.98 V_ref, interpolated
     // with the last point above it.
     let limit = 0.98 * v_ref;
     let k = pts

@@ -35,7 +35,7 @@ fn model_is(text: &str, name: &str) -> Option<f64> {
 
 #[test]
 fn thermal_voltage_at_25_c_is_25_69_mv() {
-    // kT/q at 298.15 K = 25.693 mV (CODATA constants; GUIDE.md section 5 quotes 25.69 mV).
+    // kT/q at 298.15 K = 25.693 mV (CODATA constants; 25.69 mV to four figures).
     assert!((thermal_voltage(25.0) - 0.025693).abs() < 1e-6);
     // Shockley: IS from (V, I) and back.
     let vt = thermal_voltage(25.0);
@@ -235,7 +235,7 @@ fn spice_temperature_law_gives_about_minus_2_mv_per_degree() {
     use regulus::spice::netlist::spice_drop_at;
     // At the matching temperature the drop is the design's.
     assert!((spice_drop_at(0.65, 0.01, 25.0) - 0.65).abs() < 1e-12);
-    // A silicon junction's drop falls about 2 mV per degC (textbook; GUIDE.md section 5):
+    // A silicon junction's drop falls about 2 mV per degC (common practice):
     // SPICE's law (EG = 1.11 eV, XTI = 3) gives about -1.8 mV/degC at 0.65 V.
     for i in [1e-3, 1e-2, 1.0] {
         let slope = (spice_drop_at(0.65, i, 35.0) - 0.65) / 10.0;

@@ -50,8 +50,8 @@ fn captured_output_parses_into_every_sweep_row_across_page_breaks() {
 
 #[test]
 fn captured_curve_gives_the_foldback_figures_of_the_textbook_model() {
-    // Foldback, k = 10000 / 10390, R_s = 0.33 ohm, V_BE = 0.65 V, V_out = 12 V (GUIDE.md
-    // section 5): I_knee = (V_BE + (1 - k) V_out) / (k R_s) = 3.465 A,
+    // Foldback, k = 10000 / 10390, R_s = 0.33 ohm, V_BE = 0.65 V, V_out = 12 V (textbook
+    // foldback relations; common practice): I_knee = (V_BE + (1 - k) V_out) / (k R_s) = 3.465 A,
     // I_sc = V_BE / (k R_s) = 2.046 A. The captured simulation agrees within 5 %.
     let pts = curve_from_print(&data("ngspice-foldback-sample.out")).expect("parse");
     let s = summarize(&pts, KNEE_DROP).expect("summary");

@@ -58,7 +58,7 @@ fn model_agrees_with_ngspice_for_every_topology_with_matched_junctions() {
         let s = sim.summary;
         let knee = s.knee_drop_a.unwrap_or(f64::NAN);
         let fit = s.knee_fit_a.unwrap_or(f64::NAN);
-        // Textbook formulas (GUIDE.md section 5) against the simulator (ngspice-39):
+        // Textbook formulas (common practice) against the simulator (ngspice-39):
         // knee and short-circuit within 5 %, output within 1 %.
         let checks = [
             ("output", s.regulated_v, e.vout.setting, 1.0),
@@ -110,7 +110,7 @@ fn matched_junctions_give_the_design_drops_in_the_simulator() {
         .expect("clamp diode model");
     let i_rs = i_sc - clamp.current_a;
     let v_sense = i_rs * d.limit.sense.ohms;
-    // Textbook: V_sense = 3 x 0.65 - 2 x 0.65 = 0.65 V (GUIDE.md section 5); within 1 %.
+    // Textbook: V_sense = 3 x 0.65 - 2 x 0.65 = 0.65 V (common practice); within 1 %.
     assert!(
         (v_sense - 0.65).abs() < 0.0065,
         "[{version}] sense voltage {v_sense} V"

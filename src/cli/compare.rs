@@ -63,7 +63,13 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         let mut ao = aopts.clone();
         ao.nominal_voltage.get_or_insert(exp.vout.nominal);
         let m = crate::analysis::analyse(&rec.rows, &ao);
-        let c = compare::compare(&m, &exp);
+        let mut c = compare::compare(&m, &exp);
+        // As in `regulus report`: a run that did not complete cannot pass.
+        let finished = rec.info.outcome == crate::record::Outcome::Completed
+            && rec.state != crate::record::RecordState::Incomplete;
+        if !finished {
+            c.verdict = compare::Verdict::Fail;
+        }
         units.push((rec.info.unit.clone(), KeyValues::from_metrics(&m)));
         judged.push(Judged {
             record: r.display().to_string(),

@@ -86,7 +86,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
 
     let mut results = Vec::new();
     for (k, unit) in UNITS.iter().enumerate() {
-        let mut opts = SimOptions::default().seed(args.seed + k as u64);
+        let mut opts = SimOptions::default().seed(args.seed.wrapping_add(k as u64));
         if let Some(spec) = unit.fault {
             opts = opts.fault(Fault::parse(spec).map_err(usage)?);
         }

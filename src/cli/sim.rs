@@ -70,8 +70,8 @@ pub fn options(args: &Args) -> Result<SimOptions, CodedError> {
         )));
     }
     if let Some(s) = args.run_for {
-        if !(s.is_finite() && s >= 0.0) {
-            return Err(usage(format!("--run-for {s}: use seconds, 0 or more")));
+        if !(s.is_finite() && (0.0..=1e9).contains(&s)) {
+            return Err(usage(format!("--run-for {s}: use seconds, from 0 to 1e9")));
         }
     }
     if let Some(t) = args.ambient {

@@ -3,7 +3,7 @@
 //! temperature, a sharp clamp, an ideal error amplifier. Pure and fast (well under a microsecond
 //! per evaluation); tolerance analysis and the simulated unit are built on it.
 //!
-//! Formulas (GUIDE.md section 5, textbook):
+//! Formulas (textbook relation; common practice):
 //! - output: V_out = V_ref,eff (1 + R_top / R_bottom)
 //! - diode string: V_sense = n V_F - m V_BE, I_lim = V_sense / R_sense (m = 1 single, 2 Darlington)
 //! - transistor limiter: I_lim = V_BE / R_sense

@@ -734,6 +734,15 @@ impl Cx<'_> {
                         "`interval` must be above zero and no longer than `duration`",
                     ));
                 }
+                let readings = duration.as_secs_f64() / interval.as_secs_f64();
+                if readings + 1.0 > MAX_SWEEP_POINTS as f64 {
+                    return Err(self.at(
+                        interval_v.span(),
+                        format!(
+                            "this interval gives {readings:.0} readings; the limit is {MAX_SWEEP_POINTS}: lengthen the interval"
+                        ),
+                    ));
+                }
                 Action::Soak {
                     load: LoadSetting {
                         mode: LoadMode::ConstantCurrent,

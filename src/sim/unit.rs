@@ -811,7 +811,7 @@ mod tests {
 
     #[test]
     fn output_resistance_is_minus_dv_di_in_regulation() {
-        // R_out = -dV/dI over the regulation region (definition; GUIDE.md section 5).
+        // R_out = -dV/dI over the regulation region (definition of output resistance; common practice).
         let d = fold();
         let u = unit(&d, &[]);
         let a = u.operating_point(&load(LoadMode::ConstantCurrent, 0.5));
@@ -823,7 +823,7 @@ mod tests {
 
     #[test]
     fn diode_string_limit_line_away_from_knee() {
-        // V_sense = n V_F - m V_BE, I_lim = V_sense / R_sense (GUIDE.md section 5, textbook).
+        // V_sense = n V_F - m V_BE, I_lim = V_sense / R_sense (textbook relation; common practice).
         let d = lab();
         let u = unit(&d, &[]);
         let p = u.params();
@@ -841,7 +841,7 @@ mod tests {
 
     #[test]
     fn foldback_limit_line_and_short_circuit() {
-        // k = Rb/(Rt+Rb); I(V) = (V_BE + (1-k) V)/(k R_s); I_sc = V_BE/(k R_s) (GUIDE.md 5).
+        // k = Rb/(Rt+Rb); I(V) = (V_BE + (1-k) V)/(k R_s); I_sc = V_BE/(k R_s) (common practice).
         let d = fold();
         let u = unit(&d, &[]);
         let p = u.params();
@@ -897,7 +897,7 @@ mod tests {
             op.vout
         );
         // Above the limit a CC load has no operating point on the upper branch: the output
-        // collapses onto the limit line at 0 V (GUIDE.md section 5).
+        // collapses onto the limit line at 0 V (common practice).
         let op = u.operating_point(&load(LoadMode::ConstantCurrent, t.limit_line_current * 1.2));
         assert!(op.vout < 1e-9, "{}", op.vout);
         assert!((op.iout - t.short_circuit_current).abs() < 1e-9);
@@ -917,7 +917,7 @@ mod tests {
     #[test]
     fn foldback_latches_low_under_cc_until_the_setting_is_below_short_circuit() {
         // A foldback supply driven into collapse by a CC load stays down while the load asks
-        // for more than I_sc (GUIDE.md section 5: foldback supplies can latch low under CC).
+        // for more than I_sc (common practice: foldback supplies can latch low under CC).
         let d = fold();
         let mut u = unit(&d, &[]);
         let t = u.truth();
@@ -975,7 +975,7 @@ mod tests {
 
     #[test]
     fn dropout_when_the_source_is_too_low() {
-        // Headroom: V_out <= V_in - I R_s - V_CE(sat) (GUIDE.md section 5).
+        // Headroom: V_out <= V_in - I R_s - V_CE(sat) (common practice).
         let d = fold();
         let u = unit(&d, &[]);
         let t = u.truth();
@@ -1035,7 +1035,7 @@ mod tests {
     #[test]
     fn a_hotter_room_moves_the_diode_string_limit() {
         // V_sense = n V_F - m V_BE with every junction 2 mV/degC lower at +10 degC: the
-        // threshold changes by (n - m)(-2 mV/degC)(10 degC) (textbook tempco, GUIDE.md 5).
+        // threshold changes by (n - m)(-2 mV/degC)(10 degC) (textbook tempco; common practice).
         let d = lab();
         let cold = unit(&d, &[]).truth();
         let model = UnitModel {
@@ -1078,7 +1078,7 @@ mod tests {
 
     #[test]
     fn transistor_clamp_on_a_dc_input() {
-        // Transistor limiter: I_lim = V_BE / R_sense (GUIDE.md section 5); DC input: dropout
+        // Transistor limiter: I_lim = V_BE / R_sense (common practice); DC input: dropout
         // at V_in - I R_s - V_CE(sat) with no ripple.
         let text = std::fs::read_to_string(format!(
             "{}/samples/teaching-lab-0-20v.toml",
@@ -1167,7 +1167,7 @@ mod tests {
     #[test]
     fn pass_junction_heats_with_first_order_response_at_constant_power() {
         // With dissipation held (source-fed, CV load on the limit line) the junction follows
-        // T_a + P theta (1 - e^{-t/tau}): T_j = T_a + P (theta_jc + theta_cs + theta_sa) (GUIDE 5).
+        // T_a + P theta (1 - e^{-t/tau}): T_j = T_a + P (theta_jc + theta_cs + theta_sa) (thermal Ohm's law; common practice).
         let d = fold();
         let mut u = unit(&d, &[]);
         let op = u.operating_point(&load(LoadMode::ConstantCurrent, 2.0));

@@ -104,6 +104,8 @@ pub struct Faults {
     pub cancel_at: Option<(usize, CancelToken)>,
     /// Each measure call takes this long.
     pub measure_delay: Option<Duration>,
+    /// From this measure call on, a reading never comes back (a hung meter).
+    pub measure_hangs_from: Option<usize>,
 }
 
 /// Sharp foldback limiter: regulated line V0 - R_out I up to the knee current, then the limit
@@ -330,6 +332,9 @@ impl BenchControl for FakeBench {
         self.log.push("measure".to_string());
         if let Some(d) = self.faults.measure_delay {
             tokio::time::sleep(d).await;
+        }
+        if self.faults.measure_hangs_from.is_some_and(|f| n >= f) {
+            tokio::time::sleep(Duration::from_secs(3600)).await;
         }
         if let Some((at, token)) = &self.faults.cancel_at {
             if n == *at {
