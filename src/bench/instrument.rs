@@ -211,6 +211,13 @@ impl Instrument {
     }
 
     async fn send_locked(&self, port: &mut Port, line: &str) -> Result<(), BenchError> {
+        self.write_locked(port, line)
+            .await
+            .map_err(|e| self.err(line, e))
+    }
+
+    /// Write one line, keeping the command gap and the traffic log; the link's own error.
+    async fn write_locked(&self, port: &mut Port, line: &str) -> Result<(), LinkError> {
         if let Some(last) = port.last_write {
             let due = last + self.cfg.command_gap;
             if !self.cfg.command_gap.is_zero() && Instant::now() < due {
@@ -225,7 +232,7 @@ impl Instrument {
             .write_line(line, self.cfg.reply_timeout.max(Duration::from_millis(500)))
             .await;
         port.last_write = Some(Instant::now());
-        r.map_err(|e| self.err(line, e))
+        r
     }
 
     /// Send commands that get no reply, in order.
@@ -330,9 +337,8 @@ impl Instrument {
         q: &str,
     ) -> Result<String, LinkError> {
         self.drain(reader).await?;
-        self.send_locked(port, q)
-            .await
-            .map_err(|_| LinkError::Closed)?;
+        // Keep the write's own cause (a write timeout is not a closed link).
+        self.write_locked(port, q).await?;
         let deadline = Instant::now() + self.cfg.reply_timeout;
         loop {
             let line = reader.read_line(deadline).await?;

@@ -208,9 +208,15 @@ pub async fn execute<B: BenchControl>(
     let mut progress = Progress::new(prep.plan.steps.len());
     let report = match runner::run(bench, &prep.plan, setup, &mut progress, cancel).await {
         Ok(r) => r,
-        Err(runner::RunError::Roles(m)) => return Err(usage(m)),
-        Err(runner::RunError::Record(e)) => {
-            return Err(usage(format!("{e} (check --records)")));
+        Err(e) => {
+            // Nothing was switched on, but the bench is open: leave it in its safe state.
+            for f in bench.safe_state().await {
+                eprintln!("warning: safe state: {f}");
+            }
+            return Err(match e {
+                runner::RunError::Roles(m) => usage(m),
+                runner::RunError::Record(e) => usage(format!("{e} (check --records)")),
+            });
         }
     };
     let stdout = std::io::stdout();

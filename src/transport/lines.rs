@@ -93,12 +93,9 @@ impl<R: AsyncRead + Unpin> LineReader<R> {
                 Err(_) => return Err(LinkError::Timeout),
                 Ok(Ok(0)) => {
                     self.closed = true;
-                    // A last line without terminator still counts.
-                    if !self.buf.is_empty() {
-                        let text = String::from_utf8_lossy(&self.buf).into_owned();
-                        self.buf.clear();
-                        return Ok(text.trim_end_matches('\r').to_string());
-                    }
+                    // A line cut off by the link closing (no terminator) may be a number
+                    // truncated mid-way: it is never taken as a reply.
+                    self.buf.clear();
                     return Err(LinkError::Closed);
                 }
                 Ok(Ok(n)) => self.buf.extend_from_slice(&chunk[..n]),
@@ -270,6 +267,18 @@ mod tests {
         assert_eq!(r.read_line(later).await.unwrap(), "+1.2E+01");
         assert_eq!(r.read_line(later).await.unwrap(), "next");
         drop(a);
+        assert_eq!(r.read_line(later).await, Err(LinkError::Closed));
+    }
+
+    /// Regression: a reply cut off by the link closing ("+12.3" of "+12.345E+00") is not a
+    /// reading.
+    #[tokio::test]
+    async fn a_line_cut_off_by_closing_is_not_a_reply() {
+        let (mut a, b) = tokio::io::duplex(64);
+        let mut r = LineReader::new(b, "\n");
+        a.write_all(b"+12.3").await.unwrap();
+        drop(a);
+        let later = Instant::now() + Duration::from_secs(2);
         assert_eq!(r.read_line(later).await, Err(LinkError::Closed));
     }
 
