@@ -722,7 +722,7 @@ mod tests {
         assert_eq!(t.render(f64::INFINITY), Err(NotFinite(f64::INFINITY)));
     }
 
-    // IEEE 488.2 section 7.7.2-7.7.4 (decimal numeric program data / NR1, NR2, NR3 response
+    // IEEE 488.2 section 7.7.2-7.7.4, section numbers from memory (decimal numeric program data / NR1, NR2, NR3 response
     // forms): NR1 is an integer, NR2 has an explicit decimal point, NR3 has an exponent.
     #[test]
     fn number_forms_of_ieee_488_2() {
@@ -758,7 +758,7 @@ mod tests {
         assert_eq!(parse_number("3x"), None);
     }
 
-    // SCPI 1999, vol. 1, 7.2.1.5: 9.9E37 is returned for an overrange / infinity.
+    // SCPI 1999, vol. 1, 7.2.1.5 (section from memory): 9.9E37 is returned for an overrange / infinity.
     #[test]
     fn scpi_overrange_is_never_a_number() {
         let p = bare();

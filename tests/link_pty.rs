@@ -19,7 +19,7 @@ fn serial_instrument(name: &str, roles: &str, preset: &str, path: &str, extra: &
     )
 }
 
-// NR3 replies as IEEE 488.2 section 8.7.4 describes them; CR LF terminators are common
+// NR3 replies as IEEE 488.2 section 8.7.4 (from memory) describes them; CR LF terminators are common
 // practice on serial instruments.
 #[test]
 fn query_meter_over_a_pseudo_terminal() {

@@ -36,7 +36,7 @@ fn canned_meter(replies: Vec<&str>) -> link_support::Responder {
     })
 }
 
-// Reply forms: IEEE 488.2 section 8.7 (NR1, NR2, NR3 response data); SCPI 1999 vol. 1,
+// Reply forms: IEEE 488.2 section 8.7, section numbers from memory (NR1, NR2, NR3 response data); SCPI 1999 vol. 1,
 // 7.2.1.5 (9.9E37 = overrange); SI prefixes from the BIPM SI Brochure, table 7.
 #[test]
 fn reply_forms_of_scpi_instruments_are_read() {

@@ -283,6 +283,19 @@ impl Plan {
         {
             roles.push(Role::InputSource);
         }
+        // In constant-voltage mode the load's current is whatever the unit gives: without an
+        // ammeter neither the current nor the load-power interlock could be judged.
+        if self.steps.iter().any(|s| {
+            matches!(
+                s.action,
+                Action::Sweep {
+                    mode: LoadMode::ConstantVoltage,
+                    ..
+                }
+            )
+        }) {
+            roles.push(Role::OutputAmmeter);
+        }
         roles
     }
 
@@ -1256,9 +1269,15 @@ interval = "30 s"
         }
         assert_eq!(p.steps[5].planned_points(), 21);
         assert!(p.has_short_circuit());
+        // The CV limit trace needs an ammeter (the load's current is the unit's to choose).
         assert_eq!(
             p.required_roles(),
-            vec![Role::Load, Role::OutputVoltmeter, Role::InputSource]
+            vec![
+                Role::Load,
+                Role::OutputVoltmeter,
+                Role::InputSource,
+                Role::OutputAmmeter
+            ]
         );
     }
 
