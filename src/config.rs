@@ -23,23 +23,18 @@ impl fmt::Display for Located {
     }
 }
 
-/// 1-based line and column (in characters) of a byte offset.
+/// 1-based line and column (in characters) of a byte offset; an offset inside a multi-byte
+/// character counts as that character.
 pub fn line_col(src: &str, offset: usize) -> (usize, usize) {
-    let offset = offset.min(src.len());
-    let mut line = 1;
-    let mut col = 1;
-    for (i, ch) in src.char_indices() {
-        if i >= offset {
-            break;
-        }
-        if ch == '\n' {
-            line += 1;
-            col = 1;
-        } else {
-            col += 1;
-        }
+    let mut offset = offset.min(src.len());
+    while !src.is_char_boundary(offset) {
+        offset -= 1;
     }
-    (line, col)
+    let before = &src[..offset];
+    let line = before.matches('\n').count() + 1;
+    let line_start = before.rfind('\n').map(|p| p + 1).unwrap_or(0);
+    let column = before[line_start..].chars().count() + 1;
+    (line, column)
 }
 
 /// Byte offset of the value (or, failing that, the key) at a dotted key path such as

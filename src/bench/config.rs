@@ -370,18 +370,8 @@ impl BenchConfig {
     }
 }
 
-/// 1-based line and column (in characters) of a byte offset.
-pub fn line_column(text: &str, offset: usize) -> (usize, usize) {
-    let mut off = offset.min(text.len());
-    while !text.is_char_boundary(off) {
-        off -= 1;
-    }
-    let before = &text[..off];
-    let line = before.matches('\n').count() + 1;
-    let line_start = before.rfind('\n').map(|i| i + 1).unwrap_or(0);
-    let column = text[line_start..off].chars().count() + 1;
-    (line, column)
-}
+/// 1-based line and column (in characters) of a byte offset (shared with every config file).
+pub use crate::config::line_col as line_column;
 
 /// What a preset fills in; keys given in the bench file win.
 struct Preset {

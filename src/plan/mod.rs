@@ -1004,18 +1004,8 @@ pub fn tidy(x: f64) -> f64 {
     (x * scale).round() / scale
 }
 
-/// 1-based line and column (in characters) of a byte offset.
-pub fn line_col(text: &str, offset: usize) -> (usize, usize) {
-    let mut offset = offset.min(text.len());
-    while !text.is_char_boundary(offset) {
-        offset -= 1;
-    }
-    let before = &text[..offset];
-    let line = before.matches('\n').count() + 1;
-    let line_start = before.rfind('\n').map(|p| p + 1).unwrap_or(0);
-    let column = before[line_start..].chars().count() + 1;
-    (line, column)
-}
+/// 1-based line and column (in characters) of a byte offset (shared with every config file).
+pub use crate::config::line_col;
 
 /// Parse one quantity string of the plan syntax (see the module docs).
 pub fn parse_quantity(text: &str, dim: Dim, t: &DesignTargets) -> Result<f64, String> {
