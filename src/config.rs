@@ -1,5 +1,6 @@
 //! Locating problems in TOML configuration files: turn a byte offset or a key path into a
 //! line and column, so every configuration error can say `file:line:column: what to fix`.
+//! [`Located`] is the one located-error type of every configuration file (design, bench, plan).
 //! Pure text handling; callers read the files.
 
 use std::fmt;
@@ -77,9 +78,15 @@ pub fn at_path(file: &str, src: &str, path: &[&str], message: impl Into<String>)
     }
 }
 
-/// Convert a toml deserialisation error into a located error.
-pub fn from_toml(file: &str, src: &str, err: &toml::de::Error) -> Located {
-    let (line, column) = match err.span() {
+/// Build a located error at a byte span of the file text (line and column of its start), or
+/// for the whole file when the span is unknown.
+pub fn at_span(
+    file: &str,
+    src: &str,
+    span: Option<std::ops::Range<usize>>,
+    message: impl Into<String>,
+) -> Located {
+    let (line, column) = match span {
         Some(span) => {
             let (l, c) = line_col(src, span.start);
             (Some(l), Some(c))
@@ -90,8 +97,13 @@ pub fn from_toml(file: &str, src: &str, err: &toml::de::Error) -> Located {
         file: file.to_string(),
         line,
         column,
-        message: err.message().trim().to_string(),
+        message: message.into(),
     }
+}
+
+/// Convert a toml deserialisation error into a located error.
+pub fn from_toml(file: &str, src: &str, err: &toml::de::Error) -> Located {
+    at_span(file, src, err.span(), err.message().trim())
 }
 
 #[cfg(test)]

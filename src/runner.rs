@@ -673,8 +673,8 @@ pub fn check_interlocks(
         if v > il.max_output_voltage_v {
             return Some(format!(
                 "output voltage {} exceeds max_output_voltage {}",
-                crate::units::eng(v, "V"),
-                crate::units::eng(il.max_output_voltage_v, "V")
+                crate::quantity::eng(v, "V"),
+                crate::quantity::eng(il.max_output_voltage_v, "V")
             ));
         }
         let i = m.get(Quantity::OutputCurrent).or(match setting {
@@ -693,8 +693,8 @@ pub fn check_interlocks(
             if p > il.max_load_power_w {
                 return Some(format!(
                     "load power {} exceeds max_load_power {}",
-                    crate::units::eng(p, "W"),
-                    crate::units::eng(il.max_load_power_w, "W")
+                    crate::quantity::eng(p, "W"),
+                    crate::quantity::eng(il.max_load_power_w, "W")
                 ));
             }
         }
@@ -707,8 +707,8 @@ pub fn check_interlocks(
             Some(Reading::Value(t)) if *t > il.max_temperature_c => {
                 return Some(format!(
                     "temperature {} exceeds max_temperature {}",
-                    crate::units::eng(*t, "degC"),
-                    crate::units::eng(il.max_temperature_c, "degC")
+                    crate::quantity::eng(*t, "degC"),
+                    crate::quantity::eng(il.max_temperature_c, "degC")
                 ))
             }
             _ => {}
@@ -736,19 +736,19 @@ pub fn short_circuit_cautions(plan: &Plan, vin: Option<f64>) -> Vec<String> {
             let dissipation = match vin {
                 Some(v) => format!(
                     "about {} (V_in {} x I_sc {})",
-                    crate::units::eng(v * sc.expected_current_a, "W"),
-                    crate::units::eng(v, "V"),
-                    crate::units::eng(sc.expected_current_a, "A")
+                    crate::quantity::eng(v * sc.expected_current_a, "W"),
+                    crate::quantity::eng(v, "V"),
+                    crate::quantity::eng(sc.expected_current_a, "A")
                 ),
                 None => format!(
                     "about V_in x {} (input voltage unknown)",
-                    crate::units::eng(sc.expected_current_a, "A")
+                    crate::quantity::eng(sc.expected_current_a, "A")
                 ),
             };
             lines.push(format!(
                 "  step '{}': short of {} held for {:.1} s; the pass device dissipates {}.",
                 s.label,
-                crate::units::eng(sc.resistance_ohm, "ohm"),
+                crate::quantity::eng(sc.resistance_ohm, "ohm"),
                 sc.dwell.as_secs_f64(),
                 dissipation
             ));

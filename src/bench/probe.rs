@@ -4,7 +4,7 @@
 
 use super::{connect, BenchConfig, BenchError, Instrument, InstrumentConfig};
 use crate::measure::{Reading, Role};
-use crate::units::eng;
+use crate::quantity::eng;
 use std::io::Write;
 use std::sync::Arc;
 use std::time::Duration;

@@ -129,7 +129,7 @@ fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
                 format!(
                     "{} {} ({})",
                     c.metric,
-                    crate::units::eng(c.measured, &c.unit),
+                    crate::quantity::eng(c.measured, &c.unit),
                     c.verdict.as_str()
                 )
             })
@@ -157,8 +157,8 @@ fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
             "{:<22} n {:>3}  mean {:>10}  sigma {:>10}  {cpk}",
             s.metric.as_str(),
             s.n,
-            crate::units::eng(s.mean, s.metric.unit()),
-            crate::units::eng(s.sigma, s.metric.unit())
+            crate::quantity::eng(s.mean, s.metric.unit()),
+            crate::quantity::eng(s.sigma, s.metric.unit())
         )?;
     }
     for o in &out.population.outliers {
@@ -167,7 +167,7 @@ fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
             "OUTLIER {}: {} = {} (z = {:+.1})",
             o.unit,
             o.metric.as_str(),
-            crate::units::eng(o.value, o.metric.unit()),
+            crate::quantity::eng(o.value, o.metric.unit()),
             o.z
         )?;
     }

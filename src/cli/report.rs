@@ -172,10 +172,10 @@ pub fn print_outcome<W: std::io::Write>(
                 w,
                 "{:<22} {:>10}  nominal {:>10}  worst case {} .. {}  {}",
                 ch.metric,
-                crate::units::eng(ch.measured, &ch.unit),
-                crate::units::eng(ch.nominal, &ch.unit),
-                crate::units::eng(ch.worst_case.min, &ch.unit),
-                crate::units::eng(ch.worst_case.max, &ch.unit),
+                crate::quantity::eng(ch.measured, &ch.unit),
+                crate::quantity::eng(ch.nominal, &ch.unit),
+                crate::quantity::eng(ch.worst_case.min, &ch.unit),
+                crate::quantity::eng(ch.worst_case.max, &ch.unit),
                 ch.verdict.as_str().to_uppercase()
             )?;
         }

@@ -4,9 +4,9 @@
 
 use super::{CodedError, EXIT_OK, EXIT_USAGE};
 use crate::design::Design;
+use crate::quantity::eng;
 use crate::sim::instruments::InstrumentKind;
 use crate::sim::{Fault, Link, SimBench, SimOptions, TransportMix, Truth};
-use crate::units::eng;
 use anyhow::Context;
 use std::io::Write;
 use std::path::PathBuf;

@@ -4,7 +4,7 @@
 use crate::design::eseries::Series;
 use crate::design::sizing::{self, Targets};
 use crate::design::{self, Clamp, Design, Stage};
-use crate::units::eng;
+use crate::quantity::eng;
 use anyhow::Context;
 use std::io::Write;
 use std::path::PathBuf;

@@ -168,8 +168,8 @@ fn drift_flag(e: &HistoryEntry, k: KeyMetric, basis: DriftBasis, base: f64, v: f
         message: format!(
             "{} changed from {} to {}{rel} {since}",
             k.as_str(),
-            crate::units::eng(base, k.unit()),
-            crate::units::eng(v, k.unit())
+            crate::quantity::eng(base, k.unit()),
+            crate::quantity::eng(v, k.unit())
         ),
     }
 }

@@ -4,7 +4,7 @@
 use super::expect::{Expectation, Verdict};
 use super::file::{Clamp, Design};
 use super::tolerance::Band;
-use crate::units::{eng, sig3};
+use crate::quantity::{eng, sig3};
 use std::io::{self, Write};
 
 fn band_row(w: &mut impl Write, label: &str, b: &Band, unit: &str) -> io::Result<()> {

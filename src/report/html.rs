@@ -5,8 +5,8 @@
 
 use super::Summary;
 use crate::compare::Verdict;
+use crate::quantity::eng;
 use crate::record::RunInfo;
-use crate::units::eng;
 use std::io::Write;
 
 /// Escape text for HTML element content and attribute values.

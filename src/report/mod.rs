@@ -479,7 +479,7 @@ pub fn write_history_table<W: Write>(mut w: W, h: &History) -> std::io::Result<(
     for e in &h.entries {
         let g = |k| e.values.get(k);
         let eng = |v: Option<f64>, u: &str| {
-            v.map(|x| crate::units::eng(x, u))
+            v.map(|x| crate::quantity::eng(x, u))
                 .unwrap_or_else(|| "-".into())
         };
         writeln!(

@@ -320,7 +320,7 @@ fn draw_vi<DB: DrawingBackend>(
                 .label(format!(
                     "knee, {:.0} % drop: {}",
                     k.drop_fraction * 100.0,
-                    crate::units::eng(p.current, "A")
+                    crate::quantity::eng(p.current, "A")
                 ))
                 .legend(|(x, y)| TriangleMarker::new((x + 9, y), 7, KNEE_A.filled()));
         }
@@ -336,7 +336,7 @@ fn draw_vi<DB: DrawingBackend>(
                 .map_err(s)?
                 .label(format!(
                     "knee, two-segment fit: {}",
-                    crate::units::eng(p.current, "A")
+                    crate::quantity::eng(p.current, "A")
                 ))
                 .legend(|(x, y)| {
                     Rectangle::new([(x + 4, y - 5), (x + 14, y + 5)], KNEE_B.stroke_width(2))
@@ -406,7 +406,7 @@ fn draw_regulation<DB: DrawingBackend>(
     if let Some(r) = metrics.output_resistance {
         let u = r
             .std_uncertainty
-            .map(|u| format!(" +- {}", crate::units::eng(u, "ohm")))
+            .map(|u| format!(" +- {}", crate::quantity::eng(u, "ohm")))
             .unwrap_or_default();
         let x_end = range_of(pts.iter().map(|p| p.0))
             .map(|r| r.1)
@@ -423,7 +423,7 @@ fn draw_regulation<DB: DrawingBackend>(
             .map_err(s)?
             .label(format!(
                 "fit, output resistance {}{u} (dashed)",
-                crate::units::eng(r.ohms, "ohm")
+                crate::quantity::eng(r.ohms, "ohm")
             ))
             .legend(|(x, y)| {
                 DashedPathElement::new(vec![(x, y), (x + 18, y)], 5, 3, EXPECTED.stroke_width(2))

@@ -4,7 +4,7 @@
 
 use super::SpiceError;
 use crate::design::{Band, Expectation};
-use crate::units::eng;
+use crate::quantity::eng;
 use serde::Serialize;
 use std::io::{self, Write};
 use std::path::Path;
