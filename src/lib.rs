@@ -12,6 +12,7 @@ pub mod config;
 pub mod control;
 pub mod design;
 pub mod measure;
+pub mod pipeline;
 pub mod plan;
 pub mod protocol;
 pub mod quantity;

@@ -19,8 +19,15 @@ fn main() -> ExitCode {
             }
             let code = regulus::cli::exit_code_for(&err);
             eprintln!("error: {err}");
+            // Print each cause once: skip a cause whose text the line above already holds
+            // (errors that show their source in their own message).
+            let mut shown = err.to_string();
             for cause in err.chain().skip(1) {
-                eprintln!("  caused by: {cause}");
+                let text = cause.to_string();
+                if !shown.contains(&text) {
+                    eprintln!("  caused by: {text}");
+                }
+                shown = text;
             }
             ExitCode::from(code)
         }

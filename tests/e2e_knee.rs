@@ -28,7 +28,7 @@ use e2e_support::{design, sample, serial};
 use regulus::bench::{Bench, BenchConfig};
 use regulus::cli::run::{prepare, Args};
 use regulus::plan::{KneeOutcome, KneeResult};
-use regulus::record::{read_run, Snapshots, StepKind};
+use regulus::record::{read_run, StepKind};
 use regulus::runner::{self, CancelToken, RunSetup, Silent};
 use regulus::sim::{Controls, Fault, SimBench, SimOptions, SimUnit, Thermal, UnitModel};
 
@@ -104,11 +104,7 @@ fn search(design_name: &str, seed: u64, fault: Option<&str>) -> Found {
             operator: None,
             note: None,
             design: prep.design_ref.clone(),
-            snapshots: Snapshots {
-                design: &prep.design_bytes,
-                bench: &prep.bench_bytes,
-                plan: &prep.plan_bytes,
-            },
+            snapshots: prep.snapshots(),
         };
         runner::run(
             &mut bench,

@@ -294,8 +294,13 @@ impl BenchConfig {
             path: path.display().to_string(),
             detail: e.to_string(),
         })?;
-        let mut cfg = BenchConfig::parse(&text, &path.display().to_string())?;
-        // Relative traffic log paths are relative to the bench file's folder.
+        BenchConfig::parse_file(&text, path)
+    }
+
+    /// Check the text of the bench file at `path` (already read): the path names it in
+    /// messages, and relative traffic log paths are relative to the file's folder.
+    pub fn parse_file(text: &str, path: &Path) -> Result<BenchConfig, BenchError> {
+        let mut cfg = BenchConfig::parse(text, &path.display().to_string())?;
         if let Some(dir) = path.parent() {
             for inst in &mut cfg.instruments {
                 if let Some(log) = &inst.traffic_log {

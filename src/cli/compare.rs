@@ -3,8 +3,8 @@
 //! Exit 1 when any verdict fails.
 
 use super::report::{analysis_args::AnalysisArgs, load_expectation};
-use super::{CodedError, EXIT_FAIL, EXIT_OK, EXIT_USAGE};
-use crate::compare::{self, KeyMetric, KeyValues, Verdict};
+use super::{CodedError, EXIT_USAGE};
+use crate::compare::{self, KeyMetric, KeyValues};
 use anyhow::Context;
 use std::io::Write;
 use std::path::PathBuf;
@@ -58,17 +58,15 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let mut units: Vec<(String, KeyValues)> = Vec::new();
     for r in &args.records {
         let rec = crate::report::load_record(r)
-            .map_err(super::report::coded)
             .with_context(|| format!("reading record {}", r.display()))?;
         let mut ao = aopts.clone();
         ao.nominal_voltage.get_or_insert(exp.vout.nominal);
         let m = crate::analysis::analyse(&rec.rows, &ao);
         let mut c = compare::compare(&m, &exp);
-        // As in `regulus report`: a run that did not complete cannot pass.
-        let finished = rec.info.outcome == crate::record::Outcome::Completed
-            && rec.state != crate::record::RecordState::Incomplete;
-        if !finished {
-            c.verdict = compare::Verdict::Fail;
+        // As in `regulus report`: a run that did not finish cannot pass.
+        if let Some(v) = compare::record_verdict(rec.info.outcome, Some(rec.state), Some(c.verdict))
+        {
+            c.verdict = v;
         }
         units.push((rec.info.unit.clone(), KeyValues::from_metrics(&m)));
         judged.push(Judged {
@@ -102,7 +100,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             std::fs::write(&path, svg).with_context(|| format!("writing {}", path.display()))?;
         }
     }
-    let any_fail = judged.iter().any(|j| j.comparison.verdict == Verdict::Fail);
+    let code = super::for_verdicts(judged.iter().map(|j| Some(j.comparison.verdict)));
     let out = Output {
         design: exp.design_name.clone(),
         records: judged,
@@ -115,7 +113,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     } else {
         write_table(&mut w, &out)?;
     }
-    Ok(if any_fail { EXIT_FAIL } else { EXIT_OK })
+    Ok(code)
 }
 
 fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {

@@ -1,12 +1,13 @@
 //! `regulus demo`: no hardware, no arguments. Starts the built-in simulated bench in-process on
 //! pseudo-terminals and loopback TCP, runs the standard plan on two simulated units of the
 //! teaching-lab demo design (one built right, one with a wrong sense resistor), writes their
-//! records and reports, and says where they are. Uses the same code path as `regulus run`.
+//! records and reports, and says where they are. Uses the same pipeline as `regulus run`.
 
-use super::run::{self as run_cmd, Prepared};
-use super::{CodedError, EXIT_ABORTED, EXIT_OK, EXIT_USAGE};
-use crate::bench::{Bench, BenchConfig};
+use super::present;
+use super::usage;
+use crate::bench::Bench;
 use crate::design::Design;
+use crate::pipeline::{self, RunRequest};
 use crate::sim::{Fault, SimBench, SimOptions};
 use anyhow::Context;
 use std::io::Write;
@@ -47,10 +48,6 @@ const UNITS: [DemoUnit; 2] = [
     },
 ];
 
-fn usage(message: impl Into<String>) -> anyhow::Error {
-    CodedError::new(EXIT_USAGE, message).into()
-}
-
 fn write_input(dir: &Path, name: &str, text: &str) -> anyhow::Result<PathBuf> {
     let path = dir.join(name);
     std::fs::write(&path, text).with_context(|| format!("writing {}", path.display()))?;
@@ -82,7 +79,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     )?;
     drop(out);
 
-    let (cancel, rt) = run_cmd::interruptible_runtime()?;
+    let (cancel, rt) = present::interruptible_runtime()?;
 
     let mut results = Vec::new();
     for (k, unit) in UNITS.iter().enumerate() {
@@ -103,7 +100,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         for p in sim.ports() {
             println!("  {:<8} {}", p.name, p.link);
         }
-        let run_args = run_cmd::Args {
+        let request = RunRequest {
             bench: bench_path.clone(),
             design: design_path.clone(),
             plan: plan_path.clone(),
@@ -111,15 +108,11 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             records: args.records.clone(),
             operator: Some("demo".to_string()),
             note: Some(format!("simulated unit: {}", unit.what)),
-            yes: true,
         };
-        let prep: Prepared = run_cmd::prepare(&run_args)?;
-        let cfg = BenchConfig::load(&bench_path).map_err(|e| usage(e.to_string()))?;
+        let prep = pipeline::prepare(&request)?;
         let code = rt.block_on(async {
-            let mut bench = Bench::open(&cfg)
-                .await
-                .map_err(|e| anyhow::Error::from(CodedError::new(EXIT_ABORTED, e.to_string())))?;
-            run_cmd::execute(&mut bench, &prep, &run_args, &cancel).await
+            let mut bench = Bench::open(&prep.bench).await?;
+            present::run_and_show(&mut bench, &prep, &request, &cancel).await
         })?;
         sim.shutdown();
         println!();
@@ -128,7 +121,6 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             break;
         }
     }
-    let worst = results.iter().map(|(_, c)| *c).max().unwrap_or(EXIT_OK);
     println!(
         "demo finished: records, plots and reports are under {}",
         args.records.display()
@@ -148,11 +140,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         design_path.display()
     );
     // The demo's own exit code: 0 when it ran through (one unit is meant to fail).
-    Ok(if worst >= EXIT_ABORTED {
-        worst
-    } else {
-        EXIT_OK
-    })
+    Ok(super::for_batch(results.iter().map(|(_, c)| *c)))
 }
 
 /// Verdict, the likely causes worth showing, and the report path of a unit's newest record.

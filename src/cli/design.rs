@@ -74,10 +74,8 @@ fn spice_steps(args: &Args, d: &Design, e: &design::Expectation) -> anyhow::Resu
             spice::ModelMode::Matched
         },
     };
-    let usage =
-        |e: &dyn std::fmt::Display| super::CodedError::new(super::EXIT_USAGE, e.to_string());
     if let Some(path) = &args.netlist {
-        let n = spice::build(d, &opts).map_err(|e| usage(&e))?;
+        let n = spice::build(d, &opts)?;
         std::fs::write(path, &n.text)
             .with_context(|| format!("writing the netlist {}", path.display()))?;
         eprintln!("netlist written to {}", path.display());
@@ -94,7 +92,7 @@ fn spice_steps(args: &Args, d: &Design, e: &design::Expectation) -> anyhow::Resu
             );
             return Ok(());
         }
-        Err(err @ spice::SpiceError::Netlist(_)) => return Err(usage(&err).into()),
+        Err(err @ spice::SpiceError::Netlist(_)) => return Err(err.into()),
         Err(err) => return Err(err).context("simulating the design with ngspice"),
     };
     let rows = spice::compare(e, &sim.summary);

@@ -60,8 +60,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         )
         .into());
     }
-    let h =
-        crate::report::history(&args.records, &args.unit, &aopts).map_err(super::report::coded)?;
+    let h = crate::report::history(&args.records, &args.unit, &aopts)?;
     let mut out = std::io::stdout().lock();
     if args.json {
         crate::report::write_history_json(&mut out, &h)?;

@@ -2,7 +2,7 @@
 //! one reading from each measuring role, printing a table with round-trip times. Exit 2 on a
 //! bench file error, 3 when an instrument fails.
 
-use super::{CodedError, EXIT_ABORTED, EXIT_OK, EXIT_USAGE};
+use super::{CodedError, EXIT_ABORTED, EXIT_OK};
 use crate::bench::{probe, write_probe_table, BenchConfig};
 use anyhow::Context;
 use std::path::PathBuf;
@@ -19,23 +19,13 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
-    let cfg =
-        BenchConfig::load(&args.bench).map_err(|e| CodedError::new(EXIT_USAGE, e.to_string()))?;
+    let cfg = BenchConfig::load(&args.bench)?;
     let rt = tokio::runtime::Builder::new_multi_thread()
         .worker_threads(2)
         .enable_all()
         .build()
         .context("cannot start the async runtime")?;
-    let report = rt
-        .block_on(probe(&cfg, args.instrument.as_deref()))
-        .map_err(|e| {
-            let code = if e.is_config() {
-                EXIT_USAGE
-            } else {
-                EXIT_ABORTED
-            };
-            CodedError::new(code, e.to_string())
-        })?;
+    let report = rt.block_on(probe(&cfg, args.instrument.as_deref()))?;
     let stdout = std::io::stdout();
     let mut out = stdout.lock();
     write_probe_table(&mut out, &report).context("cannot write the probe table")?;

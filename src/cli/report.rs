@@ -1,7 +1,7 @@
 //! `regulus report RECORD`: regenerate a record's summary.json, plots and report.html, compared
 //! with the record's design snapshot (or another design file). Exit 1 on a failing verdict.
 
-use super::{CodedError, EXIT_FAIL, EXIT_OK, EXIT_USAGE};
+use super::{CodedError, EXIT_USAGE};
 use analysis_args::AnalysisArgs;
 use anyhow::Context;
 use std::path::{Path, PathBuf};
@@ -87,22 +87,6 @@ pub fn load_expectation(path: &Path) -> anyhow::Result<crate::compare::DesignExp
     Ok(crate::compare::DesignExpectation::from_design(&d, &e))
 }
 
-/// Turn a report error into an anyhow error with the right exit code: an unreadable or
-/// malformed record is a usage error (2), anything else aborts (3).
-pub fn coded(e: crate::report::ReportError) -> anyhow::Error {
-    use crate::record::RecordError;
-    use crate::report::ReportError;
-    match e {
-        ReportError::Record(RecordError::Io { action, .. })
-            if action != "read" && action != "list" =>
-        {
-            e.into()
-        }
-        ReportError::Record(_) => CodedError::new(EXIT_USAGE, e.to_string()).into(),
-        other => other.into(),
-    }
-}
-
 pub fn run(args: Args) -> anyhow::Result<u8> {
     let aopts = args
         .analysis
@@ -141,7 +125,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         };
         Some(load_expectation(&path)?)
     };
-    crate::report::load_run_info(&args.record).map_err(coded)?;
+    crate::report::load_run_info(&args.record)?;
     // Earlier records of the same unit, for drift flags.
     let earlier = crate::report::earlier_entries(&args.record, &aopts);
     let opts = crate::report::ReportOptions {
@@ -150,48 +134,8 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         png: args.png,
     };
     let written = crate::report::write_report(&args.record, exp.as_ref(), &opts)
-        .map_err(coded)
         .with_context(|| format!("writing the report of {}", args.record.display()))?;
     let mut out = std::io::stdout().lock();
-    print_outcome(&mut out, &written)?;
-    Ok(match written.summary.verdict {
-        Some(crate::compare::Verdict::Fail) => EXIT_FAIL,
-        _ => EXIT_OK,
-    })
-}
-
-/// Print the comparison, likely causes, drift flags, verdict and written files.
-pub fn print_outcome<W: std::io::Write>(
-    mut w: W,
-    written: &crate::report::Written,
-) -> std::io::Result<()> {
-    let s = &written.summary;
-    if let Some(c) = &s.comparison {
-        for ch in &c.checks {
-            writeln!(
-                w,
-                "{:<22} {:>10}  nominal {:>10}  worst case {} .. {}  {}",
-                ch.metric,
-                crate::quantity::eng(ch.measured, &ch.unit),
-                crate::quantity::eng(ch.nominal, &ch.unit),
-                crate::quantity::eng(ch.worst_case.min, &ch.unit),
-                crate::quantity::eng(ch.worst_case.max, &ch.unit),
-                ch.verdict.as_str().to_uppercase()
-            )?;
-        }
-        for cause in &c.likely_causes {
-            writeln!(w, "likely cause: {cause}")?;
-        }
-    }
-    for f in &s.drift {
-        writeln!(w, "DRIFT: {}", f.message)?;
-    }
-    match s.verdict {
-        Some(v) => writeln!(w, "verdict: {}", v.as_str().to_uppercase())?,
-        None => writeln!(w, "no design given: metrics only")?,
-    }
-    for f in &written.files {
-        writeln!(w, "wrote {}", f.display())?;
-    }
-    Ok(())
+    super::present::print_outcome(&mut out, &written)?;
+    Ok(super::for_verdicts([written.summary.verdict]))
 }

@@ -11,7 +11,9 @@ use crate::analysis::Metrics;
 use serde::{Deserialize, Serialize};
 
 mod drift;
+mod finished;
 pub use drift::*;
+pub use finished::{finished, record_verdict};
 
 /// Lower and upper limit of a band (the design model's interval).
 pub type Limits = crate::design::Interval;

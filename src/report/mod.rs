@@ -80,7 +80,8 @@ pub struct Summary {
     pub metrics: Metrics,
     pub comparison: Option<Comparison>,
     pub drift: Vec<DriftFlag>,
-    /// Overall verdict: the comparison's, or fail when the run did not complete.
+    /// Overall verdict ([`compare::record_verdict`]): the comparison's, or fail when the run
+    /// did not finish.
     pub verdict: Option<Verdict>,
 }
 
@@ -101,16 +102,25 @@ pub fn summarize(
     exp: Option<&DesignExpectation>,
     opts: &ReportOptions,
 ) -> Summary {
+    summarize_record(info, None, rows, exp, opts)
+}
+
+/// [`summarize`] with the record's state when it is known (a run cut short cannot pass).
+pub fn summarize_record(
+    info: &RunInfo,
+    state: Option<RecordState>,
+    rows: &[Row],
+    exp: Option<&DesignExpectation>,
+    opts: &ReportOptions,
+) -> Summary {
     let mut aopts = opts.analysis.clone();
     if aopts.nominal_voltage.is_none() {
         aopts.nominal_voltage = exp.map(|e| e.vout.nominal);
     }
     let metrics = analysis::analyse(rows, &aopts);
     let comparison = exp.map(|e| compare::compare(&metrics, e));
-    let mut verdict = comparison.as_ref().map(|c| c.verdict);
-    if matches!(info.outcome, Outcome::Aborted | Outcome::Failed) {
-        verdict = Some(Verdict::Fail);
-    }
+    let verdict =
+        compare::record_verdict(info.outcome, state, comparison.as_ref().map(|c| c.verdict));
     let this = entry_for(&record_name_of(info), info, &metrics, verdict);
     let mut all = opts.earlier.clone();
     all.push(this.clone());
@@ -199,7 +209,7 @@ pub fn write_report(
     opts: &ReportOptions,
 ) -> Result<Written, ReportError> {
     let rec = load_record(dir)?;
-    let mut summary = summarize(&rec.info, &rec.rows, exp, opts);
+    let mut summary = summarize_record(&rec.info, Some(rec.state), &rec.rows, exp, opts);
     summary.record_state = state_word(rec.state).to_string();
     // Drift flags name the record by its folder.
     let folder = dir
@@ -396,8 +406,7 @@ fn entry_from_dir(
     }
     let rows = record::read_rows(&d.join(record::READINGS_FILE))?;
     let m = analysis::analyse(&rows, opts);
-    let verdict =
-        matches!(info.outcome, Outcome::Aborted | Outcome::Failed).then_some(Verdict::Fail);
+    let verdict = compare::record_verdict(info.outcome, None, None);
     Ok(entry_for(name, info, &m, verdict))
 }
 

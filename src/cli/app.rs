@@ -1,0 +1,58 @@
+//! The command line's shape: one clap derive `Cli` with one `Subcommand` enum, and
+//! [`dispatch`], which runs the chosen command and returns its exit code.
+
+use super::{compare, demo, design, history, probe, report, run, sim, size};
+use clap::{Parser, Subcommand};
+
+#[derive(Debug, Parser)]
+#[command(
+    name = "regulus",
+    version,
+    about = "Design, characterize and track linear regulated DC power supplies",
+    long_about = "regulus computes a linear regulated supply's expected behaviour with tolerance \
+bands, drives bench instruments over serial or TCP to characterize each built unit, compares \
+measured with designed, flags drift and keeps a dated record per unit.\n\nCAUTION: power supplies \
+under test can carry mains voltages, get hot and deliver large short-circuit currents. Follow \
+local codes and licensed practice."
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Compute a design's expected behaviour: output range, limit, dissipation, headroom, thermal.
+    Design(design::Args),
+    /// Choose a sense resistor and clamp parts from targets, with preferred (E-series) values.
+    Size(size::Args),
+    /// Connect to a bench's instruments, identify them and take one reading from each.
+    Probe(probe::Args),
+    /// Start a simulated bench (a simulated unit and its instruments) on local ports.
+    Sim(sim::Args),
+    /// Run a test plan on a unit and keep a dated record (stresses the unit: read the cautions).
+    Run(run::Args),
+    /// Run the standard plan on the built-in simulated bench; no hardware needed.
+    Demo(demo::Args),
+    /// Regenerate a record's summary, plots and HTML report.
+    Report(report::Args),
+    /// List a unit's dated runs with key metrics and drift flags.
+    History(history::Args),
+    /// Re-evaluate records against a design (for instance a new revision).
+    Compare(compare::Args),
+}
+
+/// Run the chosen command and return its exit code.
+pub fn dispatch(cli: Cli) -> anyhow::Result<u8> {
+    match cli.command {
+        Command::Design(a) => design::run(a),
+        Command::Size(a) => size::run(a),
+        Command::Probe(a) => probe::run(a),
+        Command::Sim(a) => sim::run(a),
+        Command::Run(a) => run::run(a),
+        Command::Demo(a) => demo::run(a),
+        Command::Report(a) => report::run(a),
+        Command::History(a) => history::run(a),
+        Command::Compare(a) => compare::run(a),
+    }
+}

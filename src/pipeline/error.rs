@@ -1,0 +1,66 @@
+//! What can stop the run pipeline, each kept with its kind and source, and phrased so the user
+//! knows what to check. [`PipelineError::is_config`] tells a problem with the inputs (fix a
+//! file or an argument) from a failure of the station (an instrument, a link, a disk).
+
+use crate::bench::BenchError;
+use crate::control::ControlError;
+use crate::design::DesignError;
+use crate::plan::PlanError;
+use crate::runner::RunError;
+use std::path::PathBuf;
+
+/// A run could not be prepared or started.
+#[derive(Debug, thiserror::Error)]
+pub enum PipelineError {
+    /// The unit id cannot name a folder.
+    #[error("{0}")]
+    Unit(String),
+    #[error("cannot read {what} {}: {source}", path.display())]
+    Read {
+        what: &'static str,
+        path: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+    #[error("{}: the plan file is not UTF-8 text", path.display())]
+    NotText { path: PathBuf },
+    #[error(transparent)]
+    Design(#[from] DesignError),
+    #[error(transparent)]
+    Plan(#[from] PlanError),
+    #[error(transparent)]
+    Bench(Box<BenchError>),
+    #[error("{message} (bench file {})", bench.display())]
+    BenchRoles { message: String, bench: PathBuf },
+    /// The runner refused to start; the bench was put in its safe state (failures listed).
+    #[error("{}", not_started(error))]
+    NotStarted {
+        #[source]
+        error: RunError,
+        safe_state: Vec<ControlError>,
+    },
+}
+
+fn not_started(e: &RunError) -> String {
+    match e {
+        RunError::Roles(m) => m.clone(),
+        RunError::Record(e) => format!("{e} (check --records)"),
+    }
+}
+
+impl From<BenchError> for PipelineError {
+    fn from(e: BenchError) -> PipelineError {
+        PipelineError::Bench(Box::new(e))
+    }
+}
+
+impl PipelineError {
+    /// True for problems with the inputs (a file, an argument, the records folder); false for
+    /// failures of the station (an instrument or its link).
+    pub fn is_config(&self) -> bool {
+        match self {
+            PipelineError::Bench(e) => e.is_config(),
+            _ => true,
+        }
+    }
+}

@@ -1,0 +1,69 @@
+//! Running a prepared plan and deriving its files: the runner executes the plan on a bench
+//! (through the `BenchControl` trait, so a fake bench fits as well as the real one), then the
+//! record is judged against the design and `summary.json`, the plots and `report.html` are
+//! written into it. Prints nothing: the caller shows progress (an `Observer`) and the result.
+
+use super::{PipelineError, Prepared, RunRequest};
+use crate::compare::{DesignExpectation, Verdict};
+use crate::control::BenchControl;
+use crate::report::{ReportError, ReportOptions, Written};
+use crate::runner::{self, CancelToken, Observer, RunReport, RunSetup};
+
+/// A run that went through the runner: how it went, and its derived files (or why they could
+/// not be written; the record itself is safe on disk either way).
+#[derive(Debug)]
+pub struct Finished {
+    pub report: RunReport,
+    pub written: Result<Written, ReportError>,
+}
+
+impl Finished {
+    /// The overall verdict, when the derived files were written.
+    pub fn verdict(&self) -> Option<Verdict> {
+        self.written.as_ref().ok().and_then(|w| w.summary.verdict)
+    }
+}
+
+/// Run a prepared plan on an open bench and write the derived files. When the runner refuses
+/// to start (missing roles, the record cannot be created), the bench is put in its safe state
+/// and the error is returned together with the safe-state failures.
+pub async fn execute<B: BenchControl, O: Observer>(
+    bench: &mut B,
+    prep: &Prepared,
+    req: &RunRequest,
+    observer: &mut O,
+    cancel: &CancelToken,
+) -> Result<Finished, PipelineError> {
+    let setup = RunSetup {
+        records: &req.records,
+        unit: req.unit.clone(),
+        operator: req.operator.clone(),
+        note: req.note.clone(),
+        design: prep.design_ref.clone(),
+        snapshots: prep.snapshots(),
+    };
+    let report = match runner::run(bench, &prep.plan, setup, observer, cancel).await {
+        Ok(r) => r,
+        Err(error) => {
+            // Nothing was switched on, but the bench is open: leave it in its safe state.
+            let safe_state = bench.safe_state().await;
+            return Err(PipelineError::NotStarted { error, safe_state });
+        }
+    };
+    let written = write_derived(&report, prep);
+    Ok(Finished { report, written })
+}
+
+/// Write summary.json, plots (SVG and PNG) and report.html for a finished run, with drift
+/// flags against the unit's earlier records.
+pub fn write_derived(report: &RunReport, prep: &Prepared) -> Result<Written, ReportError> {
+    let exp = DesignExpectation::from_design(&prep.design, &prep.expectation);
+    let analysis = crate::analysis::AnalysisOptions::default();
+    let earlier = crate::report::earlier_entries(&report.dir, &analysis);
+    let opts = ReportOptions {
+        analysis,
+        earlier,
+        png: true,
+    };
+    crate::report::write_report(&report.dir, Some(&exp), &opts)
+}
