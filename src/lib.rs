@@ -23,3 +23,6 @@ pub mod runner;
 pub mod sim;
 pub mod spice;
 pub mod transport;
+
+#[cfg(test)]
+mod layers;

@@ -1,0 +1,652 @@
+//! Measured metrics against the design's expectation: verdicts with margins, and likely
+//! causes found by fitting the design's limit model to the measurement. Pure.
+use crate::analysis::Metrics;
+use serde::{Deserialize, Serialize};
+
+/// Lower and upper limit of a band (the design model's interval).
+pub type Limits = crate::design::Interval;
+/// Monte Carlo spread of a quantity (the design model's statistics).
+pub type MonteCarlo = crate::design::McStats;
+/// What the design expects of one quantity: nominal, worst case, Monte Carlo.
+pub type ExpectedBand = crate::design::Band;
+
+/// How the current limit is made, with nominal element values (for likely causes).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "kind", rename_all = "snake_case")]
+pub enum Clamp {
+    /// Transistor limiter: I_lim = V_BE / R_sense.
+    Transistor { v_be: f64 },
+    /// Diode string: V_sense = n V_F - m V_BE.
+    DiodeString {
+        diodes: u32,
+        v_f: f64,
+        pass_junctions: u32,
+        v_be: f64,
+    },
+    /// Foldback limiter with divider ratio k: I_sc = V_BE / (k R_sense).
+    Foldback { v_be: f64, k: f64 },
+}
+
+impl Clamp {
+    /// The sense voltage at which the clamp holds the limit (for foldback: at short circuit).
+    pub fn sense_voltage(&self) -> f64 {
+        match *self {
+            Clamp::Transistor { v_be } => v_be,
+            Clamp::DiodeString {
+                diodes,
+                v_f,
+                pass_junctions,
+                v_be,
+            } => diodes as f64 * v_f - pass_junctions as f64 * v_be,
+            Clamp::Foldback { v_be, k } => v_be / k,
+        }
+    }
+}
+
+/// The limit model: sense resistance and clamp, with what is needed to read it hot.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct LimitModel {
+    pub sense_ohms: f64,
+    pub clamp: Clamp,
+    /// Junction drop temperature coefficient, V per degC (about -0.002 V/degC, textbook).
+    #[serde(default = "default_tempco")]
+    pub tempco_v_per_c: f64,
+    /// Pass device junction-to-case thermal resistance, degC/W.
+    #[serde(default)]
+    pub pass_theta_jc: Option<f64>,
+}
+
+fn default_tempco() -> f64 {
+    -0.002
+}
+
+/// Temperature at which the design's junction drops are given (degC).
+pub const JUNCTION_REFERENCE_C: f64 = 25.0;
+
+impl LimitModel {
+    /// The clamp's sense voltage with the pass junctions at `pass_junction_c`: a diode
+    /// string's threshold rises as the pass junctions heat (V_sense = n V_F - m V_BE(T)); a
+    /// transistor limiter sits off the heatsink and is read at its reference temperature.
+    pub fn sense_voltage_at(&self, pass_junction_c: Option<f64>) -> f64 {
+        match (self.clamp, pass_junction_c) {
+            (
+                Clamp::DiodeString {
+                    diodes,
+                    v_f,
+                    pass_junctions,
+                    v_be,
+                },
+                Some(tj),
+            ) => {
+                let v_be_hot = v_be + self.tempco_v_per_c * (tj - JUNCTION_REFERENCE_C);
+                diodes as f64 * v_f - pass_junctions as f64 * v_be_hot
+            }
+            _ => self.clamp.sense_voltage(),
+        }
+    }
+
+    /// Estimated pass junction temperature from the case reading and dissipation at the knee
+    /// (T_j = T_case + P theta_jc), when both are known.
+    pub fn pass_junction_c(&self, k: &crate::analysis::KneeConditions) -> Option<f64> {
+        let t = k.case_temperature?;
+        Some(t + k.pass_watts.unwrap_or(0.0) * self.pass_theta_jc.unwrap_or(0.0))
+    }
+}
+
+/// The design's expectation as the comparison needs it: the bands of the measured metrics,
+/// the limit model with nominal element values, and the expected V-I curves (nominal and the
+/// worst-case edges; empty when unknown).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DesignExpectation {
+    pub design_name: String,
+    pub vout: ExpectedBand,
+    pub limit_current: ExpectedBand,
+    pub short_circuit_current: Option<ExpectedBand>,
+    pub limit: Option<LimitModel>,
+    #[serde(default)]
+    pub curve: Vec<(f64, f64)>,
+    #[serde(default)]
+    pub curve_low: Vec<(f64, f64)>,
+    #[serde(default)]
+    pub curve_high: Vec<(f64, f64)>,
+}
+
+impl DesignExpectation {
+    /// The comparison's view of a design and its computed expectation.
+    pub fn from_design(d: &crate::design::Design, e: &crate::design::Expectation) -> Self {
+        use crate::design::Clamp as C;
+        let clamp = match d.limit.clamp {
+            C::Transistor => Some(Clamp::Transistor {
+                v_be: d.limit.vbe_v,
+            }),
+            C::DiodeString => d.limit.diodes.map(|n| Clamp::DiodeString {
+                diodes: n,
+                v_f: d.limit.diode_vf_v,
+                pass_junctions: d.pass.stage.junctions(),
+                v_be: d.pass.vbe_v,
+            }),
+            C::Foldback => match (&d.limit.divider_top, &d.limit.divider_bottom) {
+                (Some(t), Some(b)) if t.ohms + b.ohms > 0.0 => Some(Clamp::Foldback {
+                    v_be: d.limit.vbe_v,
+                    k: b.ohms / (t.ohms + b.ohms),
+                }),
+                _ => None,
+            },
+        };
+        DesignExpectation {
+            design_name: e.design_name.clone(),
+            vout: e.vout.setting_band,
+            limit_current: e.limit_current,
+            short_circuit_current: Some(e.short_circuit_current),
+            limit: clamp.map(|clamp| LimitModel {
+                sense_ohms: d.limit.sense.ohms,
+                clamp,
+                tempco_v_per_c: d.environment.junction_tempco_mv_per_c / 1000.0,
+                pass_theta_jc: Some(d.pass.theta_jc),
+            }),
+            curve: e.curve.clone(),
+            curve_low: e.curve_low.clone(),
+            curve_high: e.curve_high.clone(),
+        }
+    }
+}
+
+/// Pass: inside the Monte Carlo band. Marginal: inside the worst case, outside the Monte
+/// Carlo band. Fail: outside the worst case.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Verdict {
+    Pass,
+    Marginal,
+    Fail,
+}
+
+impl Verdict {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Verdict::Pass => "pass",
+            Verdict::Marginal => "marginal",
+            Verdict::Fail => "fail",
+        }
+    }
+}
+
+/// One metric checked against its band.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Check {
+    pub metric: String,
+    pub unit: String,
+    pub measured: f64,
+    pub nominal: f64,
+    pub worst_case: Limits,
+    pub monte_carlo_band: Limits,
+    pub verdict: Verdict,
+    /// Distance to the nearer worst-case limit, positive inside, in the metric's unit.
+    pub margin: f64,
+    /// The margin as a percentage of the nominal value.
+    pub margin_percent: f64,
+    /// (measured - nominal) / nominal * 100.
+    pub deviation_percent: f64,
+}
+
+/// Judge one value against a band.
+pub fn check(metric: &str, unit: &str, measured: f64, band: &ExpectedBand) -> Check {
+    let wc = band.worst_case;
+    let mc = Limits {
+        min: band.monte_carlo.p_low,
+        max: band.monte_carlo.p_high,
+    };
+    let verdict = if measured < wc.min || measured > wc.max || !measured.is_finite() {
+        Verdict::Fail
+    } else if measured < mc.min || measured > mc.max {
+        Verdict::Marginal
+    } else {
+        Verdict::Pass
+    };
+    let margin = (measured - wc.min).min(wc.max - measured);
+    let pct = |x: f64| {
+        if band.nominal != 0.0 {
+            x / band.nominal.abs() * 100.0
+        } else {
+            0.0
+        }
+    };
+    Check {
+        metric: metric.to_string(),
+        unit: unit.to_string(),
+        measured,
+        nominal: band.nominal,
+        worst_case: wc,
+        monte_carlo_band: mc,
+        verdict,
+        margin,
+        margin_percent: pct(margin),
+        deviation_percent: pct(measured - band.nominal),
+    }
+}
+
+/// The comparison of one record with a design.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Comparison {
+    pub design_name: String,
+    pub checks: Vec<Check>,
+    /// Worst verdict of all checks (pass when nothing could be checked).
+    pub verdict: Verdict,
+    pub likely_causes: Vec<String>,
+    /// Metrics the design specifies but the record lacks.
+    pub not_measured: Vec<String>,
+}
+
+/// Short-circuit drift over the dwell beyond which heating is named as a likely cause (5 %,
+/// common practice for a bench check; the junction drop moves about 2 mV per degC).
+pub const HEATING_DRIFT_PERCENT: f64 = 5.0;
+
+/// Compare a record's metrics with the design's expectation.
+pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
+    let mut checks = Vec::new();
+    let mut not_measured = Vec::new();
+    match metrics.no_load {
+        Some(p) => checks.push(check("output_voltage", "V", p.voltage, &exp.vout)),
+        None => not_measured.push("output_voltage".to_string()),
+    }
+    match metrics.limit_current() {
+        Some(i) => checks.push(check("limit_current", "A", i, &exp.limit_current)),
+        None => not_measured.push("limit_current".to_string()),
+    }
+    if let Some(band) = &exp.short_circuit_current {
+        match &metrics.short_circuit {
+            Some(sc) => checks.push(check("short_circuit_current", "A", sc.start_current, band)),
+            None => not_measured.push("short_circuit_current".to_string()),
+        }
+    }
+    let verdict = checks
+        .iter()
+        .map(|c| c.verdict)
+        .max()
+        .unwrap_or(Verdict::Pass);
+    let likely_causes = likely_causes(metrics, exp, &checks);
+    Comparison {
+        design_name: exp.design_name.clone(),
+        checks,
+        verdict,
+        likely_causes,
+        not_measured,
+    }
+}
+
+/// The preferred value nearest to `value` (by ratio), from E12 when one lies within
+/// `tolerance`, otherwise from E24 (IEC 60063 tables in `design::eseries`).
+pub fn nearest_preferred(value: f64, tolerance: f64) -> Option<f64> {
+    preferred_in_range(value, value, tolerance)
+}
+
+/// A preferred value inside `[lo (1 - tol), hi (1 + tol)]`: from E12 when any lies there,
+/// otherwise from E24; among several, the one nearest (by ratio) to the range's geometric
+/// middle.
+pub fn preferred_in_range(lo: f64, hi: f64, tolerance: f64) -> Option<f64> {
+    use crate::design::eseries::{next_up, Series};
+    let (lo, hi) = (lo.min(hi), lo.max(hi));
+    if !(lo > 0.0 && hi.is_finite()) {
+        return None;
+    }
+    let (a, b) = (lo * (1.0 - tolerance), hi * (1.0 + tolerance));
+    let mid = (lo * hi).sqrt();
+    for series in [Series::E12, Series::E24] {
+        let mut found = Vec::new();
+        let mut c = next_up(a, series);
+        while let Some(v) = c.filter(|v| *v <= b) {
+            found.push(v);
+            c = next_up(v * (1.0 + 1e-6), series);
+        }
+        if let Some(best) = found
+            .into_iter()
+            .min_by(|x, y| (x / mid).ln().abs().total_cmp(&(y / mid).ln().abs()))
+        {
+            return Some(best);
+        }
+    }
+    None
+}
+
+/// Relative tolerance within which a fitted element value is said to match a preferred value
+/// or a junction count (4 %: under half the gap between E24 neighbours; project choice).
+pub const MATCH_TOLERANCE: f64 = 0.04;
+
+fn fmt_ohms(r: f64) -> String {
+    let s = format!("{:.3}", r);
+    let s = s.trim_end_matches('0').trim_end_matches('.').to_string();
+    format!("{s} ohm")
+}
+
+/// Likely causes of a limit that is off: the measured limit read through the design's limit
+/// model as an effective sense resistance or clamp voltage, named as a neighbouring preferred
+/// resistor or a junction more or fewer when one matches; and heating during the dwell.
+pub fn likely_causes(metrics: &Metrics, exp: &DesignExpectation, checks: &[Check]) -> Vec<String> {
+    let mut out = Vec::new();
+    let limit_check = checks.iter().find(|c| c.metric == "limit_current");
+    let sc_check = checks.iter().find(|c| c.metric == "short_circuit_current");
+    if let Some(model) = exp.limit {
+        // For foldback the short-circuit current reads the clamp most directly.
+        let (check, nominal_current) = match model.clamp {
+            Clamp::Foldback { .. } => (sc_check.or(limit_check), None),
+            _ => (limit_check, Some(exp.limit_current.nominal)),
+        };
+        if let Some(c) = check.filter(|c| c.verdict != Verdict::Pass && c.measured > 0.0) {
+            let i_nom = nominal_current.unwrap_or(c.nominal);
+            // A diode string's threshold depends on the pass junction temperature, which is
+            // bracketed by the case reading (no rise above the case) and the case reading plus
+            // dissipation times theta_jc (junction settled against the case).
+            let (tj_lo, tj_hi) = match (model.clamp, &metrics.knee_conditions) {
+                (Clamp::DiodeString { .. }, Some(k)) => (
+                    k.case_temperature,
+                    k.case_temperature.and_then(|_| model.pass_junction_c(k)),
+                ),
+                _ => (None, None),
+            };
+            let v_nom = i_nom * model.sense_ohms;
+            let (v_lo, v_hi) = match (tj_lo, tj_hi) {
+                (Some(_), Some(_)) => {
+                    let (x, y) = (model.sense_voltage_at(tj_lo), model.sense_voltage_at(tj_hi));
+                    (x.min(y), x.max(y))
+                }
+                _ => (v_nom, v_nom),
+            };
+            if let (Some(a), Some(b)) = (tj_lo, tj_hi) {
+                out.push(format!(
+                    "clamp read hot: pass junction estimated at {a:.0} to {b:.0} degC (case \
+                     reading, plus dissipation times theta_jc), threshold {v_lo:.3} to {v_hi:.3} V"
+                ));
+            }
+            let (r_lo, r_hi) = (v_lo / c.measured, v_hi / c.measured);
+            let v_eff = c.measured * model.sense_ohms;
+            let dev = (c.measured / i_nom - 1.0) * 100.0;
+            let dir = if dev < 0.0 { "low" } else { "high" };
+            let what = match model.clamp {
+                Clamp::Foldback { .. } => "short-circuit sense voltage (V_BE / k)",
+                _ => "clamp voltage",
+            };
+            let fmt_range = |a: f64, b: f64, f: &dyn Fn(f64) -> String| {
+                if (b / a - 1.0).abs() < 0.005 {
+                    f(a)
+                } else {
+                    format!("{} to {}", f(a), f(b))
+                }
+            };
+            out.push(format!(
+                "{} {:.0} % {dir}: implies an effective sense resistance of {} (design {}) or a \
+                 {what} of {:.3} V (design {})",
+                c.metric.replace('_', " "),
+                dev.abs(),
+                fmt_range(r_lo, r_hi, &fmt_ohms),
+                fmt_ohms(model.sense_ohms),
+                v_eff,
+                fmt_range(v_lo, v_hi, &|v| format!("{v:.3} V")),
+            ));
+            if let Some(pref) = preferred_in_range(r_lo, r_hi, MATCH_TOLERANCE) {
+                if (pref / model.sense_ohms - 1.0).abs() > 0.01 {
+                    out.push(format!(
+                        "{} {:.0} % {dir}: matches a {} sense resistor fitted instead of {}",
+                        c.metric.replace('_', " "),
+                        dev.abs(),
+                        fmt_ohms(pref),
+                        fmt_ohms(model.sense_ohms)
+                    ));
+                }
+            }
+            if let Clamp::DiodeString {
+                diodes,
+                v_f,
+                pass_junctions,
+                v_be,
+            } = model.clamp
+            {
+                for (delta, word) in [(1i64, "more"), (-1i64, "fewer")] {
+                    let n = diodes as i64 + delta;
+                    if n < 1 {
+                        continue;
+                    }
+                    let alt = LimitModel {
+                        clamp: Clamp::DiodeString {
+                            diodes: n as u32,
+                            v_f,
+                            pass_junctions,
+                            v_be,
+                        },
+                        ..model
+                    };
+                    let (a, b) = match (tj_lo, tj_hi) {
+                        (Some(_), Some(_)) => {
+                            (alt.sense_voltage_at(tj_lo), alt.sense_voltage_at(tj_hi))
+                        }
+                        _ => (alt.clamp.sense_voltage(), alt.clamp.sense_voltage()),
+                    };
+                    let (a, b) = (a.min(b), a.max(b));
+                    if a > 0.0
+                        && v_eff >= a * (1.0 - MATCH_TOLERANCE)
+                        && v_eff <= b * (1.0 + MATCH_TOLERANCE)
+                    {
+                        out.push(format!(
+                            "clamp voltage {:.3} V matches one junction {word} in the diode \
+                             string ({n} diodes instead of {diodes}: {})",
+                            v_eff,
+                            fmt_range(a, b, &|v| format!("{v:.3} V"))
+                        ));
+                    }
+                }
+            }
+        }
+    }
+    // Heating is named only when something is off; a few percent of drift during a short is
+    // normal for a junction-referenced clamp.
+    let off = checks.iter().any(|c| c.verdict != Verdict::Pass);
+    if let Some(sc) = metrics.short_circuit.as_ref().filter(|_| off) {
+        if sc.drift_percent.abs() > HEATING_DRIFT_PERCENT {
+            let tau = sc
+                .time_constant
+                .map(|f| format!(" with a time constant of {:.1} s", f.tau_s))
+                .unwrap_or_default();
+            out.push(format!(
+                "short-circuit current moved {:+.1} % over the {:.0} s dwell{tau}: junction \
+                 heating (junction drops fall about 2 mV per degC)",
+                sc.drift_percent, sc.dwell_s
+            ));
+        }
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn band(nominal: f64, wc: f64, mc: f64) -> ExpectedBand {
+        ExpectedBand {
+            nominal,
+            worst_case: Limits {
+                min: nominal * (1.0 - wc),
+                max: nominal * (1.0 + wc),
+            },
+            monte_carlo: MonteCarlo {
+                samples: 1000,
+                mean: nominal,
+                sigma: nominal * mc / 3.0,
+                p_low: nominal * (1.0 - mc),
+                p_high: nominal * (1.0 + mc),
+            },
+        }
+    }
+
+    #[test]
+    fn verdicts_follow_the_bands() {
+        let b = band(10.0, 0.10, 0.05);
+        assert_eq!(check("x", "V", 10.2, &b).verdict, Verdict::Pass);
+        assert_eq!(check("x", "V", 10.7, &b).verdict, Verdict::Marginal);
+        assert_eq!(check("x", "V", 11.2, &b).verdict, Verdict::Fail);
+        let c = check("x", "V", 10.7, &b);
+        assert!((c.margin - 0.3).abs() < 1e-9);
+        assert!((c.margin_percent - 3.0).abs() < 1e-9);
+        assert!((c.deviation_percent - 7.0).abs() < 1e-9);
+        assert!(check("x", "V", 11.2, &b).margin < 0.0);
+    }
+
+    #[test]
+    fn preferred_values_come_from_the_tables() {
+        assert_eq!(nearest_preferred(0.675, 0.04), Some(0.68));
+        assert_eq!(nearest_preferred(0.47, 0.04), Some(0.47));
+        // 0.51 lies in E24 only.
+        assert_eq!(nearest_preferred(0.512, 0.01), Some(0.51));
+        // 9.1 (E24) and 10 across the decade boundary.
+        assert_eq!(nearest_preferred(9.9, 0.04), Some(10.0));
+        assert_eq!(nearest_preferred(0.0, 0.04), None);
+        // 0.58 is 3.5 % from 0.56 and 6.5 % from 0.62; with 2 % nothing matches.
+        assert_eq!(nearest_preferred(0.58, 0.02), None);
+    }
+
+    #[test]
+    fn wrong_sense_resistor_is_named() {
+        // Design: 0.6 V / 0.47 ohm = 1.277 A; a 0.68 ohm part gives 0.882 A (31 % low).
+        let exp = DesignExpectation {
+            design_name: "t".into(),
+            vout: band(12.0, 0.05, 0.03),
+            limit_current: band(0.6 / 0.47, 0.15, 0.08),
+            short_circuit_current: None,
+            limit: Some(LimitModel {
+                sense_ohms: 0.47,
+                clamp: Clamp::Transistor { v_be: 0.6 },
+                tempco_v_per_c: -0.002,
+                pass_theta_jc: None,
+            }),
+            curve: vec![],
+            curve_low: vec![],
+            curve_high: vec![],
+        };
+        let checks = vec![check("limit_current", "A", 0.6 / 0.68, &exp.limit_current)];
+        assert_eq!(checks[0].verdict, Verdict::Fail);
+        let m = crate::analysis::analyse(&[], &Default::default());
+        let causes = likely_causes(&m, &exp, &checks);
+        assert!(
+            causes.iter().any(|c| c.contains("31 % low")
+                && c.contains("0.68 ohm sense resistor fitted instead of 0.47 ohm")),
+            "{causes:?}"
+        );
+    }
+
+    #[test]
+    fn extra_junction_in_diode_string_is_named() {
+        // 3 diodes x 0.65 V - 1 x 0.65 V = 1.30 V sense; with 4 diodes 1.95 V.
+        let clamp = Clamp::DiodeString {
+            diodes: 3,
+            v_f: 0.65,
+            pass_junctions: 1,
+            v_be: 0.65,
+        };
+        let r = 1.0;
+        let nominal = clamp.sense_voltage() / r;
+        let exp = DesignExpectation {
+            design_name: "t".into(),
+            vout: band(12.0, 0.05, 0.03),
+            limit_current: band(nominal, 0.15, 0.08),
+            short_circuit_current: None,
+            limit: Some(LimitModel {
+                sense_ohms: r,
+                clamp,
+                tempco_v_per_c: -0.002,
+                pass_theta_jc: None,
+            }),
+            curve: vec![],
+            curve_low: vec![],
+            curve_high: vec![],
+        };
+        let checks = vec![check("limit_current", "A", 1.95, &exp.limit_current)];
+        let m = crate::analysis::analyse(&[], &Default::default());
+        let causes = likely_causes(&m, &exp, &checks);
+        assert!(
+            causes.iter().any(|c| c.contains("one junction more")),
+            "{causes:?}"
+        );
+    }
+
+    #[test]
+    fn limit_model_from_design_files_agrees_with_the_design_model() {
+        // The comparison's limit model re-derives the limit from nominal element values
+        // (I = V_sense / R for a plain clamp, I_sc = V_BE / (k R) for foldback); the design
+        // model computes the same at its junction temperatures, so they agree within a few %.
+        for (text, name) in [
+            (
+                include_str!("../../samples/teaching-lab-0-20v.toml"),
+                "teaching-lab",
+            ),
+            (
+                include_str!("../../samples/fixed-12v-3a-foldback.toml"),
+                "fixed-12v",
+            ),
+        ] {
+            let d = crate::design::Design::parse(text, name).unwrap();
+            let e = crate::design::expect_with(&d, 200, 1);
+            let x = DesignExpectation::from_design(&d, &e);
+            let lm = x.limit.unwrap();
+            let i_model = lm.clamp.sense_voltage() / lm.sense_ohms;
+            let i_design = match lm.clamp {
+                Clamp::Foldback { .. } => e.short_circuit_current.nominal,
+                _ => e.limit_current.nominal,
+            };
+            assert!(
+                (i_model / i_design - 1.0).abs() < 0.05,
+                "{name}: {i_model} vs {i_design}"
+            );
+            assert_eq!(x.vout, e.vout.setting_band);
+        }
+    }
+
+    #[test]
+    fn diode_string_limit_is_read_at_the_measured_temperature() {
+        // Diode string: V_sense = n V_F - m V_BE(T), V_BE falling 2 mV/degC (textbook value).
+        // Design: 3 x 0.65 V over a Darlington (2 x 0.65 V) and 0.39 ohm: 0.65 V, 1.667 A cold.
+        // Built with 0.68 ohm and tested with the pass junction at 40 degC: V_sense =
+        // 1.95 - 2 (0.65 - 0.002 * 15) = 0.71 V, so the limit reads 0.71 / 0.68 = 1.044 A;
+        // read cold that would imply 0.65 / 1.044 = 0.62 ohm, the wrong neighbour.
+        let clamp = Clamp::DiodeString {
+            diodes: 3,
+            v_f: 0.65,
+            pass_junctions: 2,
+            v_be: 0.65,
+        };
+        let exp = DesignExpectation {
+            design_name: "t".into(),
+            vout: band(20.0, 0.05, 0.03),
+            limit_current: band(0.65 / 0.39, 0.15, 0.08),
+            short_circuit_current: None,
+            limit: Some(LimitModel {
+                sense_ohms: 0.39,
+                clamp,
+                tempco_v_per_c: -0.002,
+                pass_theta_jc: Some(1.0),
+            }),
+            curve: vec![],
+            curve_low: vec![],
+            curve_high: vec![],
+        };
+        let measured = 0.71 / 0.68;
+        let checks = vec![check("limit_current", "A", measured, &exp.limit_current)];
+        let mut m = crate::analysis::analyse(&[], &Default::default());
+        // Case at 28 degC, 15 W in the pass device, theta_jc 1 degC/W: 28 to 43 degC.
+        m.knee_conditions = Some(crate::analysis::KneeConditions {
+            case_temperature: Some(28.0),
+            pass_watts: Some(15.0),
+        });
+        let causes = likely_causes(&m, &exp, &checks);
+        assert!(
+            causes
+                .iter()
+                .any(|c| c.contains("0.68 ohm sense resistor fitted instead of 0.39 ohm")),
+            "{causes:?}"
+        );
+        // Without the temperature the cold reading names the neighbour below.
+        m.knee_conditions = None;
+        let cold = likely_causes(&m, &exp, &checks);
+        assert!(
+            cold.iter().any(|c| c.contains("0.62 ohm sense resistor")),
+            "{cold:?}"
+        );
+    }
+}
