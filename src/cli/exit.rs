@@ -61,6 +61,9 @@ pub fn exit_code_for(err: &anyhow::Error) -> u8 {
             || cause
                 .downcast_ref::<crate::spice::netlist::NetlistError>()
                 .is_some()
+            || cause
+                .downcast_ref::<crate::design::sizing::SizeError>()
+                .is_some()
         {
             return EXIT_USAGE;
         }

@@ -104,7 +104,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         series: args.series,
         divider_bottom_ohms: args.divider_bottom,
     };
-    let choice = sizing::choose(&targets).map_err(|e| usage(e.to_string()))?;
+    let choice = sizing::choose(&targets)?;
     sizing::apply(&mut base, &targets, &choice);
     base.validate().map_err(|(path, msg)| {
         usage(format!(
