@@ -2,7 +2,8 @@
 //! new revision) without rewriting them; across several units, flag outliers and give Cpk.
 //! Exit 1 when any verdict fails.
 
-use super::report::{analysis_args::AnalysisArgs, load_expectation};
+use super::options::AnalysisArgs;
+use super::report::load_expectation;
 use super::{CodedError, EXIT_USAGE};
 use crate::compare::{self, KeyMetric, KeyValues};
 use anyhow::Context;

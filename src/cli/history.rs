@@ -1,7 +1,7 @@
 //! `regulus history UNIT`: a unit's dated records with key metrics and drift flags, as a table,
 //! CSV or JSON, optionally with a plot of the key metrics over dates.
 
-use super::report::analysis_args::AnalysisArgs;
+use super::options::AnalysisArgs;
 use super::{CodedError, EXIT_OK, EXIT_USAGE};
 use anyhow::Context;
 use std::path::PathBuf;

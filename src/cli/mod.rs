@@ -9,6 +9,7 @@ pub mod demo;
 pub mod design;
 mod exit;
 pub mod history;
+pub mod options;
 pub mod present;
 pub mod probe;
 pub mod report;

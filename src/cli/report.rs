@@ -1,8 +1,8 @@
 //! `regulus report RECORD`: regenerate a record's summary.json, plots and report.html, compared
 //! with the record's design snapshot (or another design file). Exit 1 on a failing verdict.
 
+use super::options::AnalysisArgs;
 use super::{CodedError, EXIT_USAGE};
-use analysis_args::AnalysisArgs;
 use anyhow::Context;
 use std::path::{Path, PathBuf};
 
@@ -22,61 +22,6 @@ pub struct Args {
     pub png: bool,
     #[command(flatten)]
     pub analysis: AnalysisArgs,
-}
-
-/// Analysis settings shared by `report`, `history` and `compare`.
-pub mod analysis_args {
-    use crate::analysis::{AnalysisOptions, RegulationReference};
-
-    /// Denominator of load regulation.
-    #[derive(Debug, Clone, Copy, clap::ValueEnum)]
-    pub enum ReferenceArg {
-        FullLoad,
-        NoLoad,
-        Nominal,
-    }
-
-    #[derive(Debug, Clone, clap::Args)]
-    pub struct AnalysisArgs {
-        /// Fixed-drop knee criterion: percent below the no-load voltage.
-        #[arg(long, value_name = "PERCENT", default_value_t = 2.0)]
-        pub knee_drop: f64,
-        /// Denominator of load regulation.
-        #[arg(long, value_enum, default_value = "full-load")]
-        pub regulation_reference: ReferenceArg,
-        /// Rated full-load current in amperes (default: the last regulating sweep point).
-        #[arg(long, value_name = "AMPERES")]
-        pub full_load: Option<f64>,
-    }
-
-    impl AnalysisArgs {
-        /// Checked analysis options, or a message saying what to fix.
-        pub fn options(&self) -> Result<AnalysisOptions, String> {
-            if !(self.knee_drop > 0.0 && self.knee_drop < 50.0) {
-                return Err(format!(
-                    "--knee-drop {} is out of range: give a percentage between 0 and 50 (default 2)",
-                    self.knee_drop
-                ));
-            }
-            if let Some(i) = self.full_load {
-                if !(i > 0.0 && i.is_finite()) {
-                    return Err(format!(
-                        "--full-load {i} must be a positive current in amperes"
-                    ));
-                }
-            }
-            Ok(AnalysisOptions {
-                knee_drop: self.knee_drop / 100.0,
-                reference: match self.regulation_reference {
-                    ReferenceArg::FullLoad => RegulationReference::FullLoad,
-                    ReferenceArg::NoLoad => RegulationReference::NoLoad,
-                    ReferenceArg::Nominal => RegulationReference::Nominal,
-                },
-                full_load_current: self.full_load,
-                ..AnalysisOptions::default()
-            })
-        }
-    }
 }
 
 /// Load a design file and compute the expectation the comparison needs. A bad design file
