@@ -19,7 +19,7 @@
 //!   voltage (the limit line is near vertical on a V-I plot).
 
 use crate::measure::Quantity;
-use crate::record::{Row, StepKind};
+use crate::record::{Flag, Row, StepKind};
 use serde::{Deserialize, Serialize};
 
 mod fit;
@@ -207,7 +207,7 @@ fn is_curve_kind(k: StepKind) -> bool {
 }
 
 fn curve_point(r: &Row) -> Option<CurvePoint> {
-    if r.load_mode == "off" && r.step_kind != StepKind::LoadSweep {
+    if r.load_mode.is_off() && r.step_kind != StepKind::LoadSweep {
         return None;
     }
     let v = r.value(Quantity::OutputVoltage)?;
@@ -221,7 +221,7 @@ fn curve_point(r: &Row) -> Option<CurvePoint> {
 /// Points of the V-I curve (load sweep, limit trace, knee search) in record order.
 pub fn curve_points(rows: &[Row]) -> Vec<CurvePoint> {
     rows.iter()
-        .filter(|r| is_curve_kind(r.step_kind) && !r.has_flag("interlock"))
+        .filter(|r| is_curve_kind(r.step_kind) && !r.has_flag(Flag::Interlock))
         .filter_map(curve_point)
         .collect()
 }
@@ -518,15 +518,15 @@ pub const SHORTED_FRACTION: f64 = 0.1;
 pub fn dwell_series(rows: &[Row]) -> Vec<(f64, f64)> {
     let sc: Vec<&Row> = rows
         .iter()
-        .filter(|r| r.step_kind == StepKind::ShortCircuit && !r.has_flag("recovery"))
+        .filter(|r| r.step_kind == StepKind::ShortCircuit && !r.has_flag(Flag::Recovery))
         .collect();
     let start = sc
         .iter()
-        .position(|r| r.has_flag("dwell_start"))
+        .position(|r| r.has_flag(Flag::DwellStart))
         .unwrap_or(0);
     let end = sc
         .iter()
-        .rposition(|r| r.has_flag("dwell_end"))
+        .rposition(|r| r.has_flag(Flag::DwellEnd))
         .unwrap_or(sc.len().saturating_sub(1));
     if sc.is_empty() || end < start {
         return Vec::new();
@@ -573,12 +573,12 @@ fn short_circuit(rows: &[Row], threshold: Option<f64>) -> Option<ShortCircuit> {
     let is: Vec<f64> = pts.iter().map(|p| p.1).collect();
     let peak_temperature = rows
         .iter()
-        .filter(|r| r.step_kind == StepKind::ShortCircuit && !r.has_flag("recovery"))
+        .filter(|r| r.step_kind == StepKind::ShortCircuit && !r.has_flag(Flag::Recovery))
         .filter_map(|r| r.value(Quantity::Temperature))
         .reduce(f64::max);
     let recovered = rows
         .iter()
-        .filter(|r| r.step_kind == StepKind::ShortCircuit && r.has_flag("recovery"))
+        .filter(|r| r.step_kind == StepKind::ShortCircuit && r.has_flag(Flag::Recovery))
         .filter_map(|r| r.value(Quantity::OutputVoltage))
         .next_back()
         .and_then(|v| threshold.map(|thr| v >= thr));
@@ -641,7 +641,8 @@ fn line_regulation(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::record::Cell;
+    use crate::measure::LoadMode;
+    use crate::record::{Cell, Flags, LoadState};
 
     fn row(kind: StepKind, t: f64, v: f64, i: f64) -> Row {
         Row {
@@ -650,22 +651,28 @@ mod tests {
             step: 0,
             step_kind: kind,
             point: 0,
-            load_mode: "cc".into(),
+            load_mode: LoadState::On(LoadMode::ConstantCurrent),
             setpoint: Some(i),
             source_volts: Some(18.0),
             samples: 1,
-            output_voltage: Some(Cell::Value {
-                mean: v,
-                spread: 0.0,
-            }),
-            output_current: Some(Cell::Value {
-                mean: i,
-                spread: 0.0,
-            }),
-            input_voltage: None,
-            input_current: None,
-            temperature: None,
-            flags: vec![],
+            cells: [
+                (
+                    Quantity::OutputVoltage,
+                    Some(Cell::Value {
+                        mean: v,
+                        spread: 0.0,
+                    }),
+                ),
+                (
+                    Quantity::OutputCurrent,
+                    Some(Cell::Value {
+                        mean: i,
+                        spread: 0.0,
+                    }),
+                ),
+            ]
+            .into(),
+            flags: Flags::new(),
         }
     }
 
@@ -744,15 +751,15 @@ mod tests {
             let t = k as f64;
             let mut r = row(StepKind::ShortCircuit, 100.0 + t, 0.01, 0.6 - 0.005 * t);
             if k == 0 {
-                r.flags.push("dwell_start".into());
+                r.flags.insert(Flag::DwellStart);
             }
             if k == 20 {
-                r.flags.push("dwell_end".into());
+                r.flags.insert(Flag::DwellEnd);
             }
             rows.push(r);
         }
         let mut rec = row(StepKind::ShortCircuit, 125.0, 11.9, 0.0);
-        rec.flags.push("recovery".into());
+        rec.flags.insert(Flag::Recovery);
         rows.push(rec);
         let m = analyse(&rows, &AnalysisOptions::default());
         let sc = m.short_circuit.unwrap();
@@ -821,7 +828,7 @@ mod tests {
         // the reading); the dwell starts at the first shorted row.
         let mut rows = ideal_curve();
         let mut first = row(StepKind::ShortCircuit, 100.0, 11.95, 0.4);
-        first.flags.push("dwell_start".into());
+        first.flags.insert(Flag::DwellStart);
         rows.push(first);
         for k in 1..=10 {
             let mut r = row(
@@ -831,7 +838,7 @@ mod tests {
                 1.0 + 0.01 * k as f64,
             );
             if k == 10 {
-                r.flags.push("dwell_end".into());
+                r.flags.insert(Flag::DwellEnd);
             }
             rows.push(r);
         }
