@@ -11,8 +11,8 @@ use crate::plan::{
     LoadSetting, Plan, ShortCircuit, Step,
 };
 use crate::record::{
-    utc_string, Cell, DesignRef, Outcome, RecordError, RecordWriter, Row, RunInfo, Snapshots,
-    StepKind, SCHEMA_VERSION,
+    utc_string, Cell, Cells, DesignRef, Flag, Flags, LoadState, Outcome, RecordError, RecordWriter,
+    Row, RunInfo, Snapshots, StepKind, SCHEMA_VERSION,
 };
 use chrono::Utc;
 use std::path::{Path, PathBuf};
@@ -369,7 +369,7 @@ impl<B: BenchControl, O: Observer> Exec<'_, B, O> {
     }
 
     /// Take `samples` readings, check interlocks on each, write and report one row.
-    async fn point(&mut self, at: At, point: usize, flags: &[&str]) -> Result<Row, Stop> {
+    async fn point(&mut self, at: At, point: usize, flags: &[Flag]) -> Result<Row, Stop> {
         let mut readings: Vec<Measurement> = Vec::with_capacity(at.samples as usize);
         let mut trip: Option<String> = None;
         for _ in 0..at.samples.max(1) {
@@ -412,7 +412,7 @@ impl<B: BenchControl, O: Observer> Exec<'_, B, O> {
         }
         let mut row = self.row(at, point, &readings, flags);
         if let Some(reason) = &trip {
-            row.flags.push("interlock".to_string());
+            row.flags.insert(Flag::Interlock);
             // Keep the tripping reading in the record if at all possible.
             let _ = self.writer.append(&row);
             self.observer.point_taken(at.step, &row);
@@ -428,16 +428,16 @@ impl<B: BenchControl, O: Observer> Exec<'_, B, O> {
         Ok(row)
     }
 
-    fn row(&self, at: At, point: usize, readings: &[Measurement], extra: &[&str]) -> Row {
-        let mut flags: Vec<String> = Vec::new();
-        let mut cells = [None; 5];
-        for (k, q) in Quantity::ALL.into_iter().enumerate() {
-            cells[k] = aggregate(readings, q);
-            if cells[k] == Some(Cell::Overrange) && !flags.iter().any(|f| f == "overrange") {
-                flags.push("overrange".to_string());
-            }
+    fn row(&self, at: At, point: usize, readings: &[Measurement], extra: &[Flag]) -> Row {
+        let cells: Cells = Quantity::ALL
+            .into_iter()
+            .map(|q| (q, aggregate(readings, q)))
+            .collect();
+        let mut flags = Flags::new();
+        if cells.any_overrange() {
+            flags.insert(Flag::Overrange);
         }
-        flags.extend(extra.iter().map(|s| s.to_string()));
+        extra.iter().for_each(|f| flags.insert(*f));
         Row {
             utc: utc_string(Utc::now()),
             // Milliseconds, as written to the record, so the row in memory equals the file's.
@@ -446,17 +446,13 @@ impl<B: BenchControl, O: Observer> Exec<'_, B, O> {
             step_kind: at.kind,
             point,
             load_mode: match self.setting {
-                Some(s) if self.load_on => s.mode.as_str().to_string(),
-                _ => "off".to_string(),
+                Some(s) if self.load_on => LoadState::On(s.mode),
+                _ => LoadState::Off,
             },
             setpoint: self.setting.filter(|_| self.load_on).map(|s| s.value),
             source_volts: self.source_v,
             samples: readings.len() as u32,
-            output_voltage: cells[0],
-            output_current: cells[1],
-            input_voltage: cells[2],
-            input_current: cells[3],
-            temperature: cells[4],
+            cells,
             flags,
         }
     }
@@ -561,10 +557,10 @@ impl<B: BenchControl, O: Observer> Exec<'_, B, O> {
             self.wait_until(t_short + sc.interval * j as u32).await?;
             let mut flags = Vec::new();
             if j == 0 {
-                flags.push("dwell_start");
+                flags.push(Flag::DwellStart);
             }
             if j + 1 == n {
-                flags.push("dwell_end");
+                flags.push(Flag::DwellEnd);
             }
             self.point(at, k, &flags).await?;
             k += 1;
@@ -584,7 +580,7 @@ impl<B: BenchControl, O: Observer> Exec<'_, B, O> {
                 sc.interval * j as u32
             };
             self.wait_until(t_rel + due).await?;
-            last = Some(self.point(at, k, &["recovery"]).await?);
+            last = Some(self.point(at, k, &[Flag::Recovery]).await?);
             k += 1;
         }
         let recovery = match (

@@ -6,6 +6,7 @@
 mod e2e_support;
 
 use e2e_support::{check_record, complete_rows, serial, show, wait_rows, Rig};
+use regulus::measure::Quantity::{InputVoltage, OutputCurrent, OutputVoltage, Temperature};
 use regulus::record::{read_rows, read_run, Outcome, RecordState, StepKind};
 use regulus::sim::{Fault, SimOptions};
 use std::time::Duration;
@@ -122,8 +123,8 @@ fn full_plan_completes_with_a_complete_record() {
     }
     for r in &rec.rows {
         assert_eq!(r.samples, 2);
-        assert!(r.output_voltage.is_some() && r.output_current.is_some());
-        assert!(r.temperature.is_some() && r.input_voltage.is_some());
+        assert!(r.cell(OutputVoltage).is_some() && r.cell(OutputCurrent).is_some());
+        assert!(r.cell(Temperature).is_some() && r.cell(InputVoltage).is_some());
         assert!(
             r.source_volts.is_some(),
             "the plan powers the unit from the source"

@@ -3,7 +3,8 @@
 
 use proptest::prelude::*;
 use regulus::analysis::{analyse, AnalysisOptions};
-use regulus::record::{Cell, Row, StepKind};
+use regulus::measure::{LoadMode, Quantity};
+use regulus::record::{Cell, Flag, Flags, LoadState, Row, StepKind};
 use regulus::report::{self, ReportOptions};
 
 const READINGS: &str = include_str!("report_golden/readings.csv");
@@ -50,10 +51,10 @@ fn any_row() -> impl Strategy<Value = Row> {
     ];
     let flags = proptest::collection::vec(
         prop_oneof![
-            Just("dwell_start".to_string()),
-            Just("dwell_end".to_string()),
-            Just("recovery".to_string()),
-            Just("overrange".to_string()),
+            Just(Flag::DwellStart),
+            Just(Flag::DwellEnd),
+            Just(Flag::Recovery),
+            Just(Flag::Overrange),
         ],
         0..2,
     );
@@ -72,16 +73,17 @@ fn any_row() -> impl Strategy<Value = Row> {
             step: 0,
             step_kind: kind,
             point: 0,
-            load_mode: "cv".into(),
+            load_mode: LoadState::On(LoadMode::ConstantVoltage),
             setpoint: None,
             source_volts: src,
             samples: 1,
-            output_voltage: v,
-            output_current: i,
-            input_voltage: None,
-            input_current: None,
-            temperature: temp,
-            flags,
+            cells: [
+                (Quantity::OutputVoltage, v),
+                (Quantity::OutputCurrent, i),
+                (Quantity::Temperature, temp),
+            ]
+            .into(),
+            flags: Flags::from(flags),
         })
 }
 

@@ -4,7 +4,7 @@
 
 use chrono::{TimeZone, Utc};
 use regulus::control::InstrumentIdentity;
-use regulus::measure::Role;
+use regulus::measure::{LoadMode, Quantity, Role};
 use regulus::record::*;
 use std::io::Write;
 
@@ -50,25 +50,32 @@ fn row(point: usize, v: f64) -> Row {
         step: 0,
         step_kind: StepKind::LoadSweep,
         point,
-        load_mode: "cc".into(),
+        load_mode: LoadState::On(LoadMode::ConstantCurrent),
         setpoint: Some(0.25 * point as f64),
         source_volts: None,
         samples: 3,
-        output_voltage: Some(Cell::Value {
-            mean: v,
-            spread: 0.002,
-        }),
-        output_current: Some(Cell::Overrange),
-        input_voltage: None,
-        input_current: None,
-        temperature: Some(Cell::Value {
-            mean: 31.25,
-            spread: 0.0,
-        }),
+        cells: [
+            (
+                Quantity::OutputVoltage,
+                Some(Cell::Value {
+                    mean: v,
+                    spread: 0.002,
+                }),
+            ),
+            (Quantity::OutputCurrent, Some(Cell::Overrange)),
+            (
+                Quantity::Temperature,
+                Some(Cell::Value {
+                    mean: 31.25,
+                    spread: 0.0,
+                }),
+            ),
+        ]
+        .into(),
         flags: if point == 1 {
-            vec!["overrange".into(), "recovery".into()]
+            Flags::from(vec![Flag::Overrange, Flag::Recovery])
         } else {
-            vec!["overrange".into()]
+            Flags::from(vec![Flag::Overrange])
         },
     }
 }

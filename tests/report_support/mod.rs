@@ -6,8 +6,10 @@
 
 use regulus::compare::{Clamp, DesignExpectation, ExpectedBand, LimitModel, Limits, MonteCarlo};
 use regulus::control::InstrumentIdentity;
-use regulus::measure::Role;
-use regulus::record::{Cell, DesignRef, Outcome, Row, RunInfo, StepKind, READINGS_HEADER};
+use regulus::measure::{Quantity, Role};
+use regulus::record::{
+    Cell, DesignRef, Flag, Flags, LoadState, Outcome, Row, RunInfo, StepKind, READINGS_HEADER,
+};
 use regulus::rng::Rng;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -192,23 +194,26 @@ pub fn run_rows(
                 v: f64,
                 i: f64,
                 temp: f64,
-                flags: Vec<String>| {
+                flags: Vec<Flag>| {
         rows.push(Row {
             utc: utc(start, t),
             elapsed_s: (t * 1000.0).round() / 1000.0,
             step,
             step_kind: kind,
             point,
-            load_mode: mode.into(),
+            load_mode: LoadState::parse(mode).expect("a record load mode"),
             setpoint: Some(setpoint),
             source_volts: Some(18.0),
             samples: 4,
-            output_voltage: cell(v),
-            output_current: cell(i),
-            input_voltage: cell(18.0),
-            input_current: cell(i + 0.004),
-            temperature: cell(temp),
-            flags,
+            cells: [
+                (Quantity::OutputVoltage, cell(v)),
+                (Quantity::OutputCurrent, cell(i)),
+                (Quantity::InputVoltage, cell(18.0)),
+                (Quantity::InputCurrent, cell(i + 0.004)),
+                (Quantity::Temperature, cell(temp)),
+            ]
+            .into(),
+            flags: Flags::from(flags),
         });
     };
     let ilim = unit.i_lim();
@@ -257,10 +262,10 @@ pub fn run_rows(
         let i = unit.i_sc(tt) + 0.0005 * rng.normal();
         let mut flags = vec![];
         if k == 0 {
-            flags.push("dwell_start".to_string());
+            flags.push(Flag::DwellStart);
         }
         if k == n {
-            flags.push("dwell_end".to_string());
+            flags.push(Flag::DwellEnd);
         }
         let temp = 26.0 + 20.0 * (1.0 - (-tt / unit.tau).exp());
         push(
@@ -289,7 +294,7 @@ pub fn run_rows(
         unit.v_set,
         0.0,
         40.0,
-        vec!["recovery".to_string()],
+        vec![Flag::Recovery],
     );
     rows
 }

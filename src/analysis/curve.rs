@@ -1,0 +1,321 @@
+//! Metrics of the output characteristic: curve points from the rows, no-load and full-load
+//! points, load regulation, output resistance over the regulation region and the limit knee by
+//! two methods; [`analyse`] puts every metric together. Pure.
+
+use super::fit::{linear_fit, robust_fit};
+use super::line::line_regulation;
+use super::metrics::*;
+use super::short::short_circuit;
+use crate::measure::Quantity;
+use crate::record::{Flag, Row, StepKind};
+
+pub(super) fn is_curve_kind(k: StepKind) -> bool {
+    matches!(
+        k,
+        StepKind::LoadSweep | StepKind::LimitTrace | StepKind::KneeSearch
+    )
+}
+
+pub(super) fn curve_point(r: &Row) -> Option<CurvePoint> {
+    if r.load_mode.is_off() && r.step_kind != StepKind::LoadSweep {
+        return None;
+    }
+    let v = r.value(Quantity::OutputVoltage)?;
+    let i = r.value(Quantity::OutputCurrent)?;
+    (v.is_finite() && i.is_finite()).then_some(CurvePoint {
+        current: i,
+        voltage: v,
+    })
+}
+
+/// Points of the V-I curve (load sweep, limit trace, knee search) in record order.
+pub fn curve_points(rows: &[Row]) -> Vec<CurvePoint> {
+    rows.iter()
+        .filter(|r| is_curve_kind(r.step_kind) && !r.has_flag(Flag::Interlock))
+        .filter_map(curve_point)
+        .collect()
+}
+
+/// Analyse a record's rows.
+pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
+    let mut notes = Vec::new();
+    let d = if opts.knee_drop > 0.0 && opts.knee_drop < 0.5 {
+        opts.knee_drop
+    } else {
+        notes.push(format!(
+            "knee drop {} out of range (0, 0.5); used {DEFAULT_KNEE_DROP}",
+            opts.knee_drop
+        ));
+        DEFAULT_KNEE_DROP
+    };
+    let curve = curve_points(rows);
+    let sweep: Vec<CurvePoint> = rows
+        .iter()
+        .filter(|r| r.step_kind == StepKind::LoadSweep)
+        .filter_map(curve_point)
+        .collect();
+
+    let no_load = sweep
+        .iter()
+        .chain(if sweep.is_empty() {
+            curve.iter()
+        } else {
+            [].iter()
+        })
+        .copied()
+        .min_by(|a, b| a.current.total_cmp(&b.current));
+    if no_load.is_none() {
+        notes.push("no load-sweep or curve rows with output voltage and current".into());
+    }
+
+    let knee = no_load.map(|nl| knee_metrics(&curve, nl.voltage, d, opts.regulation_span));
+    if let Some(k) = &knee {
+        if k.fixed_drop.is_none() {
+            notes.push(format!(
+                "no curve point fell below {:.4} V ({} % under no load): the limit was not reached",
+                k.threshold_voltage,
+                d * 100.0
+            ));
+        } else if k.two_segment.is_none() {
+            notes.push(
+                "two-segment knee: needs two regulation points and two limit-line points whose \
+                 lines meet inside the measured range"
+                    .into(),
+            );
+        }
+    }
+    let threshold = knee.as_ref().map(|k| k.threshold_voltage);
+
+    let full_load = match (threshold, opts.full_load_current) {
+        (Some(_), Some(i_fl)) => {
+            let p = interpolate_at_current(&sweep, i_fl);
+            if p.is_none() {
+                notes.push(format!(
+                    "full-load current {i_fl} A lies outside the load sweep"
+                ));
+            }
+            p
+        }
+        (Some(thr), None) => sweep
+            .iter()
+            .filter(|p| p.voltage >= thr)
+            .copied()
+            .max_by(|a, b| a.current.total_cmp(&b.current)),
+        _ => None,
+    };
+
+    let load_regulation = match (no_load, full_load) {
+        (Some(nl), Some(fl)) if fl.current > nl.current => {
+            let reference_voltage = match opts.reference {
+                RegulationReference::FullLoad => Some(fl.voltage),
+                RegulationReference::NoLoad => Some(nl.voltage),
+                RegulationReference::Nominal => opts.nominal_voltage,
+                RegulationReference::LineSweepMean => None,
+            };
+            match reference_voltage {
+                Some(vr) if vr != 0.0 => Some(LoadRegulation {
+                    percent: load_regulation_percent(nl.voltage, fl.voltage, vr),
+                    reference: opts.reference,
+                    reference_voltage: vr,
+                }),
+                _ => {
+                    notes.push(format!(
+                        "load regulation needs a {:?} reference voltage",
+                        opts.reference
+                    ));
+                    None
+                }
+            }
+        }
+        _ => None,
+    };
+
+    let output_resistance = match (&knee, threshold) {
+        (Some(k), Some(thr)) => {
+            let region = regulation_region(&curve, thr, k.fixed_drop, opts.regulation_span);
+            let xs: Vec<f64> = region.iter().map(|p| p.current).collect();
+            let ys: Vec<f64> = region.iter().map(|p| p.voltage).collect();
+            linear_fit(&xs, &ys).map(|f| OutputResistance {
+                ohms: -f.slope,
+                std_uncertainty: f.slope_u,
+                points: f.n,
+                max_current: xs.iter().copied().fold(f64::NEG_INFINITY, f64::max),
+                intercept_voltage: f.intercept,
+            })
+        }
+        _ => None,
+    };
+
+    let short_circuit = short_circuit(rows, threshold);
+    let foldback_ratio = match (&short_circuit, knee.as_ref().and_then(|k| k.fixed_drop)) {
+        (Some(sc), Some(kp)) if kp.current > 0.0 => Some(sc.start_current / kp.current),
+        _ => None,
+    };
+
+    let line_regulation = line_regulation(rows, opts, no_load.map(|p| p.voltage));
+
+    let knee_conditions = knee
+        .as_ref()
+        .and_then(|k| k.two_segment.or(k.fixed_drop))
+        .and_then(|kp| knee_conditions(rows, kp.current));
+
+    let max_temperature = rows
+        .iter()
+        .filter_map(|r| r.value(Quantity::Temperature))
+        .filter(|t| t.is_finite())
+        .reduce(f64::max);
+
+    Metrics {
+        rows: rows.len(),
+        no_load,
+        full_load,
+        load_regulation,
+        output_resistance,
+        knee,
+        short_circuit,
+        foldback_ratio,
+        line_regulation,
+        max_temperature,
+        knee_conditions,
+        notes,
+    }
+}
+
+/// Conditions of the curve row whose current is nearest `i_knee` (among rows with V and I).
+pub(super) fn knee_conditions(rows: &[Row], i_knee: f64) -> Option<KneeConditions> {
+    let r = rows
+        .iter()
+        .filter(|r| is_curve_kind(r.step_kind))
+        .filter(|r| curve_point(r).is_some())
+        .min_by(|a, b| {
+            let da = (a.value(Quantity::OutputCurrent).unwrap_or(f64::INFINITY) - i_knee).abs();
+            let db = (b.value(Quantity::OutputCurrent).unwrap_or(f64::INFINITY) - i_knee).abs();
+            da.total_cmp(&db)
+        })?;
+    let v = r.value(Quantity::OutputVoltage)?;
+    let i = r.value(Quantity::OutputCurrent)?;
+    let pass_watts = r
+        .value(Quantity::InputVoltage)
+        .or(r.source_volts)
+        .map(|vin| (vin - v) * i)
+        .filter(|w| w.is_finite() && *w >= 0.0);
+    Some(KneeConditions {
+        case_temperature: r.value(Quantity::Temperature).filter(|t| t.is_finite()),
+        pass_watts,
+    })
+}
+
+/// Load regulation in percent: (V_NL - V_FL) / V_ref * 100.
+pub fn load_regulation_percent(v_no_load: f64, v_full_load: f64, v_ref: f64) -> f64 {
+    (v_no_load - v_full_load) / v_ref * 100.0
+}
+
+pub(super) fn interpolate_at_current(points: &[CurvePoint], i: f64) -> Option<CurvePoint> {
+    let mut pts: Vec<CurvePoint> = points.to_vec();
+    pts.sort_by(|a, b| a.current.total_cmp(&b.current));
+    pts.windows(2).find_map(|w| {
+        let (a, b) = (w[0], w[1]);
+        if i >= a.current && i <= b.current && b.current > a.current {
+            let t = (i - a.current) / (b.current - a.current);
+            Some(CurvePoint {
+                current: i,
+                voltage: a.voltage + t * (b.voltage - a.voltage),
+            })
+        } else {
+            None
+        }
+    })
+}
+
+pub(super) fn regulation_region(
+    curve: &[CurvePoint],
+    threshold: f64,
+    knee: Option<CurvePoint>,
+    span: f64,
+) -> Vec<CurvePoint> {
+    let above: Vec<CurvePoint> = curve
+        .iter()
+        .filter(|p| p.voltage >= threshold)
+        .copied()
+        .collect();
+    if let Some(k) = knee {
+        let bounded: Vec<CurvePoint> = above
+            .iter()
+            .filter(|p| p.current <= span * k.current)
+            .copied()
+            .collect();
+        if bounded.len() >= 2 {
+            return bounded;
+        }
+    }
+    above
+}
+
+pub(super) fn knee_metrics(curve: &[CurvePoint], v_nl: f64, d: f64, span: f64) -> KneeMetrics {
+    let threshold = (1.0 - d) * v_nl;
+    // Last regulating point: the highest current at or above the threshold. First point
+    // below: the highest voltage below the threshold (the first one met going down the curve).
+    let above = curve
+        .iter()
+        .filter(|p| p.voltage >= threshold)
+        .max_by(|a, b| a.current.total_cmp(&b.current));
+    let below = curve
+        .iter()
+        .filter(|p| p.voltage < threshold)
+        .max_by(|a, b| a.voltage.total_cmp(&b.voltage));
+    let fixed_drop = match (above, below) {
+        (Some(a), Some(b)) if a.voltage > b.voltage => {
+            let t = (a.voltage - threshold) / (a.voltage - b.voltage);
+            Some(CurvePoint {
+                current: a.current + t * (b.current - a.current),
+                voltage: threshold,
+            })
+        }
+        _ => None,
+    };
+
+    // Two-segment fit: regulation line V = a + s I, limit line I = c + g V.
+    let two_segment = (|| {
+        let reg = regulation_region(curve, threshold, fixed_drop, span);
+        let rx: Vec<f64> = reg.iter().map(|p| p.current).collect();
+        let ry: Vec<f64> = reg.iter().map(|p| p.voltage).collect();
+        let rfit = linear_fit(&rx, &ry)?;
+        let deep = (1.0 - 3.0 * d) * v_nl;
+        let mut lim: Vec<CurvePoint> = curve
+            .iter()
+            .filter(|p| p.voltage < deep && p.voltage > 0.0)
+            .copied()
+            .collect();
+        if lim.len() < 2 {
+            lim = curve
+                .iter()
+                .filter(|p| p.voltage < threshold && p.voltage > 0.0)
+                .copied()
+                .collect();
+        }
+        let lv: Vec<f64> = lim.iter().map(|p| p.voltage).collect();
+        let li: Vec<f64> = lim.iter().map(|p| p.current).collect();
+        let lfit = robust_fit(&lv, &li)?;
+        // V = a + s I ; I = c + g V  =>  I = (c + g a) / (1 - g s)
+        let den = 1.0 - lfit.slope * rfit.slope;
+        if den.abs() < 1e-12 {
+            return None;
+        }
+        let i = (lfit.intercept + lfit.slope * rfit.intercept) / den;
+        let v = rfit.intercept + rfit.slope * i;
+        // Reject an intersection far outside the measured curve (near-parallel lines).
+        let i_max = curve.iter().map(|p| p.current).fold(0.0, f64::max);
+        let plausible = i > 0.0 && i <= 2.0 * i_max && v > 0.0 && v <= 1.5 * v_nl;
+        (i.is_finite() && v.is_finite() && plausible).then_some(CurvePoint {
+            current: i,
+            voltage: v,
+        })
+    })();
+
+    KneeMetrics {
+        drop_fraction: d,
+        threshold_voltage: threshold,
+        fixed_drop,
+        two_segment,
+    }
+}

@@ -1,0 +1,191 @@
+//! What a simulated bench is asked for: its options (seed, faults, latency, transports,
+//! noise, model, omitted instruments), the fault specs and the errors of starting one. Pure.
+
+use super::instruments::InstrumentKind;
+use super::unit::{UnitError, UnitFault, UnitModel};
+use serde::Serialize;
+use std::time::Duration;
+
+/// Which kind of port each instrument gets.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum TransportMix {
+    /// Meters and thermometer on pseudo-terminals, load and source on TCP.
+    #[default]
+    Mixed,
+    /// Every instrument on a pseudo-terminal.
+    AllPty,
+    /// Every instrument on TCP.
+    AllTcp,
+}
+
+impl TransportMix {
+    pub(super) fn uses_pty(self, kind: InstrumentKind) -> bool {
+        match self {
+            TransportMix::AllPty => true,
+            TransportMix::AllTcp => false,
+            TransportMix::Mixed => !matches!(kind, InstrumentKind::Load | InstrumentKind::Source),
+        }
+    }
+    pub fn parse(s: &str) -> Option<TransportMix> {
+        match s {
+            "mixed" => Some(TransportMix::Mixed),
+            "pty" => Some(TransportMix::AllPty),
+            "tcp" => Some(TransportMix::AllTcp),
+            _ => None,
+        }
+    }
+}
+
+/// A fault: built into the unit, or injected on one instrument's port.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub enum Fault {
+    Unit(UnitFault),
+    Port(InstrumentKind, PortFault),
+}
+
+/// One kind of port fault (see [`Fault::parse`] for the spec syntax).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub enum PortFault {
+    GarbageEvery(u32),
+    DropEvery(u32),
+    SlowMs(u64),
+    CloseAfter(u32),
+    CloseAtSecs(f64),
+}
+
+impl Fault {
+    /// Parse a fault spec. Unit faults: `sense=0.56`, `diodes=+1`, `diodes=-1`, `theta_sa=12`,
+    /// `vref=5.3`. Port faults name an instrument (`dmm`, `ammeter`, `eload`, `psu`, `thermo`):
+    /// `dmm:garbage=5` (a garbage line before every 5th reply), `dmm:drop=3` (every 3rd reply
+    /// lost), `eload:slow=800` (every reply 800 ms late), `psu:close-after=20` (port closes
+    /// after 20 commands; streaming meter: lines), `thermo:close-at=5` (closes 5 s after start).
+    pub fn parse(spec: &str) -> Result<Fault, String> {
+        let Some((inst, rest)) = spec.split_once(':') else {
+            return UnitFault::parse(spec).map(Fault::Unit);
+        };
+        let kind = InstrumentKind::parse(inst.trim()).ok_or_else(|| {
+            format!(
+                "fault '{spec}': unknown instrument '{inst}' (dmm, ammeter, eload, psu, thermo)"
+            )
+        })?;
+        let (key, value) = rest
+            .split_once('=')
+            .ok_or_else(|| format!("fault '{spec}': expected INSTRUMENT:KIND=VALUE"))?;
+        let count = |v: &str| -> Result<u32, String> {
+            v.trim()
+                .parse::<u32>()
+                .ok()
+                .filter(|n| *n > 0)
+                .ok_or_else(|| format!("fault '{spec}': '{v}' is not a whole number above 0"))
+        };
+        let f = match key.trim() {
+            "garbage" => PortFault::GarbageEvery(count(value)?),
+            "drop" => PortFault::DropEvery(count(value)?),
+            "slow" => PortFault::SlowMs(count(value)? as u64),
+            "close-after" => PortFault::CloseAfter(count(value)?),
+            "close-at" => {
+                let s: f64 = value
+                    .trim()
+                    .trim_end_matches('s')
+                    .parse()
+                    .ok()
+                    .filter(|x: &f64| x.is_finite() && *x >= 0.0)
+                    .ok_or_else(|| format!("fault '{spec}': '{value}' is not seconds"))?;
+                PortFault::CloseAtSecs(s)
+            }
+            other => {
+                return Err(format!(
+                    "fault '{spec}': unknown port fault '{other}' \
+                     (garbage, drop, slow, close-after, close-at)"
+                ))
+            }
+        };
+        Ok(Fault::Port(kind, f))
+    }
+}
+
+/// Options of a simulated bench (builder methods take and return `self`).
+#[derive(Debug, Clone, Serialize)]
+pub struct SimOptions {
+    /// Seed of the as-built unit and of the instruments' noise.
+    pub seed: u64,
+    pub faults: Vec<Fault>,
+    /// Reply latency of every instrument (zero allowed).
+    pub latency: Duration,
+    pub transport: TransportMix,
+    /// Noise multiplier (1 = the instruments' own noise, 0 = noiseless readings).
+    pub noise: f64,
+    pub model: UnitModel,
+    /// Instruments left off the bench (e.g. the source, so the unit always runs from its own
+    /// input).
+    pub omit: Vec<InstrumentKind>,
+}
+
+impl Default for SimOptions {
+    fn default() -> Self {
+        SimOptions {
+            seed: 1,
+            faults: Vec::new(),
+            latency: Duration::from_millis(3),
+            transport: TransportMix::Mixed,
+            noise: 1.0,
+            model: UnitModel::default(),
+            omit: Vec::new(),
+        }
+    }
+}
+
+impl SimOptions {
+    pub fn seed(mut self, seed: u64) -> Self {
+        self.seed = seed;
+        self
+    }
+    pub fn fault(mut self, f: Fault) -> Self {
+        self.faults.push(f);
+        self
+    }
+    pub fn latency(mut self, d: Duration) -> Self {
+        self.latency = d;
+        self
+    }
+    pub fn transport(mut self, t: TransportMix) -> Self {
+        self.transport = t;
+        self
+    }
+    pub fn noise(mut self, scale: f64) -> Self {
+        self.noise = scale;
+        self
+    }
+    pub fn model(mut self, m: UnitModel) -> Self {
+        self.model = m;
+        self
+    }
+    pub fn without(mut self, kind: InstrumentKind) -> Self {
+        if !self.omit.contains(&kind) {
+            self.omit.push(kind);
+        }
+        self
+    }
+}
+
+/// The simulated bench could not start.
+#[derive(Debug, thiserror::Error)]
+pub enum SimError {
+    #[error("simulated unit: {0}")]
+    Unit(#[from] UnitError),
+    #[error("cannot create a pseudo-terminal for '{instrument}': {detail} (check that /dev/ptmx exists and is usable, or put every instrument on TCP)")]
+    Pty { instrument: String, detail: String },
+    #[error("cannot listen on 127.0.0.1 for '{instrument}': {source}")]
+    Listen {
+        instrument: String,
+        #[source]
+        source: std::io::Error,
+    },
+    #[error("cannot start a thread for '{instrument}': {source}")]
+    Thread {
+        instrument: String,
+        #[source]
+        source: std::io::Error,
+    },
+}

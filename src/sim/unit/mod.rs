@@ -1,0 +1,39 @@
+//! Physics of one simulated as-built unit: the regulated output with a small output resistance,
+//! dropout at low input, a soft current-limit knee from the junction law, foldback where designed,
+//! and first-order self-heating of the pass device and the clamp junctions. It also answers how
+//! the unit meets an electronic load in CC, CV or CR mode. Pure: element values and settings in,
+//! operating points out; time is an explicit argument (the serving code feeds wall-clock time).
+//! No I/O and no clock reads live here.
+//!
+//! The model (behavioural, documented so that tests can check it against formulas):
+//! - Regulation: `V = V_set - R_out I` (V_set from `design::evaluate`, i.e. V_ref (1 + Rt/Rb)).
+//! - Dropout: `V <= V_in(I) - I R_s - V_CE(sat)` and `V <= V_aux - swing - m V_BE - I R_s`.
+//! - Knee: the clamp takes drive current as `exp((I R_s - V_th(V)) / (N kT/q))` (Shockley's law);
+//!   the error amplifier answers a deficit `dV` with proportionally more drive until it saturates
+//!   at `dV_sat = knee_sat_fraction * V_set`. Equating the two gives, on the upper branch,
+//!   `dV = dV_sat exp((I R_s - I_L(V) R_s) / (N V_T))`; once `dV > dV_sat` the unit sits on the
+//!   design's limit line `I = I_L(V)` (`design::model::limit_current_at`, foldback included).
+//! - Heat: `T -> T_a + P theta` with time constant tau (exact exponential step); the pass
+//!   device dissipates `(V_in - V - I R_s) I`, the clamp `V_clamp I_drive` while it conducts.
+//!   Junction drops follow `design::model::junction_at`, so a diode-string limit rises as the
+//!   pass device heats (V_sense = n V_F - m V_BE) while a transistor limiter barely moves.
+//! - Loads: CV holds V and takes what the unit gives there; CR is the highest intersection of
+//!   the curve with V = I R; CC takes the highest point that delivers the set current, else the
+//!   output collapses to 0 V and stays there while the setting exceeds what the unit gives at
+//!   0 V (foldback latch-up).
+//! - Line: the output moves by `line_rejection` volts per volt of input.
+//!
+//! True values for tests ([`Truth`]): the knee is the current at which the output has fallen
+//! 2 % below its no-load value, all junctions at ambient, on the design's own input.
+
+mod as_built;
+mod curve;
+mod model;
+#[cfg(test)]
+mod tests;
+
+pub use as_built::SimUnit;
+pub use model::{
+    first_order_step, thermal_voltage, Controls, LoadSetting, OperatingPoint, SourceSetting,
+    Thermal, Truth, UnitError, UnitFault, UnitModel, BOLTZMANN, ELEMENTARY_CHARGE,
+};

@@ -1,0 +1,236 @@
+//! The simulated unit's vocabulary: physical constants, the model constants the design file
+//! does not give, built-in faults, the bench's settings on the unit, operating points and the
+//! true values tests check against. Pure data and formulas.
+
+use crate::design::Params;
+use crate::measure::LoadMode;
+use serde::Serialize;
+
+/// Boltzmann constant, J/K (SI 2019 definition, exact).
+pub const BOLTZMANN: f64 = 1.380_649e-23;
+/// Elementary charge, C (SI 2019 definition, exact).
+pub const ELEMENTARY_CHARGE: f64 = 1.602_176_634e-19;
+
+/// Thermal voltage kT/q at a temperature in degrees Celsius.
+pub fn thermal_voltage(temp_c: f64) -> f64 {
+    BOLTZMANN * (temp_c + 273.15) / ELEMENTARY_CHARGE
+}
+
+/// First-order step: the value after `dt` seconds moving towards `target` with time constant
+/// `tau` (exact for a constant target).
+pub fn first_order_step(value: f64, target: f64, tau: f64, dt: f64) -> f64 {
+    if tau <= 0.0 {
+        return target;
+    }
+    target + (value - target) * (-dt / tau).exp()
+}
+
+/// Physical constants of the simulated unit that the design file does not give.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct UnitModel {
+    /// Output resistance in the regulation region, ohms (5-20 milliohm is typical of an
+    /// op-amp regulated supply measured at its terminals; common practice).
+    pub output_resistance: f64,
+    /// Deficit at which the error amplifier saturates, as a fraction of the set output.
+    pub knee_sat_fraction: f64,
+    /// Emission coefficient N of the clamp law (1 for an ideal junction).
+    pub emission: f64,
+    /// Saturation voltage of the pass stage: about 0.2 V for one transistor and 0.9 V for a
+    /// Darlington (from memory). `None`: chosen from the design's stage.
+    pub vce_sat: Option<f64>,
+    /// Pass device thermal time constant, seconds (junction plus heatsink, lumped).
+    pub pass_tau_s: f64,
+    /// Heatsink used when the design has not chosen one yet, degC/W.
+    pub default_theta_sa: f64,
+    /// Clamp junctions: thermal resistance to ambient (small-signal parts in free air, about
+    /// 250 degC/W, from memory), time constant, and the drive current they divert when clamping.
+    pub clamp_theta: f64,
+    pub clamp_tau_s: f64,
+    pub clamp_drive_a: f64,
+    /// Current the unit draws from its input besides the load (amplifier, reference), amperes.
+    pub quiescent_a: f64,
+    /// Input rejection: volts of output change per volt of input change (1e-4 is 80 dB, usual
+    /// for an op-amp error amplifier; from memory). Gives a small, nonzero line regulation.
+    pub line_rejection: f64,
+    /// Room temperature, degC; `None`: the design's nominal ambient.
+    pub ambient_c: Option<f64>,
+}
+
+impl Default for UnitModel {
+    fn default() -> Self {
+        UnitModel {
+            output_resistance: 0.010,
+            knee_sat_fraction: 0.03,
+            emission: 1.0,
+            vce_sat: None,
+            pass_tau_s: 8.0,
+            default_theta_sa: 2.0,
+            clamp_theta: 250.0,
+            clamp_tau_s: 3.0,
+            clamp_drive_a: 0.010,
+            quiescent_a: 0.008,
+            line_rejection: 1e-4,
+            ambient_c: None,
+        }
+    }
+}
+
+/// A fault built into the simulated unit.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub enum UnitFault {
+    /// A sense resistor of this value fitted instead of the designed one (ohms).
+    SenseOhms(f64),
+    /// Diodes in the clamp string differ from the design by this many (+1: one extra).
+    DiodeDelta(i32),
+    /// The pass device has no heatsink (only its case to ambient: this theta_sa, degC/W).
+    ThetaSa(f64),
+    /// The reference is this many volts instead of its drawn value.
+    ReferenceVolts(f64),
+}
+
+impl UnitFault {
+    /// Parse `sense=0.56`, `diodes=+1`, `diodes=-1`, `theta_sa=12`, `vref=5.3`.
+    pub fn parse(spec: &str) -> Result<UnitFault, String> {
+        let (key, value) = spec
+            .split_once('=')
+            .ok_or_else(|| format!("fault '{spec}': expected KEY=VALUE"))?;
+        let num = |v: &str| -> Result<f64, String> {
+            v.trim()
+                .parse::<f64>()
+                .ok()
+                .filter(|x| x.is_finite() && *x > 0.0)
+                .ok_or_else(|| format!("fault '{spec}': '{v}' is not a positive number"))
+        };
+        match key.trim() {
+            "sense" => Ok(UnitFault::SenseOhms(num(value)?)),
+            "theta_sa" => Ok(UnitFault::ThetaSa(num(value)?)),
+            "vref" => Ok(UnitFault::ReferenceVolts(num(value)?)),
+            "diodes" => {
+                let v = value.trim();
+                let delta: i32 = v.trim_start_matches('+').parse().map_err(|_| {
+                    format!("fault '{spec}': diodes takes +N or -N (one extra: +1)")
+                })?;
+                if !(v.starts_with('+') || v.starts_with('-')) || delta == 0 {
+                    return Err(format!(
+                        "fault '{spec}': diodes takes a signed change such as +1 or -1"
+                    ));
+                }
+                Ok(UnitFault::DiodeDelta(delta))
+            }
+            other => Err(format!(
+                "fault '{spec}': unknown unit fault '{other}' (sense, diodes, theta_sa, vref; \
+                 a port fault names its instrument, e.g. dmm:drop=3)"
+            )),
+        }
+    }
+
+    /// Short description for people.
+    pub fn describe(&self) -> String {
+        match self {
+            UnitFault::SenseOhms(r) => format!("sense resistor fitted: {r} ohm"),
+            UnitFault::DiodeDelta(n) => format!("clamp string has {n:+} diode(s)"),
+            UnitFault::ThetaSa(t) => format!("heatsink missing: theta_sa {t} degC/W"),
+            UnitFault::ReferenceVolts(v) => format!("reference at {v} V"),
+        }
+    }
+}
+
+/// The electronic load's settings (a setpoint per mode, as real loads keep them).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct LoadSetting {
+    pub mode: LoadMode,
+    pub current: f64,
+    pub voltage: f64,
+    pub resistance: f64,
+    pub input_on: bool,
+}
+
+impl Default for LoadSetting {
+    fn default() -> Self {
+        LoadSetting {
+            mode: LoadMode::ConstantCurrent,
+            current: 0.0,
+            voltage: 0.0,
+            resistance: 1.0e6,
+            input_on: false,
+        }
+    }
+}
+
+/// The programmable source feeding the unit's input. Until it is first commanded it is not
+/// "in use" and the unit runs from the design's own input (transformer, rectifier, reservoir).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Default)]
+pub struct SourceSetting {
+    pub in_use: bool,
+    pub volts: f64,
+    pub output_on: bool,
+}
+
+/// Everything the bench sets on the unit.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Default)]
+pub struct Controls {
+    pub load: LoadSetting,
+    pub source: SourceSetting,
+}
+
+/// Junction temperatures of the unit (degC).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Thermal {
+    pub pass_junction_c: f64,
+    pub clamp_junction_c: f64,
+}
+
+/// One operating point of the unit with its load.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct OperatingPoint {
+    /// Output voltage and current.
+    pub vout: f64,
+    pub iout: f64,
+    /// Mean input voltage and input current.
+    pub vin: f64,
+    pub iin: f64,
+    /// Pass device dissipation, watts.
+    pub pass_w: f64,
+    /// Share of the clamp's full drive current it carries (0 = off, 1 = clamping).
+    pub clamp_share: f64,
+    /// Pass device case temperature, degC.
+    pub case_c: f64,
+    /// A CC load asks for more than the unit delivers: the output has collapsed to 0 V. It
+    /// stays down until the set current is one the unit can deliver at 0 V (latch-up).
+    pub collapsed: bool,
+}
+
+/// The true values of an as-built unit, for checking what the bench measured.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Truth {
+    /// Regulated output at the as-built setting, V_ref (1 + Rt/Rb), unloaded and unlimited.
+    pub regulated_v: f64,
+    /// Output with no load (the regulated value, or lower if the input is too low).
+    pub no_load_v: f64,
+    /// Output resistance in the regulation region, ohms.
+    pub output_resistance: f64,
+    /// Knee: the current at which the output has fallen 2 % below its no-load value, with all
+    /// junctions at ambient.
+    pub knee_current: f64,
+    /// Output current into a short (0 V), junctions at ambient.
+    pub short_circuit_current: f64,
+    /// The design's limit line at the set output with these element values (sharp model).
+    pub limit_line_current: f64,
+    /// Clamp threshold across the sense resistor at ambient, volts.
+    pub sense_v: f64,
+    pub ambient_c: f64,
+    /// Thermal path of the pass device: junction to ambient, degC/W, and time constant.
+    pub pass_theta: f64,
+    pub pass_tau_s: f64,
+    /// The as-built element values.
+    pub params: Params,
+    /// Faults built in.
+    pub faults: Vec<String>,
+}
+
+/// A unit could not be built as asked.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum UnitError {
+    #[error("fault '{fault}' does not apply to this design: {why}")]
+    FaultNotApplicable { fault: String, why: String },
+}

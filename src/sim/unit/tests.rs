@@ -1,0 +1,435 @@
+//! Unit tests of the simulated unit, each against the formula it names.
+
+use super::as_built::*;
+use super::model::*;
+use crate::design::{Clamp, Design};
+use crate::measure::LoadMode;
+
+fn design(name: &str) -> Design {
+    let path = format!("{}/samples/{name}", env!("CARGO_MANIFEST_DIR"));
+    Design::load(std::path::Path::new(&path)).expect("sample design loads")
+}
+fn lab() -> Design {
+    design("teaching-lab-0-20v.toml")
+}
+fn fold() -> Design {
+    design("fixed-12v-3a-foldback.toml")
+}
+fn unit(d: &Design, faults: &[UnitFault]) -> SimUnit {
+    SimUnit::build(d, 11, faults, UnitModel::default()).unwrap()
+}
+fn load(mode: LoadMode, value: f64) -> Controls {
+    let mut c = Controls::default();
+    c.load.mode = mode;
+    c.load.input_on = true;
+    match mode {
+        LoadMode::ConstantCurrent => c.load.current = value,
+        LoadMode::ConstantVoltage => c.load.voltage = value,
+        LoadMode::ConstantResistance => c.load.resistance = value,
+    }
+    c
+}
+
+#[test]
+fn thermal_voltage_at_25c_is_25_69_mv() {
+    // kT/q at 298.15 K = 25.69 mV (SI 2019 constants; textbook value).
+    assert!((thermal_voltage(25.0) - 0.025_693).abs() < 2e-6);
+}
+
+#[test]
+fn first_order_step_reaches_63_percent_at_one_time_constant() {
+    // Step response of a first-order system: 1 - e^-1 = 63.2 % at t = tau (textbook).
+    let v = first_order_step(0.0, 1.0, 8.0, 8.0);
+    assert!((v - 0.632_12).abs() < 1e-4, "{v}");
+    let v = first_order_step(25.0, 125.0, 5.0, 5.0);
+    assert!((v - (25.0 + 63.212)).abs() < 1e-2, "{v}");
+}
+
+#[test]
+fn regulated_output_follows_vref_times_one_plus_rt_over_rb() {
+    // Non-inverting amplifier: V_out = V_ref (1 + R_t / R_b) (textbook).
+    let d = fold();
+    let u = unit(&d, &[]);
+    let p = u.params();
+    let expected = p.vref * (1.0 + p.fb_top / p.fb_bottom);
+    assert!((u.regulated_v() - expected).abs() < 1e-9);
+    let op = u.operating_point(&Controls::default());
+    assert!(
+        (op.vout - expected).abs() < 1e-6,
+        "{} vs {expected}",
+        op.vout
+    );
+    assert_eq!(op.iout, 0.0);
+    // The drawn unit differs from nominal 12 V only within the element tolerances.
+    assert!((expected - 12.0).abs() < 0.3);
+}
+
+#[test]
+fn output_resistance_is_minus_dv_di_in_regulation() {
+    // R_out = -dV/dI over the regulation region (definition of output resistance; common practice).
+    let d = fold();
+    let u = unit(&d, &[]);
+    let a = u.operating_point(&load(LoadMode::ConstantCurrent, 0.5));
+    let b = u.operating_point(&load(LoadMode::ConstantCurrent, 1.5));
+    assert!((a.iout - 0.5).abs() < 1e-12 && (b.iout - 1.5).abs() < 1e-12);
+    let r = -(b.vout - a.vout) / (b.iout - a.iout);
+    assert!((r - u.model().output_resistance).abs() < 1e-5, "{r}");
+}
+
+#[test]
+fn diode_string_limit_line_away_from_knee() {
+    // V_sense = n V_F - m V_BE, I_lim = V_sense / R_sense (textbook relation; common practice).
+    let d = lab();
+    let u = unit(&d, &[]);
+    let p = u.params();
+    let expected = (p.diodes as f64 * p.diode_vf - 2.0 * p.pass_vbe) / p.r_sense;
+    let vset = u.regulated_v();
+    for frac in [0.1, 0.5, 0.8] {
+        let op = u.operating_point(&load(LoadMode::ConstantVoltage, frac * vset));
+        assert!(
+            (op.iout - expected).abs() < 1e-9,
+            "at {frac}: {} vs {expected}",
+            op.iout
+        );
+    }
+}
+
+#[test]
+fn foldback_limit_line_and_short_circuit() {
+    // k = Rb/(Rt+Rb); I(V) = (V_BE + (1-k) V)/(k R_s); I_sc = V_BE/(k R_s) (common practice).
+    let d = fold();
+    let u = unit(&d, &[]);
+    let p = u.params();
+    let k = p.fold_bottom / (p.fold_top + p.fold_bottom);
+    for v in [2.0, 6.0, 9.0] {
+        let expected = (p.limiter_vbe + (1.0 - k) * v) / (k * p.r_sense);
+        let op = u.operating_point(&load(LoadMode::ConstantVoltage, v));
+        assert!((op.iout - expected).abs() < 1e-9, "{v}: {}", op.iout);
+    }
+    let isc = p.limiter_vbe / (k * p.r_sense);
+    let op = u.operating_point(&load(LoadMode::ConstantResistance, 1e-4));
+    assert!((op.iout - isc).abs() / isc < 1e-3, "{} vs {isc}", op.iout);
+    assert!((u.truth().short_circuit_current - isc).abs() < 1e-9);
+}
+
+#[test]
+fn knee_is_soft_over_a_few_thermal_voltages() {
+    // Upper branch: dV = dV_sat exp((I - I_L) R_s / (N kT/q)) (Shockley's law, module doc).
+    // At the 2 % point: I = I_L + (N V_T / R_s) ln(0.02 V0 / dV_sat) - R_out I, so the knee sits
+    // ln(0.03/0.02) = 0.405 thermal voltages of sense drop below the sharp limit line.
+    let d = lab();
+    let u = unit(&d, &[]);
+    let t = u.truth();
+    let p = u.params();
+    let vt = thermal_voltage(p.ambient_c);
+    let dv_sat = u.model().knee_sat_fraction * t.regulated_v;
+    let v = 0.98 * t.no_load_v;
+    let il = t.limit_line_current;
+    let ro = u.model().output_resistance;
+    // Solve t.regulated_v - ro I - dv_sat e^{(I-il)Rs/vt} = v directly for a check.
+    let deficit = t.regulated_v - ro * t.knee_current - v;
+    let expected = il + vt / p.r_sense * (deficit / dv_sat).ln();
+    assert!((t.knee_current - expected).abs() < 1e-6);
+    let below_mv = (il - t.knee_current) * p.r_sense * 1e3;
+    assert!(below_mv > 5.0 && below_mv < 30.0, "{below_mv} mV");
+    // Between a 0.1 % drop and saturation the sense drop moves by tens of millivolts.
+    let i_01 = u.supply_current_at(&Controls::default(), 0.999 * t.no_load_v);
+    let span_mv = (il - i_01) * p.r_sense * 1e3;
+    assert!(span_mv > 40.0 && span_mv < 150.0, "{span_mv} mV");
+}
+
+#[test]
+fn cc_load_sinks_set_current_then_collapses_above_limit() {
+    let d = lab();
+    let u = unit(&d, &[]);
+    let t = u.truth();
+    let op = u.operating_point(&load(LoadMode::ConstantCurrent, 0.8));
+    assert!((op.iout - 0.8).abs() < 1e-12);
+    let expected = t.regulated_v - 0.8 * t.output_resistance;
+    assert!(
+        (op.vout - expected).abs() < 1e-5,
+        "{} vs {expected} {t:?}",
+        op.vout
+    );
+    // Above the limit a CC load has no operating point on the upper branch: the output
+    // collapses onto the limit line at 0 V (common practice).
+    let op = u.operating_point(&load(LoadMode::ConstantCurrent, t.limit_line_current * 1.2));
+    assert!(op.vout < 1e-9, "{}", op.vout);
+    assert!((op.iout - t.short_circuit_current).abs() < 1e-9);
+}
+
+#[test]
+fn foldback_cc_between_short_and_knee_stays_on_upper_branch() {
+    let d = fold();
+    let u = unit(&d, &[]);
+    let t = u.truth();
+    let i = 0.5 * (t.short_circuit_current + t.knee_current);
+    let op = u.operating_point(&load(LoadMode::ConstantCurrent, i));
+    assert!((op.iout - i).abs() < 1e-12);
+    assert!(op.vout > 0.99 * t.no_load_v - i * t.output_resistance);
+}
+
+#[test]
+fn foldback_latches_low_under_cc_until_the_setting_is_below_short_circuit() {
+    // A foldback supply driven into collapse by a CC load stays down while the load asks
+    // for more than I_sc (common practice: foldback supplies can latch low under CC).
+    let d = fold();
+    let mut u = unit(&d, &[]);
+    let t = u.truth();
+    let between = 0.5 * (t.short_circuit_current + t.knee_current);
+    let op = u.advance(&load(LoadMode::ConstantCurrent, t.knee_current * 1.2), 0.01);
+    assert!(op.collapsed && op.vout == 0.0);
+    let op = u.advance(&load(LoadMode::ConstantCurrent, between), 0.01);
+    assert!(op.collapsed && op.vout == 0.0, "{op:?}");
+    assert!((op.iout - t.short_circuit_current).abs() < 0.01 * t.short_circuit_current);
+    let op = u.advance(
+        &load(LoadMode::ConstantCurrent, 0.5 * t.short_circuit_current),
+        0.01,
+    );
+    assert!(!op.collapsed && op.vout > 0.99 * t.no_load_v, "{op:?}");
+    let op = u.advance(&load(LoadMode::ConstantCurrent, between), 0.01);
+    assert!(!op.collapsed && op.vout > 0.99 * t.no_load_v, "{op:?}");
+}
+
+#[test]
+fn cr_load_meets_ohms_law() {
+    // Regulation region: V = V_set R / (R + R_out) (voltage divider); always V = I R.
+    let d = fold();
+    let u = unit(&d, &[]);
+    let t = u.truth();
+    let r = 10.0;
+    let op = u.operating_point(&load(LoadMode::ConstantResistance, r));
+    assert!((op.vout - op.iout * r).abs() < 1e-6);
+    let expected = t.regulated_v * r / (r + t.output_resistance);
+    assert!(
+        (op.vout - expected).abs() < 1e-6,
+        "{} vs {expected}",
+        op.vout
+    );
+    // In the limit region: on the limit line and on V = I R.
+    let r = 1.0;
+    let op = u.operating_point(&load(LoadMode::ConstantResistance, r));
+    let p = u.params();
+    let k = p.fold_bottom / (p.fold_top + p.fold_bottom);
+    // Intersection of I = (V_BE + (1-k) V)/(k R_s) with V = I R.
+    let v = p.limiter_vbe * r / (k * p.r_sense - (1.0 - k) * r);
+    assert!((op.vout - v).abs() < 1e-6, "{} vs {v}", op.vout);
+}
+
+#[test]
+fn cv_load_above_open_voltage_draws_nothing_and_off_input_draws_nothing() {
+    let d = lab();
+    let u = unit(&d, &[]);
+    let t = u.truth();
+    let op = u.operating_point(&load(LoadMode::ConstantVoltage, t.no_load_v + 1.0));
+    assert_eq!(op.iout, 0.0);
+    let mut c = load(LoadMode::ConstantCurrent, 1.0);
+    c.load.input_on = false;
+    assert_eq!(u.operating_point(&c).iout, 0.0);
+}
+
+#[test]
+fn dropout_when_the_source_is_too_low() {
+    // Headroom: V_out <= V_in - I R_s - V_CE(sat) (common practice).
+    let d = fold();
+    let u = unit(&d, &[]);
+    let t = u.truth();
+    let mut c = load(LoadMode::ConstantCurrent, 1.0);
+    c.source = SourceSetting {
+        in_use: true,
+        volts: t.regulated_v + 1.0,
+        output_on: true,
+    };
+    let op = u.operating_point(&c);
+    let expected = t.regulated_v + 1.0 - 1.0 * t.params.r_sense - 0.9;
+    assert!(
+        (op.vout - expected).abs() < 1e-6,
+        "{} vs {expected}",
+        op.vout
+    );
+    c.source.output_on = false;
+    let op = u.operating_point(&c);
+    assert_eq!((op.vout, op.iout), (0.0, 0.0));
+}
+
+proptest::proptest! {
+    #![proptest_config(proptest::prelude::ProptestConfig::with_cases(200))]
+    #[test]
+    fn every_load_setting_gives_a_physical_operating_point(
+        mode in 0u8..3,
+        value in 0.0f64..40.0,
+        source in proptest::option::of(0.0f64..60.0),
+        seed in 0u64..50,
+        foldback in proptest::bool::ANY,
+    ) {
+        let d = if foldback { fold() } else { lab() };
+        let u = SimUnit::build(&d, seed, &[], UnitModel::default()).unwrap();
+        let mode = [LoadMode::ConstantCurrent, LoadMode::ConstantVoltage,
+            LoadMode::ConstantResistance][mode as usize];
+        let mut c = load(mode, value.max(1e-3));
+        if let Some(v) = source {
+            c.source = SourceSetting { in_use: true, volts: v, output_on: true };
+        }
+        let op = u.operating_point(&c);
+        let open = u.operating_point(&Controls { source: c.source, ..Controls::default() });
+        for x in [op.vout, op.iout, op.vin, op.iin, op.pass_w] {
+            proptest::prop_assert!(x.is_finite() && x >= 0.0, "{op:?}");
+        }
+        // Never above the open-circuit voltage; never more than the unit can give there.
+        proptest::prop_assert!(op.vout <= open.vout + 1e-9, "{op:?} {open:?}");
+        proptest::prop_assert!(op.iout <= u.supply_current_at(&c, op.vout) + 1e-9);
+        // The pass device obeys energy balance: P = (V_in - V_out - I R_s) I >= 0.
+        let p = (op.vin - op.vout - op.iout * u.params().r_sense) * op.iout;
+        proptest::prop_assert!((op.pass_w - p.max(0.0)).abs() < 1e-9);
+        if mode == LoadMode::ConstantResistance {
+            proptest::prop_assert!((op.vout - op.iout * value.max(1e-3)).abs() < 1e-6);
+        }
+    }
+}
+
+#[test]
+fn a_hotter_room_moves_the_diode_string_limit() {
+    // V_sense = n V_F - m V_BE with every junction 2 mV/degC lower at +10 degC: the
+    // threshold changes by (n - m)(-2 mV/degC)(10 degC) (textbook tempco; common practice).
+    let d = lab();
+    let cold = unit(&d, &[]).truth();
+    let model = UnitModel {
+        ambient_c: Some(35.0),
+        ..UnitModel::default()
+    };
+    let hot = SimUnit::build(&d, 11, &[], model).unwrap().truth();
+    let n = cold.params.diodes as f64;
+    let expected = cold.sense_v + (n - 2.0) * -2e-3 * 10.0;
+    assert!(
+        (hot.sense_v - expected).abs() < 1e-12,
+        "{} vs {expected}",
+        hot.sense_v
+    );
+    assert_eq!(hot.ambient_c, 35.0);
+}
+
+#[test]
+fn line_change_moves_the_output_by_the_input_rejection() {
+    // Line regulation: dV_out = rejection * dV_in while headroom lasts (80 dB -> 1e-4 V/V).
+    let d = fold();
+    let u = unit(&d, &[]);
+    let mut c = load(LoadMode::ConstantCurrent, 1.0);
+    c.source = SourceSetting {
+        in_use: true,
+        volts: 18.0,
+        output_on: true,
+    };
+    let a = u.operating_point(&c);
+    c.source.volts = 24.0;
+    let b = u.operating_point(&c);
+    let k = u.model().line_rejection;
+    assert!(
+        ((b.vout - a.vout) - 6.0 * k).abs() < 1e-9,
+        "{} {}",
+        a.vout,
+        b.vout
+    );
+}
+
+#[test]
+fn transistor_clamp_on_a_dc_input() {
+    // Transistor limiter: I_lim = V_BE / R_sense (common practice); DC input: dropout
+    // at V_in - I R_s - V_CE(sat) with no ripple.
+    let text = std::fs::read_to_string(format!(
+        "{}/samples/teaching-lab-0-20v.toml",
+        env!("CARGO_MANIFEST_DIR")
+    ))
+    .unwrap()
+    .replace(
+        "kind = \"full_wave\"\nsecondary_vrms = 26.0",
+        "kind = \"dc\"\nvolts = 24.0",
+    )
+    .replace("clamp = \"diode_string\"", "clamp = \"transistor\"")
+    .replace("diodes = 3\n", "");
+    let d = Design::parse(&text, "inline").unwrap();
+    assert_eq!(d.limit.clamp, Clamp::Transistor);
+    let u = unit(&d, &[]);
+    let t = u.truth();
+    let p = u.params();
+    assert!((t.short_circuit_current - p.limiter_vbe / p.r_sense).abs() < 1e-9);
+    let op = u.operating_point(&load(LoadMode::ConstantVoltage, 5.0));
+    assert!((op.iout - p.limiter_vbe / p.r_sense).abs() < 1e-9);
+    // DC input at the drawn line: the input does not sag with load.
+    let vin = 24.0 * p.line;
+    assert!((op.vin - vin).abs() < 1e-9, "{} vs {vin}", op.vin);
+    assert!(t.no_load_v <= vin - 0.9 + 1e-9);
+}
+
+#[test]
+fn faults_change_the_limit_as_the_formulas_say() {
+    let d = lab();
+    let base = unit(&d, &[]).truth();
+    let t = unit(&d, &[UnitFault::SenseOhms(0.56)]).truth();
+    // I_lim = V_sense / R_sense with the wrong resistor.
+    assert!((t.limit_line_current - base.sense_v / 0.56).abs() < 1e-9);
+    let t = unit(&d, &[UnitFault::DiodeDelta(1)]).truth();
+    // One more diode adds one V_F to V_sense = n V_F - m V_BE.
+    assert!((t.sense_v - (base.sense_v + base.params.diode_vf)).abs() < 1e-9);
+    assert!(SimUnit::build(
+        &fold(),
+        1,
+        &[UnitFault::DiodeDelta(1)],
+        UnitModel::default()
+    )
+    .is_err());
+}
+
+#[test]
+fn fault_specs_parse_and_reject() {
+    assert_eq!(
+        UnitFault::parse("sense=0.56"),
+        Ok(UnitFault::SenseOhms(0.56))
+    );
+    assert_eq!(UnitFault::parse("diodes=+1"), Ok(UnitFault::DiodeDelta(1)));
+    assert_eq!(UnitFault::parse("diodes=-1"), Ok(UnitFault::DiodeDelta(-1)));
+    assert!(UnitFault::parse("diodes=1").is_err());
+    assert!(UnitFault::parse("sense=-2").is_err());
+    assert!(UnitFault::parse("bogus=1").is_err());
+    assert!(UnitFault::parse("sense").is_err());
+}
+
+#[test]
+fn diode_string_limit_rises_as_the_pass_device_heats() {
+    // V_sense = n V_F(T_clamp) - m V_BE(T_pass); junction drops fall 2 mV/degC (textbook),
+    // so a hotter pass device raises the limit by m * 2 mV/degC / R_s per degree.
+    let d = lab();
+    let mut u = unit(&d, &[]);
+    let cold = u.truth();
+    let short = load(LoadMode::ConstantResistance, 1e-3);
+    let i0 = u.operating_point(&short).iout;
+    let op = u.advance(&short, 15.0);
+    let th = u.thermal();
+    assert!(th.pass_junction_c > cold.ambient_c + 20.0, "{th:?}");
+    assert!(th.clamp_junction_c - cold.ambient_c < 0.2 * (th.pass_junction_c - cold.ambient_c));
+    assert!(op.iout > i0 * 1.05, "{} -> {}", i0, op.iout);
+    let p = u.params();
+    let tc = d.environment.junction_tempco_mv_per_c * 1e-3;
+    let vs = p.diodes as f64 * (p.diode_vf + tc * (th.clamp_junction_c - 25.0))
+        - 2.0 * (p.pass_vbe + tc * (th.pass_junction_c - 25.0));
+    assert!(
+        (op.iout - vs / p.r_sense).abs() < 1e-3 * op.iout,
+        "{} vs {}",
+        op.iout,
+        vs / p.r_sense
+    );
+}
+
+#[test]
+fn pass_junction_heats_with_first_order_response_at_constant_power() {
+    // With dissipation held (source-fed, CV load on the limit line) the junction follows
+    // T_a + P theta (1 - e^{-t/tau}): T_j = T_a + P (theta_jc + theta_cs + theta_sa) (thermal Ohm's law; common practice).
+    let d = fold();
+    let mut u = unit(&d, &[]);
+    let op = u.operating_point(&load(LoadMode::ConstantCurrent, 2.0));
+    let tau = u.model().pass_tau_s;
+    let ta = u.params().ambient_c;
+    u.heat(op, tau);
+    let rise = u.thermal().pass_junction_c - ta;
+    let full = op.pass_w * u.pass_theta();
+    assert!((rise / full - 0.632_12).abs() < 1e-4, "{rise} of {full}");
+}
