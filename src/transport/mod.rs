@@ -4,38 +4,15 @@
 //! know about roles, commands or reply patterns.
 
 mod lines;
+mod link;
 mod memory;
 mod serial;
+mod stream;
 mod tcp;
 
 pub use lines::{LineReader, LineWriter, LinkError, TrafficLog, MAX_LINE};
+pub use link::{DataBits, FlowControl, LinkConfig, Parity, SerialSettings, StopBits, TcpSettings};
 pub use memory::MemoryTransport;
 pub use serial::open_serial;
+pub use stream::{BoxTransport, OpenError, Transport};
 pub use tcp::open_tcp;
-
-use tokio::io::{AsyncRead, AsyncWrite};
-
-/// Anything we can read bytes from and write bytes to, as one owned value.
-pub trait Transport: AsyncRead + AsyncWrite + Unpin + Send + 'static {}
-
-impl<T: AsyncRead + AsyncWrite + Unpin + Send + 'static> Transport for T {}
-
-/// A transport behind a box, as the bench holds it.
-pub type BoxTransport = Box<dyn Transport>;
-
-/// Why a link could not be opened, sorted by what the user should check.
-#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
-pub enum OpenError {
-    #[error("no such port")]
-    Missing,
-    #[error("permission denied")]
-    PermissionDenied,
-    #[error("port busy")]
-    Busy,
-    #[error("connection refused")]
-    Refused,
-    #[error("connection attempt timed out")]
-    Timeout,
-    #[error("{0}")]
-    Other(String),
-}
