@@ -7,10 +7,9 @@
 use crate::config::Located;
 use crate::control::{ControlError, InstrumentFault};
 use crate::protocol::{ReplyError, TemplateError};
-use crate::transport::{LinkError, OpenError};
+use crate::transport::{IoCause, LinkError, OpenError};
 use std::fmt;
 use std::path::PathBuf;
-use std::sync::Arc;
 
 /// Everything that can go wrong with a bench. Messages of instrument failures start with
 /// `instrument '<name>': `.
@@ -95,34 +94,6 @@ pub enum BenchError {
         name: String,
         known: String,
     },
-}
-
-/// An I/O error kept whole and shareable (bench errors are `Clone`); two are equal when they
-/// are of the same kind and read the same.
-#[derive(Debug, Clone)]
-pub struct IoCause(pub Arc<std::io::Error>);
-
-impl IoCause {
-    pub fn new(e: std::io::Error) -> IoCause {
-        IoCause(Arc::new(e))
-    }
-
-    /// The I/O error itself.
-    pub fn get(&self) -> &std::io::Error {
-        &self.0
-    }
-}
-
-impl PartialEq for IoCause {
-    fn eq(&self, other: &IoCause) -> bool {
-        self.0.kind() == other.0.kind() && self.0.to_string() == other.0.to_string()
-    }
-}
-
-impl fmt::Display for IoCause {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{}", self.0)
-    }
 }
 
 /// Whether an error is about the bench file or about talking to the instruments.

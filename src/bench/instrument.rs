@@ -202,11 +202,13 @@ impl Instrument {
                 instrument,
                 command,
             },
-            error @ LinkError::Io(_) => BenchError::Io {
-                instrument,
-                command,
-                error,
-            },
+            error @ (LinkError::Io(_) | LinkError::WriteTimeout { .. } | LinkError::Poisoned) => {
+                BenchError::Io {
+                    instrument,
+                    command,
+                    error,
+                }
+            }
         }
     }
 
@@ -324,7 +326,9 @@ impl Instrument {
             port.reader = Some(reader);
             match r {
                 Ok(s) => return Ok(s),
-                Err(e @ (LinkError::Closed | LinkError::Io(_))) => return Err(self.err(q, e)),
+                Err(
+                    e @ (LinkError::Closed | LinkError::Io(_) | LinkError::WriteTimeout { .. }),
+                ) => return Err(self.err(q, e)),
                 Err(e) => last = self.err(q, e),
             }
         }
@@ -475,10 +479,7 @@ impl Instrument {
             tokio::pin!(notified);
             notified.as_mut().enable();
             {
-                let st = stream
-                    .state
-                    .lock()
-                    .map_err(|_| LinkError::Io("stream state poisoned".into()))?;
+                let st = stream.state.lock().map_err(|_| LinkError::Poisoned)?;
                 for (t, line) in st.lines.iter() {
                     if let Some(v) = accept(*t, line) {
                         return Ok(v);
@@ -516,7 +517,7 @@ impl Instrument {
                 let mut st = stream
                     .state
                     .lock()
-                    .map_err(|_| self.err(&what, LinkError::Io("stream state poisoned".into())))?;
+                    .map_err(|_| self.err(&what, LinkError::Poisoned))?;
                 let now = Instant::now();
                 // Stale lines (too old, or from before the last setting change) are dropped
                 // for good.

@@ -11,12 +11,13 @@ mod instrument;
 mod open;
 mod probe;
 
+pub use crate::transport::IoCause;
 pub use bench_control::control_error;
 pub use config::{
     BenchConfig, CommandKey, CommandSet, FlowControl, InstrumentConfig, LinkConfig, Parity,
     ReadingStyle, SerialSettings, StreamPick, TcpSettings, PRESET_NAMES,
 };
-pub use error::{BenchError, BenchErrorKind, IoCause};
+pub use error::{BenchError, BenchErrorKind};
 pub use instrument::{connect, Instrument};
 pub use open::Bench;
 pub use probe::{probe, write_probe_table, ProbeReport, ProbeRow};

@@ -20,10 +20,10 @@ pub enum ReplyError {
 }
 
 /// Why a reply pattern or its settings were rejected.
-#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum PatternError {
     #[error("the reply pattern is not a valid regular expression: {0}")]
-    Regex(String),
+    Regex(regex::Error),
     #[error("the reply pattern needs a named capture 'value', e.g. (?P<value>\\S+)")]
     NoValueGroup,
     #[error("scale must be a finite, non-zero number")]
@@ -82,7 +82,7 @@ impl ReplyParser {
         let (regex, unit_group, status_group, tag_group) = match &spec.pattern {
             None => (None, true, false, false),
             Some(p) => {
-                let re = Regex::new(p).map_err(|e| PatternError::Regex(e.to_string()))?;
+                let re = Regex::new(p).map_err(PatternError::Regex)?;
                 let names: Vec<&str> = re.capture_names().flatten().collect();
                 if !names.contains(&"value") {
                     return Err(PatternError::NoValueGroup);

@@ -14,5 +14,5 @@ pub use lines::{LineReader, LineWriter, LinkError, TrafficLog, MAX_LINE};
 pub use link::{DataBits, FlowControl, LinkConfig, Parity, SerialSettings, StopBits, TcpSettings};
 pub use memory::MemoryTransport;
 pub use serial::open_serial;
-pub use stream::{BoxTransport, OpenError, Transport};
+pub use stream::{BoxTransport, IoCause, OpenError, Transport};
 pub use tcp::open_tcp;

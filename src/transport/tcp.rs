@@ -1,6 +1,6 @@
 //! Raw TCP socket links (LAN instruments commonly listen on port 5025).
 
-use super::{BoxTransport, OpenError};
+use super::{BoxTransport, IoCause, OpenError};
 use std::time::Duration;
 use tokio::net::TcpStream;
 
@@ -14,7 +14,7 @@ pub async fn open_tcp(host: &str, port: u16, timeout: Duration) -> Result<BoxTra
                 std::io::ErrorKind::ConnectionRefused => OpenError::Refused,
                 std::io::ErrorKind::TimedOut => OpenError::Timeout,
                 std::io::ErrorKind::PermissionDenied => OpenError::PermissionDenied,
-                _ => OpenError::Other(e.to_string()),
+                _ => OpenError::Io(IoCause::new(e)),
             })
         }
         Ok(Ok(s)) => s,
