@@ -99,4 +99,46 @@ mod tests {
         );
         assert_eq!(e.to_string().matches("'dmm'").count(), 1);
     }
+
+    // Regression: a control error keeps the bench error whole (its kind), instead of a copy of
+    // its text with the instrument name cut off.
+    #[test]
+    fn control_errors_keep_the_bench_error() {
+        let original = BenchError::Closed {
+            instrument: "eload".into(),
+            command: "INP OFF".into(),
+        };
+        let e: ControlError = original.clone().into();
+        assert_eq!(e.to_string(), original.to_string());
+        let kept = e.fault().and_then(|f| f.downcast_ref::<BenchError>());
+        assert_eq!(kept, Some(&original));
+        // An error about no single instrument is the bench's.
+        let e = control_error(BenchError::NoRole { role: Role::Load });
+        assert_eq!(e.instrument, "bench");
+        assert_eq!(
+            e.to_string(),
+            "instrument 'bench': no instrument on this bench holds role 'load'; add it to a [[instrument]] roles list"
+        );
+        // Plain-text errors (a bench without a typed error) carry no fault.
+        let e = ControlError::new("psu", "output stuck");
+        assert_eq!(e.to_string(), "instrument 'psu': output stuck");
+        assert!(e.fault().is_none());
+    }
+
+    #[test]
+    fn configuration_problems_are_told_from_instrument_failures() {
+        let located = crate::config::at_span("b.toml", "x", Some(0..0), "bad");
+        assert!(BenchError::Config(located).is_config());
+        assert!(BenchError::NoInstrument {
+            name: "x".into(),
+            known: "dmm".into()
+        }
+        .is_config());
+        assert!(!BenchError::NoReply {
+            instrument: "dmm".into(),
+            command: "*IDN?".into(),
+            ms: 10
+        }
+        .is_config());
+    }
 }

@@ -141,5 +141,11 @@ mod tests {
         assert_eq!(parse_number("1.5M"), Some(1.5e6));
         assert_eq!(parse_number("3mm"), None);
         assert_eq!(parse_number("3x"), None);
+        // Both micro signs, as in the one prefix table (crate::quantity).
+        assert_eq!(parse_number("2\u{3bc}"), Some(2e-6));
+        // Femto is not an instrument reply suffix: a trailing f is refused.
+        assert_eq!(parse_number("3f"), None);
+        assert_eq!(si_prefix('f'), None);
+        assert_eq!(si_prefix('K'), Some(1e3));
     }
 }

@@ -1,6 +1,7 @@
 //! Tests of the bench file rules (messages and places as the user sees them).
 
 use super::*;
+use crate::bench::config::KEY_NAMES;
 use crate::bench::BenchError;
 use crate::measure::Role;
 use std::path::Path;
@@ -215,4 +216,51 @@ fn the_shipped_bench_files_parse() {
             panic!("{f}: {e}");
         }
     }
+}
+
+// Regression: the commands table is read through the key table; an unknown key, a wrong type
+// and an array in its place are refused at the same place with the same words as serde's own
+// struct reader gives.
+#[test]
+fn commands_table_refuses_what_serde_refused() {
+    let base = "[[instrument]]\nname = \"x\"\nroles = [\"thermometer\"]\ntcp = { host = \"h\" }\n";
+    let (line, col, msg) = config_err(&format!("{base}[instrument.commands]\nfoo = \"a\"\n"));
+    assert_eq!((line, col), (6, 1));
+    assert_eq!(
+        msg,
+        format!(
+            "unknown field `foo`, expected one of {}",
+            KEY_NAMES.map(|k| format!("`{k}`")).join(", ")
+        )
+    );
+    let (line, col, msg) = config_err(&format!(
+        "{base}[instrument.commands]\nmeasure_temperature = 5\n"
+    ));
+    assert_eq!(
+        (line, col, msg.as_str()),
+        (6, 23, "invalid type: integer `5`, expected a string")
+    );
+    let (line, col, msg) = config_err(&base.replace(
+        "tcp = { host = \"h\" }\n",
+        "tcp = { host = \"h\" }\ncommands = [\"A?\"]\n",
+    ));
+    assert_eq!(
+        (line, col, msg.as_str()),
+        (
+            5,
+            12,
+            "invalid length 1, expected struct RawCommands with 14 elements"
+        )
+    );
+}
+
+// A bench file error with no place of its own points at the file's start, as before.
+#[test]
+fn an_error_without_a_place_points_at_the_file_start() {
+    let e = parse("[bench]\nname = \"a\"\n").unwrap_err();
+    assert_eq!(
+        e.to_string(),
+        "bench.toml:1:1: no instruments: add at least one [[instrument]] table (see config/bench-template.toml)"
+    );
+    assert!(e.is_config());
 }
