@@ -2,7 +2,7 @@
 //! stream reading styles, retries, command gaps, init / identity / safe-state sequences and
 //! the traffic log. Knows nothing of other instruments.
 
-use super::config::{InstrumentConfig, LinkConfig, ReadingStyle, StreamPick, TcpSettings};
+use super::config::{InstrumentConfig, LinkConfig, ReadingStyle, StreamPick};
 use super::{BenchError, IoCause};
 use crate::measure::{Reading, Role};
 use crate::protocol::{ReplyError, Template};
@@ -80,28 +80,22 @@ pub async fn connect(cfg: &InstrumentConfig) -> Result<BoxTransport, BenchError>
                 },
             }
         }),
-        LinkConfig::Tcp(TcpSettings {
-            host,
-            port,
-            connect_timeout,
-        }) => open_tcp(host, port.get(), *connect_timeout)
-            .await
-            .map_err(|e| {
-                let addr = format!("{host}:{port}");
-                match e {
-                    OpenError::Refused => BenchError::ConnectionRefused { instrument, addr },
-                    OpenError::Timeout => BenchError::ConnectTimeout {
-                        instrument,
-                        addr,
-                        ms: connect_timeout.as_millis(),
-                    },
-                    error => BenchError::Open {
-                        instrument,
-                        link: cfg.link.describe(),
-                        error,
-                    },
-                }
-            }),
+        LinkConfig::Tcp(t) => open_tcp(t).await.map_err(|e| {
+            let addr = format!("{}:{}", t.host, t.port);
+            match e {
+                OpenError::Refused => BenchError::ConnectionRefused { instrument, addr },
+                OpenError::Timeout => BenchError::ConnectTimeout {
+                    instrument,
+                    addr,
+                    ms: t.connect_timeout.as_millis(),
+                },
+                error => BenchError::Open {
+                    instrument,
+                    link: cfg.link.describe(),
+                    error,
+                },
+            }
+        }),
     }
 }
 

@@ -1,6 +1,7 @@
-//! Transports: byte links to instruments (serial via tokio-serial, raw TCP sockets, and an
-//! in-memory link for benchmarks and examples), the line reader that enforces a whole-reply
-//! deadline, and the optional raw traffic log. Transports move bytes and lines; they must not
+//! Transports: the link settings (serial framing, TCP address), byte links to instruments
+//! (serial via tokio-serial, raw TCP sockets, and an in-memory link for benchmarks and
+//! examples), the line reader that enforces a whole-reply deadline, and the optional raw
+//! traffic log. Transports move bytes and lines; they must not
 //! know about roles, commands or reply patterns.
 
 mod lines;
