@@ -5,6 +5,8 @@
 
 use crate::measure::{LoadMode, Measurement, Role};
 use serde::{Deserialize, Serialize};
+use std::fmt;
+use std::sync::Arc;
 
 /// Who an instrument said it is (the reply to its identity query, when configured).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -18,12 +20,76 @@ pub struct InstrumentIdentity {
     pub identity: Option<String>,
 }
 
-/// A failure talking to one instrument, phrased so the user knows what to check.
-#[derive(Debug, Clone, thiserror::Error, PartialEq)]
+/// A bench's own error behind a [`ControlError`]: its message without the instrument name
+/// (which the control error shows once), and the error itself for its kind.
+pub trait InstrumentFault: std::error::Error + Send + Sync + 'static {
+    /// The message without the leading `instrument '<name>': `.
+    fn fmt_detail(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result;
+}
+
+/// What went wrong, as the bench reported it.
+#[derive(Debug, Clone)]
+enum Detail {
+    /// Plain text (a bench without a typed error of its own).
+    Text(String),
+    /// The bench's typed error, kept whole.
+    Fault(Arc<dyn InstrumentFault>),
+}
+
+impl fmt::Display for Detail {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Detail::Text(t) => f.write_str(t),
+            Detail::Fault(e) => e.fmt_detail(f),
+        }
+    }
+}
+
+/// A failure talking to one instrument, phrased so the user knows what to check. It keeps
+/// the bench's own error ([`ControlError::fault`]); its message names the instrument once.
+#[derive(Debug, Clone, thiserror::Error)]
 #[error("instrument '{instrument}': {detail}")]
 pub struct ControlError {
     pub instrument: String,
-    pub detail: String,
+    detail: Detail,
+}
+
+impl ControlError {
+    /// A failure described in plain text.
+    pub fn new(instrument: impl Into<String>, detail: impl Into<String>) -> ControlError {
+        ControlError {
+            instrument: instrument.into(),
+            detail: Detail::Text(detail.into()),
+        }
+    }
+
+    /// A failure carrying the bench's own error.
+    pub fn from_fault(instrument: impl Into<String>, fault: impl InstrumentFault) -> ControlError {
+        ControlError {
+            instrument: instrument.into(),
+            detail: Detail::Fault(Arc::new(fault)),
+        }
+    }
+
+    /// What went wrong, without the instrument name.
+    pub fn detail(&self) -> String {
+        self.detail.to_string()
+    }
+
+    /// The bench's own error, when it gave one (downcast it to the bench's error type).
+    pub fn fault(&self) -> Option<&(dyn std::error::Error + Send + Sync + 'static)> {
+        match &self.detail {
+            Detail::Text(_) => None,
+            Detail::Fault(e) => Some(&**e as &(dyn std::error::Error + Send + Sync + 'static)),
+        }
+    }
+}
+
+/// Two control errors are equal when they name the same instrument and read the same.
+impl PartialEq for ControlError {
+    fn eq(&self, other: &ControlError) -> bool {
+        self.instrument == other.instrument && self.detail() == other.detail()
+    }
 }
 
 /// What the runner needs from a bench. Every method that talks to an instrument is async.

@@ -85,7 +85,7 @@ proptest! {
             cut -= 1;
         }
         let text = format!("{}{}{}", &base[..cut], junk, &base[cut..]);
-        if let Err(regulus::bench::BenchError::Config { line, .. }) = BenchConfig::parse(&text, "x.toml") {
+        if let Err(regulus::bench::BenchError::Config(regulus::config::Located { line: Some(line), .. })) = BenchConfig::parse(&text, "x.toml") {
             prop_assert!(line >= 1 && line <= text.lines().count().max(1) + 1);
         }
     }

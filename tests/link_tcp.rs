@@ -448,7 +448,7 @@ fn load_modes_render_their_commands() {
             .await
             .unwrap_err();
         assert_eq!(e.instrument, "cc-only");
-        assert!(e.detail.contains("load_set_resistance"), "{e}");
+        assert!(e.detail().contains("load_set_resistance"), "{e}");
         assert!(c.safe_state().await.is_empty());
     });
     std::thread::sleep(Duration::from_millis(50));

@@ -3,9 +3,9 @@
 //! the traffic log. Knows nothing of other instruments.
 
 use super::config::{InstrumentConfig, LinkConfig, ReadingStyle, StreamPick};
-use super::BenchError;
+use super::{BenchError, IoCause};
 use crate::measure::{Reading, Role};
-use crate::protocol::Template;
+use crate::protocol::{ReplyError, Template};
 use crate::transport::{
     open_serial, open_tcp, BoxTransport, LineReader, LineWriter, LinkError, OpenError, TrafficLog,
 };
@@ -73,30 +73,26 @@ pub async fn connect(cfg: &InstrumentConfig) -> Result<BoxTransport, BenchError>
                 OpenError::Missing => BenchError::PortMissing { instrument, port },
                 OpenError::PermissionDenied => BenchError::PermissionDenied { instrument, port },
                 OpenError::Busy => BenchError::PortBusy { instrument, port },
-                other => BenchError::Open {
+                error => BenchError::Open {
                     instrument,
                     link: cfg.link.describe(),
-                    detail: other.to_string(),
+                    error,
                 },
             }
         }),
-        LinkConfig::Tcp {
-            host,
-            port,
-            connect_timeout,
-        } => open_tcp(host, *port, *connect_timeout).await.map_err(|e| {
-            let addr = format!("{host}:{port}");
+        LinkConfig::Tcp(t) => open_tcp(t).await.map_err(|e| {
+            let addr = format!("{}:{}", t.host, t.port);
             match e {
                 OpenError::Refused => BenchError::ConnectionRefused { instrument, addr },
                 OpenError::Timeout => BenchError::ConnectTimeout {
                     instrument,
                     addr,
-                    ms: connect_timeout.as_millis(),
+                    ms: t.connect_timeout.as_millis(),
                 },
-                other => BenchError::Open {
+                error => BenchError::Open {
                     instrument,
                     link: cfg.link.describe(),
-                    detail: other.to_string(),
+                    error,
                 },
             }
         }),
@@ -110,12 +106,10 @@ impl Instrument {
         let log = match &cfg.traffic_log {
             None => None,
             Some(p) => Some(Arc::new(TrafficLog::open(p).map_err(|e| {
-                BenchError::Command {
+                BenchError::TrafficLog {
                     instrument: cfg.name.clone(),
-                    detail: format!(
-                        "cannot open traffic log {}: {e}; check the traffic_log path",
-                        p.display()
-                    ),
+                    path: p.clone(),
+                    error: IoCause::new(e),
                 }
             })?)),
         };
@@ -202,11 +196,13 @@ impl Instrument {
                 instrument,
                 command,
             },
-            LinkError::Io(detail) => BenchError::Io {
-                instrument,
-                command,
-                detail,
-            },
+            error @ (LinkError::Io(_) | LinkError::WriteTimeout { .. } | LinkError::Poisoned) => {
+                BenchError::Io {
+                    instrument,
+                    command,
+                    error,
+                }
+            }
         }
     }
 
@@ -246,9 +242,10 @@ impl Instrument {
 
     /// Render and send a template (`value` ignored by templates without placeholder).
     pub async fn send_template(&self, t: &Template, value: f64) -> Result<(), BenchError> {
-        let line = t.render(value).map_err(|e| BenchError::Command {
+        let line = t.render(value).map_err(|error| BenchError::Render {
             instrument: self.cfg.name.clone(),
-            detail: format!("command '{}': {e}", t.source()),
+            template: t.source().to_string(),
+            error,
         })?;
         let mut port = self.port.lock().await;
         self.send_locked(&mut port, &line).await
@@ -323,7 +320,9 @@ impl Instrument {
             port.reader = Some(reader);
             match r {
                 Ok(s) => return Ok(s),
-                Err(e @ (LinkError::Closed | LinkError::Io(_))) => return Err(self.err(q, e)),
+                Err(
+                    e @ (LinkError::Closed | LinkError::Io(_) | LinkError::WriteTimeout { .. }),
+                ) => return Err(self.err(q, e)),
                 Err(e) => last = self.err(q, e),
             }
         }
@@ -425,7 +424,7 @@ impl Instrument {
             self.drain(reader).await.map_err(|e| self.err(cmd, e))?;
             self.send_locked(port, cmd).await?;
             let deadline = Instant::now() + self.cfg.reply_timeout;
-            let mut bad: Option<(String, String)> = None;
+            let mut bad: Option<(String, ReplyError)> = None;
             let outcome = loop {
                 match reader.read_line(deadline).await {
                     Ok(line) => {
@@ -438,7 +437,7 @@ impl Instrument {
                         match self.cfg.reply.parse(&line) {
                             Ok(r) => return Ok(r),
                             // A stray or garbled line: keep listening until the deadline.
-                            Err(e) => bad = Some((line, e.to_string())),
+                            Err(e) => bad = Some((line, e)),
                         }
                     }
                     Err(LinkError::Timeout) => break LinkError::Timeout,
@@ -451,7 +450,7 @@ impl Instrument {
                     command: cmd.to_string(),
                     raw,
                     pattern: self.cfg.reply.pattern_text().to_string(),
-                    reason,
+                    reason: Box::new(reason),
                 },
                 None => self.err(cmd, outcome),
             });
@@ -474,10 +473,7 @@ impl Instrument {
             tokio::pin!(notified);
             notified.as_mut().enable();
             {
-                let st = stream
-                    .state
-                    .lock()
-                    .map_err(|_| LinkError::Io("stream state poisoned".into()))?;
+                let st = stream.state.lock().map_err(|_| LinkError::Poisoned)?;
                 for (t, line) in st.lines.iter() {
                     if let Some(v) = accept(*t, line) {
                         return Ok(v);
@@ -506,7 +502,7 @@ impl Instrument {
         };
         let what = format!("stream ({role})");
         let deadline = Instant::now() + self.cfg.reply_timeout;
-        let mut bad: Option<(String, String)> = None;
+        let mut bad: Option<(String, ReplyError)> = None;
         loop {
             let notified = stream.notify.notified();
             tokio::pin!(notified);
@@ -515,7 +511,7 @@ impl Instrument {
                 let mut st = stream
                     .state
                     .lock()
-                    .map_err(|_| self.err(&what, LinkError::Io("stream state poisoned".into())))?;
+                    .map_err(|_| self.err(&what, LinkError::Poisoned))?;
                 let now = Instant::now();
                 // Stale lines (too old, or from before the last setting change) are dropped
                 // for good.
@@ -559,7 +555,7 @@ impl Instrument {
                         }
                         Err(e) => {
                             if bad.is_none() {
-                                bad = Some((line.clone(), e.to_string()));
+                                bad = Some((line.clone(), e));
                             }
                         }
                     }
@@ -581,7 +577,7 @@ impl Instrument {
                         command: what,
                         raw,
                         pattern: self.cfg.reply.pattern_text().to_string(),
-                        reason,
+                        reason: Box::new(reason),
                     },
                     None => self.err(&what, LinkError::Timeout),
                 });

@@ -19,8 +19,8 @@ pub struct ProbeRow {
     /// `None` when the instrument failed before any role could be read.
     pub role: Option<Role>,
     /// The reading and round-trip time, `Ok(None)` for a role that takes no reading (load,
-    /// source), or the error message.
-    pub outcome: Result<Option<(Reading, Duration)>, String>,
+    /// source), or the error.
+    pub outcome: Result<Option<(Reading, Duration)>, BenchError>,
 }
 
 /// What `probe` found.
@@ -45,7 +45,7 @@ async fn probe_one(cfg: InstrumentConfig) -> (Option<String>, Vec<ProbeRow>) {
         instrument: name.clone(),
         link: link.clone(),
         role: None,
-        outcome: Err(e.to_string()),
+        outcome: Err(e),
     };
     let io = match connect(&cfg).await {
         Ok(io) => io,
@@ -70,7 +70,7 @@ async fn probe_one(cfg: InstrumentConfig) -> (Option<String>, Vec<ProbeRow>) {
             let t0 = Instant::now();
             match inst.read(role).await {
                 Ok(r) => Ok(Some((r, t0.elapsed()))),
-                Err(e) => Err(e.to_string()),
+                Err(e) => Err(e),
             }
         };
         rows.push(ProbeRow {
@@ -188,7 +188,7 @@ pub fn write_probe_table<W: Write>(w: &mut W, report: &ProbeReport) -> std::io::
     for row in &table {
         line(w, [&row[0], &row[1], &row[2], &row[3], &row[4]])?;
     }
-    let failures: Vec<&String> = report
+    let failures: Vec<&BenchError> = report
         .rows
         .iter()
         .filter_map(|r| r.outcome.as_ref().err())
@@ -230,7 +230,10 @@ mod tests {
                     instrument: "eload".into(),
                     link: "serial /dev/pts/3 @ 9600 8N1".into(),
                     role: None,
-                    outcome: Err("instrument 'eload': connection closed".into()),
+                    outcome: Err(BenchError::Command {
+                        instrument: "eload".into(),
+                        detail: "connection closed".into(),
+                    }),
                 },
             ],
         };

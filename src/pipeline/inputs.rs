@@ -118,7 +118,7 @@ pub fn prepare(req: &RunRequest) -> Result<Prepared, PipelineError> {
     let bench_text = bench_file.text().ok_or_else(|| {
         PipelineError::from(crate::bench::BenchError::ReadFile {
             path: bench_file.label(),
-            detail: not_utf8().to_string(),
+            error: crate::transport::IoCause::new(not_utf8()),
         })
     })?;
     let bench = BenchConfig::parse_file(bench_text, &req.bench)?;

@@ -3,6 +3,7 @@
 //! calls, and caps line length so garbage without a terminator cannot grow memory; a writer
 //! that appends the terminator; and an optional timestamped traffic log.
 
+use super::IoCause;
 use std::io::Write as _;
 use std::path::Path;
 use std::pin::Pin;
@@ -16,14 +17,20 @@ use tokio::time::Instant;
 pub const MAX_LINE: usize = 4096;
 
 /// Why a line could not be read or written.
-#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum LinkError {
     #[error("no complete line before the deadline")]
     Timeout,
     #[error("the link was closed by the other end")]
     Closed,
+    /// The link's own I/O error.
     #[error("{0}")]
-    Io(String),
+    Io(IoCause),
+    #[error("write did not complete within {ms} ms (flow control holding the line?)")]
+    WriteTimeout { ms: u128 },
+    /// A reader task of this link panicked while holding its state.
+    #[error("stream state poisoned")]
+    Poisoned,
 }
 
 fn io_err(e: std::io::Error) -> LinkError {
@@ -33,7 +40,7 @@ fn io_err(e: std::io::Error) -> LinkError {
         | std::io::ErrorKind::ConnectionReset
         | std::io::ErrorKind::ConnectionAborted
         | std::io::ErrorKind::NotConnected => LinkError::Closed,
-        _ => LinkError::Io(e.to_string()),
+        _ => LinkError::Io(IoCause::new(e)),
     }
 }
 
@@ -198,10 +205,9 @@ impl<W: AsyncWrite + Unpin> LineWriter<W> {
             self.dst.flush().await
         };
         match tokio::time::timeout(timeout, fut).await {
-            Err(_) => Err(LinkError::Io(format!(
-                "write did not complete within {} ms (flow control holding the line?)",
-                timeout.as_millis()
-            ))),
+            Err(_) => Err(LinkError::WriteTimeout {
+                ms: timeout.as_millis(),
+            }),
             Ok(Err(e)) => Err(io_err(e)),
             Ok(Ok(())) => Ok(()),
         }

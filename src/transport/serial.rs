@@ -1,18 +1,18 @@
 //! Serial links through tokio-serial (pseudo-terminals work the same way). Opening is exclusive,
 //! so a second program on the same port is reported as busy.
 
+use super::link::{DataBits, FlowControl, Parity, SerialSettings, StopBits};
 use super::{BoxTransport, OpenError};
-use crate::bench::{FlowControl, Parity, SerialSettings};
 use std::time::Duration;
 use tokio_serial::SerialPortBuilderExt;
 
 /// Open a serial port with the given line settings. Needs a running tokio runtime.
 pub fn open_serial(s: &SerialSettings) -> Result<BoxTransport, OpenError> {
     let data_bits = match s.data_bits {
-        5 => tokio_serial::DataBits::Five,
-        6 => tokio_serial::DataBits::Six,
-        7 => tokio_serial::DataBits::Seven,
-        _ => tokio_serial::DataBits::Eight,
+        DataBits::Five => tokio_serial::DataBits::Five,
+        DataBits::Six => tokio_serial::DataBits::Six,
+        DataBits::Seven => tokio_serial::DataBits::Seven,
+        DataBits::Eight => tokio_serial::DataBits::Eight,
     };
     let parity = match s.parity {
         Parity::None => tokio_serial::Parity::None,
@@ -20,8 +20,8 @@ pub fn open_serial(s: &SerialSettings) -> Result<BoxTransport, OpenError> {
         Parity::Even => tokio_serial::Parity::Even,
     };
     let stop_bits = match s.stop_bits {
-        2 => tokio_serial::StopBits::Two,
-        _ => tokio_serial::StopBits::One,
+        StopBits::One => tokio_serial::StopBits::One,
+        StopBits::Two => tokio_serial::StopBits::Two,
     };
     let flow = match s.flow_control {
         FlowControl::None => tokio_serial::FlowControl::None,
@@ -31,7 +31,7 @@ pub fn open_serial(s: &SerialSettings) -> Result<BoxTransport, OpenError> {
     if !std::path::Path::new(&s.port).exists() && s.port.starts_with('/') {
         return Err(OpenError::Missing);
     }
-    let stream = tokio_serial::new(&s.port, s.baud)
+    let stream = tokio_serial::new(&s.port, s.baud.get())
         .data_bits(data_bits)
         .parity(parity)
         .stop_bits(stop_bits)

@@ -1,20 +1,19 @@
 //! Raw TCP socket links (LAN instruments commonly listen on port 5025).
 
-use super::{BoxTransport, OpenError};
-use std::time::Duration;
+use super::{BoxTransport, IoCause, OpenError, TcpSettings};
 use tokio::net::TcpStream;
 
-/// Connect to `host:port` within `timeout`.
-pub async fn open_tcp(host: &str, port: u16, timeout: Duration) -> Result<BoxTransport, OpenError> {
-    let connect = TcpStream::connect((host, port));
-    let stream = match tokio::time::timeout(timeout, connect).await {
+/// Connect to the settings' `host:port` within their connect timeout.
+pub async fn open_tcp(s: &TcpSettings) -> Result<BoxTransport, OpenError> {
+    let connect = TcpStream::connect((s.host.as_str(), s.port.get()));
+    let stream = match tokio::time::timeout(s.connect_timeout, connect).await {
         Err(_) => return Err(OpenError::Timeout),
         Ok(Err(e)) => {
             return Err(match e.kind() {
                 std::io::ErrorKind::ConnectionRefused => OpenError::Refused,
                 std::io::ErrorKind::TimedOut => OpenError::Timeout,
                 std::io::ErrorKind::PermissionDenied => OpenError::PermissionDenied,
-                _ => OpenError::Other(e.to_string()),
+                _ => OpenError::Io(IoCause::new(e)),
             })
         }
         Ok(Ok(s)) => s,

@@ -186,10 +186,7 @@ impl FakeBench {
     }
 
     fn err(&self, instrument: &str, detail: &str) -> ControlError {
-        ControlError {
-            instrument: instrument.to_string(),
-            detail: detail.to_string(),
-        }
+        ControlError::new(instrument, detail)
     }
 
     fn powered(&self) -> bool {

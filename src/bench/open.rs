@@ -1,0 +1,244 @@
+//! An open bench: every instrument of a checked bench file connected, initialised and
+//! identified; reads all measuring roles concurrently (one task per instrument), sends settings
+//! through the command-key table and runs the safe state. Knows nothing of plans or records.
+
+use super::config::{BenchConfig, CommandKey};
+use super::instrument::{connect, Instrument};
+use super::BenchError;
+use crate::measure::{LoadMode, Measurement, Reading, Role};
+use crate::transport::BoxTransport;
+use std::sync::Arc;
+use std::time::Duration;
+use tokio::task::JoinSet;
+use tokio::time::Instant;
+
+/// An open bench: every instrument connected, initialised and identified.
+pub struct Bench {
+    config: BenchConfig,
+    instruments: Vec<Arc<Instrument>>,
+}
+
+impl Bench {
+    /// Connect every instrument of a checked bench file, send each init sequence and identity
+    /// query. On failure, instruments already opened get their safe state before the error
+    /// is returned. Must run inside a tokio runtime (with I/O and time enabled).
+    pub async fn open(cfg: &BenchConfig) -> Result<Bench, BenchError> {
+        let mut links = Vec::with_capacity(cfg.instruments.len());
+        for inst in &cfg.instruments {
+            links.push(connect(inst).await?);
+        }
+        Bench::with_transports(cfg, links).await
+    }
+
+    /// Like [`Bench::open`] over links opened elsewhere (one per instrument, in file order),
+    /// e.g. in-memory links for benchmarks.
+    pub async fn with_transports(
+        cfg: &BenchConfig,
+        links: Vec<BoxTransport>,
+    ) -> Result<Bench, BenchError> {
+        if links.len() != cfg.instruments.len() {
+            return Err(BenchError::Command {
+                instrument: "bench".into(),
+                detail: format!(
+                    "{} links given for {} instruments",
+                    links.len(),
+                    cfg.instruments.len()
+                ),
+            });
+        }
+        let mut instruments = Vec::with_capacity(links.len());
+        for (c, io) in cfg.instruments.iter().zip(links) {
+            instruments.push(Arc::new(Instrument::new(c.clone(), io)?));
+        }
+        let bench = Bench {
+            config: cfg.clone(),
+            instruments,
+        };
+        // Init and identity, all instruments concurrently.
+        let mut set = JoinSet::new();
+        for (i, inst) in bench.instruments.iter().enumerate() {
+            let inst = Arc::clone(inst);
+            set.spawn(async move { (i, inst.initialise().await) });
+        }
+        let mut first: Option<(usize, BenchError)> = None;
+        while let Some(done) = set.join_next().await {
+            if let Ok((i, Err(e))) = done {
+                if first.as_ref().is_none_or(|(j, _)| i < *j) {
+                    first = Some((i, e));
+                }
+            }
+        }
+        if let Some((_, e)) = first {
+            let _ = bench.run_safe_state().await;
+            return Err(e);
+        }
+        Ok(bench)
+    }
+
+    pub fn config(&self) -> &BenchConfig {
+        &self.config
+    }
+
+    pub fn instruments(&self) -> &[Arc<Instrument>] {
+        &self.instruments
+    }
+
+    fn holder(&self, role: Role) -> Result<&Arc<Instrument>, BenchError> {
+        self.instruments
+            .iter()
+            .find(|i| i.cfg.roles.contains(&role))
+            .ok_or(BenchError::NoRole { role })
+    }
+
+    /// Read one measuring role, with the time it took.
+    pub async fn read_role(&self, role: Role) -> Result<(Reading, Duration), BenchError> {
+        let inst = self.holder(role)?;
+        let t0 = Instant::now();
+        let r = inst.read(role).await?;
+        Ok((r, t0.elapsed()))
+    }
+
+    /// Read every measuring role once: one task per instrument, all instruments at the same
+    /// time (a step costs the slowest instrument, not the sum). Roles of one instrument are
+    /// read one after the other on its port. Returns the first failure, after all finished.
+    pub async fn read_all(&self) -> Result<Measurement, BenchError> {
+        let mut set = JoinSet::new();
+        for (i, inst) in self.instruments.iter().enumerate() {
+            let roles: Vec<Role> = inst.cfg.measuring_roles().collect();
+            if roles.is_empty() {
+                continue;
+            }
+            let inst = Arc::clone(inst);
+            set.spawn(async move {
+                let mut out = Vec::with_capacity(roles.len());
+                for role in roles {
+                    match inst.read(role).await {
+                        Ok(r) => out.push((role, r)),
+                        Err(e) => return (i, Err(e)),
+                    }
+                }
+                (i, Ok(out))
+            });
+        }
+        let mut m = Measurement::default();
+        // Report the failure of the first instrument in file order (deterministic).
+        let mut first: Option<(usize, BenchError)> = None;
+        while let Some(done) = set.join_next().await {
+            let (i, res) = match done {
+                Ok(x) => x,
+                Err(join) => (
+                    usize::MAX,
+                    Err(BenchError::Command {
+                        instrument: "bench".into(),
+                        detail: format!("reading task failed: {join}"),
+                    }),
+                ),
+            };
+            match res {
+                Ok(rows) => {
+                    for (role, r) in rows {
+                        if let Some(q) = role.quantity() {
+                            m.set(q, r);
+                        }
+                    }
+                }
+                Err(e) => {
+                    if first.as_ref().is_none_or(|(j, _)| i < *j) {
+                        first = Some((i, e));
+                    }
+                }
+            }
+        }
+        match first {
+            Some((_, e)) => Err(e),
+            None => Ok(m),
+        }
+    }
+
+    /// Run every instrument's safe-state sequence: loads first, then sources, then the rest,
+    /// continuing past failures. Returns the failures.
+    pub async fn run_safe_state(&self) -> Vec<BenchError> {
+        let rank = |i: &Instrument| {
+            if i.cfg.roles.contains(&Role::Load) {
+                0
+            } else if i.cfg.roles.contains(&Role::InputSource) {
+                1
+            } else {
+                2
+            }
+        };
+        let mut order: Vec<&Arc<Instrument>> = self.instruments.iter().collect();
+        order.sort_by_key(|i| rank(i));
+        let mut errors = Vec::new();
+        for inst in order {
+            errors.extend(inst.safe_state().await);
+        }
+        errors
+    }
+
+    /// Tell streaming instruments that the operating point changed now (even after a failed
+    /// command, which may have been acted on).
+    pub(super) fn settings_changed(&self) {
+        let now = tokio::time::Instant::now();
+        for inst in &self.instruments {
+            inst.setting_changed(now);
+        }
+    }
+
+    pub(super) async fn set_load_inner(
+        &self,
+        mode: LoadMode,
+        value: f64,
+    ) -> Result<(), BenchError> {
+        let inst = self.holder(Role::Load)?;
+        let c = &inst.cfg.commands;
+        let (mode_key, set_key) = CommandKey::load_mode(mode);
+        let Some(set_cmd) = c.get(set_key) else {
+            return Err(BenchError::Command {
+                instrument: inst.cfg.name.clone(),
+                detail: format!(
+                    "{} mode is not available: add {} under [instrument.commands]",
+                    mode.as_str().to_uppercase(),
+                    set_key.name()
+                ),
+            });
+        };
+        if let Some(m) = c.get(mode_key) {
+            inst.send_template(m, 0.0).await?;
+        }
+        inst.send_template(set_cmd, value).await?;
+        inst.confirm().await
+    }
+
+    pub(super) async fn switch(&self, role: Role, on: bool) -> Result<(), BenchError> {
+        let inst = self.holder(role)?;
+        let key = CommandKey::switch(role, on);
+        match inst.cfg.commands.get(key) {
+            Some(t) => {
+                inst.send_template(t, 0.0).await?;
+                inst.confirm().await
+            }
+            None => Err(BenchError::Command {
+                instrument: inst.cfg.name.clone(),
+                detail: format!(
+                    "no {} command: add it under [instrument.commands]",
+                    key.name()
+                ),
+            }),
+        }
+    }
+
+    pub(super) async fn set_source_inner(&self, volts: f64) -> Result<(), BenchError> {
+        let inst = self.holder(Role::InputSource)?;
+        match inst.cfg.commands.get(CommandKey::SourceSetVoltage) {
+            Some(t) => {
+                inst.send_template(t, volts).await?;
+                inst.confirm().await
+            }
+            None => Err(BenchError::Command {
+                instrument: inst.cfg.name.clone(),
+                detail: "no source_set_voltage command".into(),
+            }),
+        }
+    }
+}

@@ -1,0 +1,64 @@
+//! The byte-link abstraction every transport yields ([`Transport`], boxed as [`BoxTransport`])
+//! why a link could not be opened ([`OpenError`]), and [`IoCause`], an I/O error kept whole
+//! inside the (cloneable) link errors. No I/O here.
+
+use std::fmt;
+use std::sync::Arc;
+use tokio::io::{AsyncRead, AsyncWrite};
+
+/// Anything we can read bytes from and write bytes to, as one owned value.
+pub trait Transport: AsyncRead + AsyncWrite + Unpin + Send + 'static {}
+
+impl<T: AsyncRead + AsyncWrite + Unpin + Send + 'static> Transport for T {}
+
+/// A transport behind a box, as the bench holds it.
+pub type BoxTransport = Box<dyn Transport>;
+
+/// An I/O error kept whole and shareable (link and bench errors are `Clone`); two are equal when they
+/// are of the same kind and read the same.
+#[derive(Debug, Clone)]
+pub struct IoCause(pub Arc<std::io::Error>);
+
+impl IoCause {
+    pub fn new(e: std::io::Error) -> IoCause {
+        IoCause(Arc::new(e))
+    }
+
+    /// The I/O error itself.
+    pub fn get(&self) -> &std::io::Error {
+        &self.0
+    }
+}
+
+impl PartialEq for IoCause {
+    fn eq(&self, other: &IoCause) -> bool {
+        self.0.kind() == other.0.kind() && self.0.to_string() == other.0.to_string()
+    }
+}
+
+impl fmt::Display for IoCause {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}", self.0)
+    }
+}
+
+/// Why a link could not be opened, sorted by what the user should check.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum OpenError {
+    #[error("no such port")]
+    Missing,
+    #[error("permission denied")]
+    PermissionDenied,
+    #[error("port busy")]
+    Busy,
+    #[error("connection refused")]
+    Refused,
+    #[error("connection attempt timed out")]
+    Timeout,
+    /// Another failure of the network connection.
+    #[error("{0}")]
+    Io(IoCause),
+    /// Another failure of the serial port, as the serial library describes it.
+    #[error("{0}")]
+    Other(String),
+}
