@@ -21,4 +21,6 @@ pub mod rng;
 pub mod runner;
 pub mod sim;
 pub mod spice;
+#[cfg(any(test, feature = "testkit"))]
+pub mod testkit;
 pub mod transport;
