@@ -2,10 +2,12 @@
 //! standard plan on two simulated units over real pseudo-terminals and loopback TCP, and the
 //! unit with a wrong sense resistor fails with that part named.
 
+use crate::support::lock::serial;
 use std::process::Command;
 
 #[test]
 fn demo_passes_the_good_unit_and_names_the_wrong_part() {
+    let _g = serial();
     let tmp = tempfile::tempdir().unwrap();
     let records = tmp.path().join("demo");
     let out = Command::new(env!("CARGO_BIN_EXE_regulus"))

@@ -3,6 +3,7 @@
 //! (instrument failure) as docs/ARCHITECTURE.md defines them.
 
 use crate::support::link::{reply, tcp_responder, Act};
+use crate::support::lock::serial;
 use std::process::Command;
 
 fn regulus() -> Command {
@@ -11,6 +12,7 @@ fn regulus() -> Command {
 
 #[test]
 fn probe_prints_identity_readings_and_exits_0() {
+    let _g = serial();
     let dmm = tcp_responder(|line| match line {
         "*IDN?" => reply("Regulus Simulated Bench,DMM-1,SN0042,1.0.3"),
         "MEAS:VOLT:DC?" => reply("+1.20034E+01"),
@@ -77,6 +79,7 @@ fn probe_prints_identity_readings_and_exits_0() {
 
 #[test]
 fn probe_of_a_bad_bench_file_exits_2_with_its_position() {
+    let _g = serial();
     let dir = tempfile::tempdir().unwrap();
     let bench = dir.path().join("bad.toml");
     std::fs::write(
@@ -97,6 +100,7 @@ fn probe_of_a_bad_bench_file_exits_2_with_its_position() {
 
 #[test]
 fn probe_with_a_dead_instrument_exits_3_and_says_what_to_check() {
+    let _g = serial();
     let port = {
         let l = std::net::TcpListener::bind("127.0.0.1:0").unwrap();
         l.local_addr().unwrap().port()
@@ -123,6 +127,7 @@ fn probe_with_a_dead_instrument_exits_3_and_says_what_to_check() {
 
 #[test]
 fn probe_of_an_unknown_instrument_name_exits_2() {
+    let _g = serial();
     let dir = tempfile::tempdir().unwrap();
     let bench = dir.path().join("bench.toml");
     std::fs::write(

@@ -4,6 +4,7 @@
 use crate::support::link::{
     pty_pair, pty_responder, pty_streamer, reply, runtime, tcp_responder, Act,
 };
+use crate::support::lock::serial;
 use regulus::bench::{Bench, BenchConfig, BenchError};
 use regulus::control::BenchControl;
 use regulus::measure::{Quantity, Reading, Role};
@@ -23,6 +24,7 @@ fn serial_instrument(name: &str, roles: &str, preset: &str, path: &str, extra: &
 // practice on serial instruments.
 #[test]
 fn query_meter_over_a_pseudo_terminal() {
+    let _g = serial();
     let meter = pty_responder(|line| match line {
         "*IDN?" => reply("Regulus Simulated Bench,DMM-1,SN0001,0.9\r"),
         "MEAS:VOLT:DC?" => reply("+1.20034E+01\r"),
@@ -60,6 +62,7 @@ const STREAM_BENCH_EXTRA: &str = "identity_query = \"\"\nreply_timeout_ms = 2000
 /// and lines of another quantity that the tag filter must ignore.
 #[test]
 fn streaming_meter_lines_are_averaged_and_filtered() {
+    let _g = serial();
     let lines = vec![
         "DCV +12.0340 V OK\n".to_string(),
         "DCV +12.03".to_string(), // partial line: the rest follows in the next write
@@ -90,6 +93,7 @@ fn streaming_meter_lines_are_averaged_and_filtered() {
 
 #[test]
 fn streamed_overrange_status_is_overrange() {
+    let _g = serial();
     let meter = pty_streamer(
         vec!["DCV +99.9999 V OL\n".to_string()],
         Duration::from_millis(5),
@@ -113,6 +117,7 @@ fn streamed_overrange_status_is_overrange() {
 /// Lines older than max_age are stale: a meter that went quiet gives no reading.
 #[test]
 fn stale_stream_lines_are_not_used() {
+    let _g = serial();
     let meter = pty_streamer(
         vec!["DCV +5.0000 V OK\n".to_string(); 3],
         Duration::from_millis(1),
@@ -148,6 +153,7 @@ fn stale_stream_lines_are_not_used() {
 /// must not average it in.
 #[test]
 fn stream_lines_from_before_a_setting_change_are_not_used() {
+    let _g = serial();
     let meter = pty_streamer(
         vec!["DCV +5.0000 V OK\n".to_string(); 3],
         Duration::from_millis(1),
@@ -196,6 +202,7 @@ fn stream_lines_from_before_a_setting_change_are_not_used() {
 
 #[test]
 fn a_missing_serial_port_is_named() {
+    let _g = serial();
     let cfg = config(&serial_instrument(
         "dmm",
         "\"output_voltmeter\"",
@@ -218,6 +225,7 @@ fn a_missing_serial_port_is_named() {
 
 #[test]
 fn a_port_held_by_another_program_is_busy() {
+    let _g = serial();
     let (_master, _slave, path) = pty_pair();
     // Another program holds the port exclusively.
     let _holder = serialport::new(&path, 9600)
@@ -240,6 +248,7 @@ fn a_port_held_by_another_program_is_busy() {
 
 #[test]
 fn silence_on_a_serial_port_is_a_timeout() {
+    let _g = serial();
     let meter = pty_responder(|line| match line {
         "*IDN?" => reply("Regulus Simulated Bench,TH-1,SN0004,1.0"),
         _ => Act::Silent,
@@ -277,6 +286,7 @@ fn silence_on_a_serial_port_is_a_timeout() {
 /// One streaming meter holding two roles: lines are routed by their tag.
 #[test]
 fn stream_tags_route_lines_to_roles() {
+    let _g = serial();
     let meter = pty_streamer(
         vec![
             "DCV +12.0000 V OK\n".to_string(),

@@ -2,6 +2,7 @@
 //! concurrent reads, garbage, timeouts, closed and refused connections, safe state.
 
 use crate::support::link::{reply, runtime, tcp_responder, Act};
+use crate::support::lock::serial;
 use regulus::bench::{Bench, BenchConfig, BenchError};
 use regulus::control::BenchControl;
 use regulus::measure::{LoadMode, Quantity, Reading, Role};
@@ -38,6 +39,7 @@ fn canned_meter(replies: Vec<&str>) -> crate::support::link::Responder {
 // 7.2.1.5 (9.9E37 = overrange); SI prefixes from the BIPM SI Brochure, table 7.
 #[test]
 fn reply_forms_of_scpi_instruments_are_read() {
+    let _g = serial();
     let cases: Vec<(&str, Reading)> = vec![
         ("+1.20034E+01", Reading::Value(12.0034)), // NR3 as the simulated bench sends it
         ("12", Reading::Value(12.0)),              // NR1
@@ -77,6 +79,7 @@ fn reply_forms_of_scpi_instruments_are_read() {
 
 #[test]
 fn a_meter_reporting_milliamperes_is_scaled() {
+    let _g = serial();
     let meter = canned_meter(vec!["250", "1500"]);
     let cfg = config(&instrument(
         "ma-meter",
@@ -101,6 +104,7 @@ fn a_meter_reporting_milliamperes_is_scaled() {
 // IEEE 488.2 section 10.14: the *IDN? reply is maker, model, serial number, firmware.
 #[test]
 fn identity_is_queried_on_open_and_split_into_its_fields() {
+    let _g = serial();
     let meter = canned_meter(vec![]);
     let cfg = config(&instrument(
         "dmm",
@@ -135,6 +139,7 @@ fn identity_is_queried_on_open_and_split_into_its_fields() {
 /// own wait and answers with a line that cannot be parsed, so a sequential reader fails.
 #[test]
 fn all_meters_of_a_step_are_read_concurrently() {
+    let _g = serial();
     const K: usize = 4;
     let gate = Arc::new((Mutex::new(0usize), Condvar::new()));
     let roles = [
@@ -189,6 +194,7 @@ fn all_meters_of_a_step_are_read_concurrently() {
 
 #[test]
 fn stray_lines_before_the_reply_are_skipped() {
+    let _g = serial();
     let meter = tcp_responder(|line| match line {
         "*IDN?" => reply(IDN),
         _ => Act::Send(b"\r\n#noise#\n+3.30000E+00\n".to_vec()),
@@ -209,6 +215,7 @@ fn stray_lines_before_the_reply_are_skipped() {
 
 #[test]
 fn garbage_reply_names_instrument_command_raw_line_and_pattern() {
+    let _g = serial();
     let meter = tcp_responder(|line| match line {
         "*IDN?" => reply(IDN),
         _ => Act::Send(b"\x01\xffVOLTS??\n".to_vec()),
@@ -243,6 +250,7 @@ fn garbage_reply_names_instrument_command_raw_line_and_pattern() {
 
 #[test]
 fn silence_is_a_timeout_naming_the_command() {
+    let _g = serial();
     let meter = tcp_responder(|line| match line {
         "*IDN?" => reply(IDN),
         _ => Act::Silent,
@@ -272,6 +280,7 @@ fn silence_is_a_timeout_naming_the_command() {
 
 #[test]
 fn a_closed_connection_is_reported_not_a_panic() {
+    let _g = serial();
     let meter = tcp_responder(|line| match line {
         "*IDN?" => reply(IDN),
         _ => Act::Close,
@@ -294,6 +303,7 @@ fn a_closed_connection_is_reported_not_a_panic() {
 
 #[test]
 fn a_refused_connection_says_what_to_check() {
+    let _g = serial();
     let port = {
         let l = std::net::TcpListener::bind("127.0.0.1:0").unwrap();
         l.local_addr().unwrap().port()
@@ -322,6 +332,7 @@ fn a_refused_connection_says_what_to_check() {
 /// reported, so the user checks it by hand).
 #[test]
 fn safe_state_reaches_every_instrument_when_one_fails() {
+    let _g = serial();
     // Both answer *OPC? as IEEE 488.2 instruments do (the presets confirm settings with it).
     let load = tcp_responder(|line| match line {
         "*IDN?" => reply("Regulus Simulated Bench,LOAD-2,SN0002,1.0"),
@@ -409,6 +420,7 @@ fn safe_state_reaches_every_instrument_when_one_fails() {
 /// with the key to add.
 #[test]
 fn load_modes_render_their_commands() {
+    let _g = serial();
     let load = tcp_responder(|line| match line {
         "*IDN?" => reply("Regulus Simulated Bench,LOAD-2,SN0002,1.0"),
         _ => Act::Silent,
@@ -471,6 +483,7 @@ fn load_modes_render_their_commands() {
 /// (A lower bound only, so a slow machine cannot make this fail.)
 #[test]
 fn command_gap_spaces_commands() {
+    let _g = serial();
     let load = tcp_responder(|line| match line {
         "*IDN?" => reply("Regulus Simulated Bench,LOAD-2,SN0002,1.0"),
         _ => Act::Silent,

@@ -4,6 +4,7 @@
 //! judge the records it wrote. The demo runs as its own process, so this test creates no
 //! pseudo-terminals itself.
 
+use crate::support::lock::serial;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -28,6 +29,7 @@ fn record_of(records: &Path, unit: &str) -> PathBuf {
 
 #[test]
 fn simulated_units_are_judged_and_the_wrong_sense_resistor_is_named() {
+    let _g = serial();
     let tmp = tempfile::tempdir().unwrap();
     let out = regulus(&["demo", "--records", "out"], tmp.path());
     assert_eq!(

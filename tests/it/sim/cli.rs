@@ -1,6 +1,7 @@
 //! `regulus sim` as a user runs it: ports and true values printed, a bench file written,
 //! configuration errors exit 2.
 
+use crate::support::lock::serial;
 use std::process::Command;
 
 fn regulus() -> Command {
@@ -13,6 +14,7 @@ fn sample(name: &str) -> String {
 
 #[test]
 fn sim_prints_ports_truth_and_writes_the_bench_file() {
+    let _g = serial();
     let dir = tempfile::tempdir().unwrap();
     let bench = dir.path().join("bench.toml");
     let out = regulus()
@@ -59,6 +61,7 @@ fn sim_prints_ports_truth_and_writes_the_bench_file() {
 
 #[test]
 fn sim_config_errors_exit_2() {
+    let _g = serial();
     let design = sample("teaching-lab-0-20v.toml");
     for bad in [
         vec!["--fault", "sense=-1"],
@@ -105,6 +108,7 @@ fn sim_config_errors_exit_2() {
 
 #[test]
 fn sim_runs_until_interrupted_then_closes_its_ports() {
+    let _g = serial();
     use std::io::{BufRead, BufReader};
     use std::process::Stdio;
     /// Ends the simulator if the test fails before interrupting it.

@@ -1,6 +1,7 @@
 //! A test plan run by the `regulus` binary against the simulated bench: what the real bench
 //! stack measures over pseudo-terminals and TCP agrees with the as-built unit's true values.
 
+use crate::support::lock::serial;
 use regulus::design::Design;
 use regulus::sim::{SimBench, SimOptions};
 use std::process::Command;
@@ -18,6 +19,7 @@ fn col(header: &[&str], name: &str) -> usize {
 
 #[test]
 fn knee_located_through_the_bench_matches_the_true_knee() {
+    let _g = serial();
     let design_path = sample("fixed-12v-3a-foldback.toml");
     let design = Design::load(std::path::Path::new(&design_path)).unwrap();
     let sim = SimBench::start(&design, SimOptions::default().seed(31)).unwrap();
