@@ -1,38 +1,12 @@
 //! Plan benchmarks: knee-search point count and accuracy against a linear sweep of equal
-//! resolution on a synthetic supply curve (printed once), the time one knee search takes, and
-//! the time to parse and expand the plan template.
+//! resolution on the test kit's soft-knee supply curve (printed once), the time one knee
+//! search takes, and the time to parse and expand the plan template.
 
 use criterion::{criterion_group, criterion_main, Criterion};
 use regulus::measure::LoadMode;
 use regulus::plan::{DesignTargets, KneeConfig, KneeRequest, KneeSearch, Plan};
+use regulus::testkit::SoftKnee;
 use std::hint::black_box;
-
-/// Synthetic supply: V(I) = V0 - R_out I - S w ln(1 + exp((I - I_L) / w)), floored at zero.
-#[derive(Clone, Copy)]
-struct Curve {
-    i_l: f64,
-}
-
-impl Curve {
-    fn v(&self, i: f64) -> f64 {
-        let (v0, r_out, w, s) = (12.0, 0.02, 0.005, 200.0);
-        let x = (i - self.i_l) / w;
-        let sp = if x > 30.0 { x } else { x.exp().ln_1p() };
-        (v0 - r_out * i - s * w * sp).max(0.0)
-    }
-    fn current_at(&self, v: f64) -> f64 {
-        let (mut a, mut b) = (0.0, 100.0);
-        for _ in 0..200 {
-            let m = 0.5 * (a + b);
-            if self.v(m) > v {
-                a = m
-            } else {
-                b = m
-            }
-        }
-        0.5 * (a + b)
-    }
-}
 
 fn cfg() -> KneeConfig {
     KneeConfig {
@@ -48,7 +22,7 @@ fn cfg() -> KneeConfig {
     }
 }
 
-fn search(c: &Curve) -> (u32, f64) {
+fn search(c: &SoftKnee) -> (u32, f64) {
     let mut ks = KneeSearch::new(cfg());
     while let KneeRequest::Measure { setpoint, .. } = ks.next_setpoint() {
         ks.observe(c.v(setpoint), setpoint);
@@ -59,7 +33,7 @@ fn search(c: &Curve) -> (u32, f64) {
 
 /// Linear sweep from reference to upper in steps of 0.5 % of the expected current; the knee
 /// is the first point below the threshold, interpolated with the one before.
-fn linear(c: &Curve) -> (usize, f64) {
+fn linear(c: &SoftKnee) -> (usize, f64) {
     let k = cfg();
     let step = 0.005 * k.expected_a;
     let v_ref = c.v(k.reference_a);
@@ -82,7 +56,7 @@ fn report_accuracy() {
     println!("knee search vs linear sweep (0.5 % steps), synthetic curve, CC mode:");
     println!("  true I_L   truth(1% drop)   search pts  search err   sweep pts  sweep err");
     for i_l in [0.8, 0.95, 1.0, 1.1, 1.25] {
-        let c = Curve { i_l };
+        let c = SoftKnee::with_knee_at(i_l);
         let truth = c.current_at(0.99 * c.v(0.1));
         let (sp, se) = search(&c);
         let (lp, le) = linear(&c);
@@ -96,7 +70,7 @@ fn report_accuracy() {
 
 fn benches(c: &mut Criterion) {
     report_accuracy();
-    let curve = Curve { i_l: 1.0 };
+    let curve = SoftKnee::with_knee_at(1.0);
     c.bench_function("knee_search_state_machine", |b| {
         b.iter(|| search(black_box(&curve)))
     });

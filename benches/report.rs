@@ -1,8 +1,8 @@
-//! Report speed on SYNTHETIC records (see tests/report_support): analysis plus the full report
-//! (summary.json, SVG plots, report.html) of a 100,000-row record, from disk and in memory
+//! Report speed on SYNTHETIC records (see tests/it/support/report.rs): analysis plus the full
+//! report (summary.json, SVG plots, report.html) of a 100,000-row record, from disk and in memory
 //! (target under 2 s); a unit's history over 10,000 records (target under 1 s).
 
-#[path = "../tests/report_support/mod.rs"]
+#[path = "../tests/it/support/report.rs"]
 mod report_support;
 
 use criterion::{criterion_group, criterion_main, Criterion};

@@ -22,6 +22,8 @@ pub mod rng;
 pub mod runner;
 pub mod sim;
 pub mod spice;
+#[cfg(any(test, feature = "testkit"))]
+pub mod testkit;
 pub mod transport;
 
 #[cfg(test)]

@@ -258,70 +258,9 @@ impl fmt::Display for KneeOutcome {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::testkit::SoftKnee;
 
-    // ---- knee search against a synthetic supply curve --------------------------------------
-
-    /// Synthetic regulated supply: V(I) = V0 - R_out * I - S * w * ln(1 + exp((I - I_L) / w)),
-    /// never below zero. The softplus term gives a soft knee around I_L whose slope tends to
-    /// S beyond it (a current limit of finite sharpness).
-    #[derive(Clone, Copy)]
-    struct Curve {
-        v0: f64,
-        r_out: f64,
-        i_l: f64,
-        w: f64,
-        s: f64,
-    }
-
-    impl Curve {
-        fn v(&self, i: f64) -> f64 {
-            let x = (i - self.i_l) / self.w;
-            let sp = if x > 30.0 { x } else { x.exp().ln_1p() };
-            (self.v0 - self.r_out * i - self.s * self.w * sp).max(0.0)
-        }
-        /// Current at which V(I) = v (V is decreasing), by bisection.
-        fn current_at(&self, v: f64) -> f64 {
-            let (mut a, mut b) = (0.0, 100.0);
-            for _ in 0..200 {
-                let m = 0.5 * (a + b);
-                if self.v(m) > v {
-                    a = m
-                } else {
-                    b = m
-                }
-            }
-            0.5 * (a + b)
-        }
-        /// Operating point with a resistor load.
-        fn with_resistance(&self, r: f64) -> (f64, f64) {
-            let (mut a, mut b) = (0.0, 100.0);
-            for _ in 0..200 {
-                let m = 0.5 * (a + b);
-                if self.v(m) > m * r {
-                    a = m
-                } else {
-                    b = m
-                }
-            }
-            let i = 0.5 * (a + b);
-            (self.v(i), i)
-        }
-        fn measure(&self, mode: LoadMode, setpoint: f64) -> (f64, f64) {
-            match mode {
-                LoadMode::ConstantResistance => self.with_resistance(setpoint),
-                _ => {
-                    let v = self.v(setpoint);
-                    // Collapsed output: the load cannot draw more than the supply gives.
-                    let i = if v <= 0.0 {
-                        self.current_at(1e-9)
-                    } else {
-                        setpoint
-                    };
-                    (v, i)
-                }
-            }
-        }
-    }
+    // ---- knee search against the test kit's soft-knee supply curve ------------------------
 
     fn cfg(mode: LoadMode) -> KneeConfig {
         KneeConfig {
@@ -337,11 +276,11 @@ mod tests {
         }
     }
 
-    fn run_search(curve: &Curve, cfg: KneeConfig, noise_v: f64) -> KneeResult {
+    fn run_search(curve: &SoftKnee, cfg: KneeConfig, noise_v: f64) -> KneeResult {
         let mut ks = KneeSearch::new(cfg);
         let mut rng = crate::rng::Rng::new(7);
         while let KneeRequest::Measure { mode, setpoint } = ks.next_setpoint() {
-            let (v, i) = curve.measure(mode, setpoint);
+            let (v, i) = curve.operate(mode, setpoint);
             ks.observe(v + noise_v * rng.normal(), i);
         }
         ks.result().expect("finished search has a result")
@@ -349,7 +288,7 @@ mod tests {
 
     /// The true limit current under the search's own definition: the current where the
     /// curve crosses (1 - drop) * V at the reference load.
-    fn truth(curve: &Curve, cfg: &KneeConfig) -> f64 {
+    fn truth(curve: &SoftKnee, cfg: &KneeConfig) -> f64 {
         let v_ref = match cfg.mode {
             LoadMode::ConstantResistance => {
                 curve.with_resistance(cfg.vout_hint_v / cfg.reference_a).0
@@ -362,7 +301,7 @@ mod tests {
     /// Points a linear sweep from `reference` to `upper` needs at a step of `resolution` of
     /// the expected current, and the knee it finds (first point below the threshold,
     /// interpolated with the point before it).
-    fn linear_sweep(curve: &Curve, cfg: &KneeConfig) -> (usize, f64) {
+    fn linear_sweep(curve: &SoftKnee, cfg: &KneeConfig) -> (usize, f64) {
         let step = 0.005 * cfg.expected_a;
         let v_ref = curve.v(cfg.reference_a);
         let th = (1.0 - cfg.drop) * v_ref;
@@ -384,7 +323,7 @@ mod tests {
     fn knee_search_finds_knee_within_half_percent_in_twenty_points() {
         for mode in [LoadMode::ConstantResistance, LoadMode::ConstantCurrent] {
             for i_l in [0.7, 0.9, 1.0, 1.04, 1.2, 1.45] {
-                let curve = Curve {
+                let curve = SoftKnee {
                     v0: 12.0,
                     r_out: 0.02,
                     i_l,
@@ -408,7 +347,7 @@ mod tests {
 
     #[test]
     fn linear_sweep_at_equal_resolution_needs_over_200_points() {
-        let curve = Curve {
+        let curve = SoftKnee {
             v0: 12.0,
             r_out: 0.02,
             i_l: 1.0,
@@ -434,7 +373,7 @@ mod tests {
     #[test]
     fn knee_search_tolerates_meter_noise() {
         // 2 mV rms noise on a 12 V output (a 4.5-digit meter's last digit, from memory).
-        let curve = Curve {
+        let curve = SoftKnee {
             v0: 12.0,
             r_out: 0.05,
             i_l: 1.1,
@@ -451,7 +390,7 @@ mod tests {
 
     #[test]
     fn knee_search_reports_no_knee_below_ceiling_and_dead_output() {
-        let strong = Curve {
+        let strong = SoftKnee {
             v0: 12.0,
             r_out: 0.02,
             i_l: 5.0,
@@ -470,7 +409,7 @@ mod tests {
 
     #[test]
     fn knee_search_stops_at_point_budget() {
-        let curve = Curve {
+        let curve = SoftKnee {
             v0: 12.0,
             r_out: 0.02,
             i_l: 1.0,

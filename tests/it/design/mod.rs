@@ -1,0 +1,3 @@
+//! The design model against published formulas and worked examples.
+
+mod model;

@@ -1,0 +1,5 @@
+//! End to end on the simulated bench: the built binary runs plans over real pseudo-terminals and loopback TCP.
+
+mod interlocks;
+mod knee;
+mod run;

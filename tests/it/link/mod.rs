@@ -1,0 +1,6 @@
+//! The bench's links: reply parsing properties, probe, pseudo-terminals and loopback TCP.
+
+mod parse_prop;
+mod probe_cli;
+mod pty;
+mod tcp;

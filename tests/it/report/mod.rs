@@ -1,0 +1,8 @@
+//! Analysis, comparison, drift, the report outputs and the report and history commands.
+
+mod cli;
+mod drift;
+mod html;
+mod outputs;
+mod robust;
+mod sim;

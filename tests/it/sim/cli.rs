@@ -1,0 +1,159 @@
+//! `regulus sim` as a user runs it: ports and true values printed, a bench file written,
+//! configuration errors exit 2.
+
+use crate::support::lock::serial;
+use std::process::Command;
+
+fn regulus() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_regulus"))
+}
+
+fn sample(name: &str) -> String {
+    format!("{}/samples/{name}", env!("CARGO_MANIFEST_DIR"))
+}
+
+#[test]
+fn sim_prints_ports_truth_and_writes_the_bench_file() {
+    let _g = serial();
+    let dir = tempfile::tempdir().unwrap();
+    let bench = dir.path().join("bench.toml");
+    let out = regulus()
+        .args(["sim", "--design", &sample("fixed-12v-3a-foldback.toml")])
+        .args(["--seed", "3", "--run-for", "0.3", "--fault", "sense=0.39"])
+        .args(["--without", "psu"])
+        .arg("--write-bench")
+        .arg(&bench)
+        .arg("--write-truth")
+        .arg(dir.path().join("truth.json"))
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{text}\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    for word in [
+        "dmm",
+        "ammeter",
+        "eload",
+        "thermo",
+        "pseudo-terminal /dev/",
+        "tcp 127.0.0.1:",
+    ] {
+        assert!(text.contains(word), "{word} missing in:\n{text}");
+    }
+    assert!(!text.contains("psu "), "{text}");
+    assert!(text.contains("short-circuit current"), "{text}");
+    assert!(text.contains("sense resistor fitted: 0.39 ohm"), "{text}");
+    assert!(text.contains("ports closed"), "{text}");
+    let written = std::fs::read_to_string(&bench).unwrap();
+    let truth: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("truth.json")).unwrap())
+            .unwrap();
+    // The fault is in the element values: the fitted sense resistor.
+    assert_eq!(truth["params"]["r_sense"].as_f64(), Some(0.39));
+    assert!(truth["short_circuit_current"].as_f64().unwrap() > 0.0);
+    assert_eq!(written.matches("[[instrument]]").count(), 4);
+    assert!(!written.contains("input_source"));
+}
+
+#[test]
+fn sim_config_errors_exit_2() {
+    let _g = serial();
+    let design = sample("teaching-lab-0-20v.toml");
+    for bad in [
+        vec!["--fault", "sense=-1"],
+        vec!["--fault", "dmm:explode=1"],
+        vec!["--transport", "carrier-pigeon"],
+        vec!["--noise", "-1"],
+        vec!["--without", "scope"],
+        vec!["--ambient", "300"],
+    ] {
+        let out = regulus()
+            .args(["sim", "--design", &design, "--run-for", "0"])
+            .args(&bad)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(2), "{bad:?}");
+        assert!(!out.stderr.is_empty());
+    }
+    // A diode fault on a design without a diode string is a configuration error too.
+    let out = regulus()
+        .args([
+            "sim",
+            "--design",
+            &sample("fixed-12v-3a-foldback.toml"),
+            "--run-for",
+            "0",
+        ])
+        .args(["--fault", "diodes=+1"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("not a diode string"));
+    let out = regulus()
+        .args([
+            "sim",
+            "--design",
+            "/nonexistent/design.toml",
+            "--run-for",
+            "0",
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+}
+
+#[test]
+fn sim_runs_until_interrupted_then_closes_its_ports() {
+    let _g = serial();
+    use std::io::{BufRead, BufReader};
+    use std::process::Stdio;
+    /// Ends the simulator if the test fails before interrupting it.
+    struct Guard(std::process::Child);
+    impl Drop for Guard {
+        fn drop(&mut self) {
+            let _ = self.0.kill();
+            let _ = self.0.wait();
+        }
+    }
+    let mut child = Guard(
+        regulus()
+            .args(["sim", "--design", &sample("teaching-lab-0-20v.toml")])
+            .args(["--transport", "tcp"])
+            .stdout(Stdio::piped())
+            .spawn()
+            .unwrap(),
+    );
+    let mut out = BufReader::new(child.0.stdout.take().unwrap());
+    let mut port = None;
+    let mut line = String::new();
+    while out.read_line(&mut line).unwrap() > 0 {
+        if line.trim_start().starts_with("dmm") {
+            port = line.split("tcp ").nth(1).map(|s| s.trim().to_string());
+        }
+        if line.contains("Ctrl-C") {
+            break;
+        }
+        line.clear();
+    }
+    let addr = port.expect("the meter's address is printed");
+    assert!(std::net::TcpStream::connect(&addr).is_ok());
+    // SIGINT, as Ctrl-C sends it.
+    let status = Command::new("kill")
+        .args(["-INT", &child.0.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(status.success());
+    let code = child.0.wait().unwrap().code();
+    let mut rest = String::new();
+    std::io::Read::read_to_string(&mut out, &mut rest).unwrap();
+    assert_eq!(code, Some(0), "{rest}");
+    assert!(rest.contains("ports closed"), "{rest}");
+    assert!(
+        std::net::TcpStream::connect(&addr).is_err(),
+        "port still open"
+    );
+}
