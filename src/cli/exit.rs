@@ -4,7 +4,9 @@
 //! 2 usage or configuration error; 3 aborted (instrument failure, interlock, interrupt).
 
 use crate::compare::Verdict;
-use crate::record::{Outcome, RecordError};
+use crate::record::Outcome;
+#[cfg(test)]
+use crate::record::RecordError;
 use crate::report::ReportError;
 
 /// Exit code: completed and passed, or the command succeeded.
@@ -83,10 +85,7 @@ fn config_or_abort(config: bool) -> u8 {
 /// failing to write derived files or plots is not.
 fn report_is_config(e: &ReportError) -> bool {
     match e {
-        ReportError::Record(RecordError::Io { action, .. }) => {
-            *action == "read" || *action == "list"
-        }
-        ReportError::Record(_) => true,
+        ReportError::Record(e) => e.is_reading(),
         _ => false,
     }
 }

@@ -1,7 +1,7 @@
 //! A unit's history: its run folders, oldest first, each with what its run.json says (or why
 //! it cannot be read). Read only.
 
-use super::error::{io_err, RecordError};
+use super::error::{io_err, FileAction, RecordError};
 use super::reader::{read_info, record_state, RecordState};
 use super::schema::{check_component, RunInfo};
 use std::fs;
@@ -23,10 +23,10 @@ pub fn list_runs(records: &Path, unit: &str) -> Result<Vec<HistoryEntry>, Record
         message: m,
     })?;
     let unit_dir = records.join(unit);
-    let rd = fs::read_dir(&unit_dir).map_err(io_err("list", &unit_dir))?;
+    let rd = fs::read_dir(&unit_dir).map_err(io_err(FileAction::List, &unit_dir))?;
     let mut dirs: Vec<PathBuf> = Vec::new();
     for e in rd {
-        let e = e.map_err(io_err("list", &unit_dir))?;
+        let e = e.map_err(io_err(FileAction::List, &unit_dir))?;
         if e.file_type().map(|t| t.is_dir()).unwrap_or(false) {
             dirs.push(e.path());
         }

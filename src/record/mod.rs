@@ -11,7 +11,7 @@ mod reader;
 mod schema;
 mod writer;
 
-pub use error::RecordError;
+pub use error::{FileAction, RecordError};
 pub use history::{list_runs, HistoryEntry};
 pub use reader::{read_info, read_rows, read_run, record_state, RecordState, RunRecord};
 pub use schema::{

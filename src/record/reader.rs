@@ -1,7 +1,7 @@
 //! The record readers: rows of a readings.csv (a last line cut short is skipped), run.json,
 //! one run folder, and whether a record is finished, running or incomplete. Read only.
 
-use super::error::{io_err, RecordError};
+use super::error::{io_err, FileAction, RecordError};
 use super::schema::{
     Cell, Cells, Flag, Flags, LoadState, Outcome, Row, RunInfo, StepKind, READINGS_FILE,
     READINGS_HEADER, RUN_FILE,
@@ -97,7 +97,7 @@ fn parse_row(rec: &csv::StringRecord) -> Result<Row, String> {
 /// Read every complete row of a readings.csv. A last line cut short by a killed process
 /// (no final newline) is skipped: it is the reading that was in flight.
 pub fn read_rows(path: &Path) -> Result<Vec<Row>, RecordError> {
-    let bytes = fs::read(path).map_err(io_err("read", path))?;
+    let bytes = fs::read(path).map_err(io_err(FileAction::Read, path))?;
     let complete = match bytes.iter().rposition(|b| *b == b'\n') {
         Some(p) => &bytes[..=p],
         None => &bytes[..0],
@@ -181,7 +181,7 @@ pub fn record_state(dir: &Path, info: &RunInfo) -> RecordState {
 /// Read run.json of a run folder.
 pub fn read_info(dir: &Path) -> Result<RunInfo, RecordError> {
     let path = dir.join(RUN_FILE);
-    let bytes = fs::read(&path).map_err(io_err("read", &path))?;
+    let bytes = fs::read(&path).map_err(io_err(FileAction::Read, &path))?;
     serde_json::from_slice(&bytes).map_err(|e| RecordError::Invalid {
         path,
         message: format!("not a regulus run.json: {e}"),

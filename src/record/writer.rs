@@ -2,7 +2,7 @@
 //! an advisory lock on readings.csv while alive, appends rows and flushes each before
 //! returning, and replaces run.json atomically. It never rewrites or deletes readings.
 
-use super::error::{io_err, RecordError};
+use super::error::{io_err, FileAction, RecordError};
 use super::schema::{
     check_component, folder_name, utc_string, Cell, Outcome, Row, RunInfo, Snapshots,
     BENCH_SNAPSHOT, DESIGN_SNAPSHOT, PLAN_SNAPSHOT, READINGS_FILE, READINGS_HEADER, RUN_FILE,
@@ -17,11 +17,12 @@ use std::path::{Path, PathBuf};
 /// Write `bytes` to `path` atomically: a temporary file in the same folder, synced, renamed.
 fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), RecordError> {
     let tmp = path.with_extension("json.tmp");
-    let mut f = File::create(&tmp).map_err(io_err("create", &tmp))?;
-    f.write_all(bytes).map_err(io_err("write", &tmp))?;
-    f.sync_all().map_err(io_err("sync", &tmp))?;
+    let mut f = File::create(&tmp).map_err(io_err(FileAction::Create, &tmp))?;
+    f.write_all(bytes)
+        .map_err(io_err(FileAction::Write, &tmp))?;
+    f.sync_all().map_err(io_err(FileAction::Sync, &tmp))?;
     drop(f);
-    fs::rename(&tmp, path).map_err(io_err("replace", path))?;
+    fs::rename(&tmp, path).map_err(io_err(FileAction::Replace, path))?;
     Ok(())
 }
 
@@ -82,7 +83,7 @@ impl RecordWriter {
         check_component("unit id", &info.unit).map_err(bad)?;
         check_component("plan name", &info.plan_name).map_err(bad)?;
         let unit_dir = records.join(&info.unit);
-        fs::create_dir_all(&unit_dir).map_err(io_err("create folder", &unit_dir))?;
+        fs::create_dir_all(&unit_dir).map_err(io_err(FileAction::CreateFolder, &unit_dir))?;
         let base = folder_name(started, &info.plan_name);
         let mut n = 1u32;
         let dir = loop {
@@ -96,7 +97,7 @@ impl RecordWriter {
             match fs::create_dir(&candidate) {
                 Ok(()) => break candidate,
                 Err(e) if e.kind() == io::ErrorKind::AlreadyExists && n < 10_000 => n += 1,
-                Err(e) => return Err(io_err("create folder", &candidate)(e)),
+                Err(e) => return Err(io_err(FileAction::CreateFolder, &candidate)(e)),
             }
         };
         for (name, bytes) in [
@@ -105,14 +106,14 @@ impl RecordWriter {
             (PLAN_SNAPSHOT, snapshots.plan),
         ] {
             let p = dir.join(name);
-            fs::write(&p, bytes).map_err(io_err("write snapshot", &p))?;
+            fs::write(&p, bytes).map_err(io_err(FileAction::WriteSnapshot, &p))?;
         }
         let path = dir.join(READINGS_FILE);
         let mut file = OpenOptions::new()
             .write(true)
             .create_new(true)
             .open(&path)
-            .map_err(io_err("create", &path))?;
+            .map_err(io_err(FileAction::Create, &path))?;
         if !lock::try_exclusive(&file) {
             return Err(RecordError::Invalid {
                 path,
@@ -122,7 +123,7 @@ impl RecordWriter {
         file.write_all(READINGS_HEADER.as_bytes())
             .and_then(|_| file.write_all(b"\n"))
             .and_then(|_| file.flush())
-            .map_err(io_err("write", &path))?;
+            .map_err(io_err(FileAction::Write, &path))?;
         let csv = csv::WriterBuilder::new()
             .has_headers(false)
             .from_writer(file);
@@ -157,7 +158,7 @@ impl RecordWriter {
                 path: path.clone(),
                 message: format!("cannot write a row: {e}"),
             })?;
-        self.csv.flush().map_err(io_err("write", &path))?;
+        self.csv.flush().map_err(io_err(FileAction::Write, &path))?;
         self.info.rows += 1;
         Ok(())
     }
@@ -179,11 +180,11 @@ impl RecordWriter {
         reason: Option<String>,
     ) -> Result<RunInfo, RecordError> {
         let path = self.dir.join(READINGS_FILE);
-        self.csv.flush().map_err(io_err("write", &path))?;
+        self.csv.flush().map_err(io_err(FileAction::Write, &path))?;
         self.csv
             .get_ref()
             .sync_all()
-            .map_err(io_err("sync", &path))?;
+            .map_err(io_err(FileAction::Sync, &path))?;
         self.info.ended_utc = Some(utc_string(ended));
         self.info.outcome = outcome;
         self.info.reason = reason;
