@@ -148,11 +148,21 @@ fn unit_scale(unit: &str, dim: Dim) -> Option<(f64, i32)> {
         (Dim::Temperature, _) => return None,
         _ => {}
     }
-    // An SI prefix from the one prefix table, then the base unit.
+    // An SI prefix from the one prefix table, then the base unit. A plan takes only the
+    // prefixes a bench needs (M, k, m, u or a micro sign; durations m and u before `s`):
+    // n, p, G, K and the like are refused as likely typos.
     let mut chars = unit.chars();
     let prefix = chars.next()?;
-    if !base.contains(&chars.as_str()) {
+    let rest = chars.as_str();
+    let allowed: &[i32] = match dim {
+        Dim::Time if rest == "s" => &[-3, -6],
+        Dim::Time => return None,
+        _ => &[6, 3, -3, -6],
+    };
+    if prefix == 'K' || !base.contains(&rest) {
         return None;
     }
-    prefix_exponent(prefix).map(|e| (1.0, e))
+    prefix_exponent(prefix)
+        .filter(|e| allowed.contains(e))
+        .map(|e| (1.0, e))
 }

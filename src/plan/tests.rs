@@ -187,6 +187,31 @@ fn quantities_read_units_prefixes_and_design_bases() {
 }
 
 #[test]
+fn plans_take_the_bench_prefixes_and_both_micro_signs() {
+    let t = targets();
+    // SI prefixes (BIPM SI Brochure): u and both micro signs are 1e-6.
+    for text in ["20 uA", "20 \u{b5}A", "20 \u{3bc}A"] {
+        let v = parse_quantity(text, Dim::Current, &t).unwrap();
+        assert!((v - 20e-6).abs() < 1e-15, "{text}: {v}");
+    }
+    assert_eq!(parse_quantity("1 MV", Dim::Voltage, &t), Ok(1e6));
+    assert_eq!(parse_quantity("500 us", Dim::Time, &t), Ok(0.0005));
+    assert_eq!(parse_quantity("500 \u{b5}s", Dim::Time, &t), Ok(0.0005));
+    // Prefixes a bench plan does not need are refused, as before: likely typos.
+    for (text, dim) in [
+        ("5 nA", Dim::Current),
+        ("100 pA", Dim::Current),
+        ("1 GV", Dim::Voltage),
+        ("4.7 Kohm", Dim::Resistance),
+        ("1 ks", Dim::Time),
+        ("5 ns", Dim::Time),
+        ("2 msec", Dim::Time),
+    ] {
+        assert!(parse_quantity(text, dim, &t).is_err(), "{text}");
+    }
+}
+
+#[test]
 fn wrong_dimension_names_line_and_column() {
     let text =
         "name = \"x\"\n[[step]]\nkind = \"load_sweep\"\nfrom = 0\nto = \"12 V\"\npoints = 3\n";

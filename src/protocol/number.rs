@@ -75,7 +75,9 @@ pub fn parse_number(text: &str) -> Option<f64> {
         suffix_exponent(c)?
     };
     let v: f64 = num.parse().ok()?;
-    let v = scale_pow10(v, exp);
+    // Multiply by the prefix's value (as instruments' numbers always were read), so a reading
+    // is the same double it was: `470m` is 470 * 0.001.
+    let v = v * scale_pow10(1.0, exp);
     v.is_finite().then_some(v)
 }
 
@@ -135,6 +137,9 @@ mod tests {
     #[test]
     fn engineering_suffixes() {
         assert_eq!(parse_number("12.5m"), Some(0.0125));
+        // A suffix multiplies by the prefix's value, bit for bit as readings always were.
+        assert_eq!(parse_number("470m"), Some(470.0 * 1e-3));
+        assert_eq!(parse_number("2.2u"), Some(2.2 * 1e-6));
         assert_eq!(parse_number("4.7k"), Some(4700.0));
         assert_eq!(parse_number("2u"), Some(2e-6));
         assert_eq!(parse_number("2\u{b5}"), Some(2e-6));

@@ -58,16 +58,23 @@ fn parse_row(rec: &csv::StringRecord) -> Result<Row, String> {
     let samples = field(8)
         .parse::<u32>()
         .map_err(|_| format!("`samples` is not a whole number: '{}'", field(8)))?;
+    // Fields are checked in the order the reader always used; the words of the load mode and
+    // the flags, checked since they became types, come last.
+    let elapsed_s = f64_at(1, "elapsed_s")?;
+    let step = usize_at(2, "step")?;
+    let point = usize_at(4, "point")?;
+    let setpoint = opt_at(6, "setpoint")?;
+    let source_volts = opt_at(7, "source_volts")?;
+    let mut cells = Cells::new();
+    for q in Quantity::ALL {
+        cells.set(q, cell_at(value_column(q), q.as_str())?);
+    }
     let load_mode = LoadState::parse(field(5)).ok_or_else(|| {
         format!(
             "unknown load_mode '{}' (expected cc, cv, cr or off)",
             field(5)
         )
     })?;
-    let mut cells = Cells::new();
-    for q in Quantity::ALL {
-        cells.set(q, cell_at(value_column(q), q.as_str())?);
-    }
     let flags = field(19)
         .split(';')
         .filter(|s| !s.is_empty())
@@ -81,13 +88,13 @@ fn parse_row(rec: &csv::StringRecord) -> Result<Row, String> {
         .collect::<Result<Flags, String>>()?;
     Ok(Row {
         utc: field(0).to_string(),
-        elapsed_s: f64_at(1, "elapsed_s")?,
-        step: usize_at(2, "step")?,
+        elapsed_s,
+        step,
         step_kind,
-        point: usize_at(4, "point")?,
+        point,
         load_mode,
-        setpoint: opt_at(6, "setpoint")?,
-        source_volts: opt_at(7, "source_volts")?,
+        setpoint,
+        source_volts,
         samples,
         cells,
         flags,

@@ -289,3 +289,35 @@ fn a_record_left_running_by_a_dead_process_reads_as_incomplete() {
         "{csv}"
     );
 }
+
+#[test]
+fn a_record_cut_short_cannot_pass_against_its_design() {
+    // ARCHITECTURE.md: a run that did not finish cannot pass (compare::record_verdict). The
+    // same good record passes while finished and fails once run.json says it never finished.
+    let tmp = tempfile::tempdir().unwrap();
+    let recs = population_records(tmp.path(), 1, false);
+    let design = design_path();
+    let report = |dir: &str| {
+        regulus(
+            &["report", "--design", design.to_str().unwrap(), dir],
+            tmp.path(),
+        )
+    };
+    let finished = report(&recs[0]);
+    let stdout = String::from_utf8_lossy(&finished.stdout);
+    assert_eq!(finished.status.code(), Some(0), "{stdout}");
+    assert!(stdout.contains("verdict: PASS"), "{stdout}");
+    let run = Path::new(&recs[0]).join("run.json");
+    let text = std::fs::read_to_string(&run).unwrap();
+    std::fs::write(&run, text.replace("\"completed\"", "\"running\"")).unwrap();
+    let cut = report(&recs[0]);
+    let stdout = String::from_utf8_lossy(&cut.stdout);
+    assert_eq!(cut.status.code(), Some(1), "{stdout}");
+    assert!(stdout.contains("verdict: FAIL"), "{stdout}");
+    let summary: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(Path::new(&recs[0]).join("summary.json")).unwrap(),
+    )
+    .unwrap();
+    assert_eq!(summary["record_state"], "incomplete");
+    assert_eq!(summary["verdict"], "fail");
+}
