@@ -1,7 +1,9 @@
 //! The layer rule, guarded: every top-level module sits on a layer, and a module may name
 //! (`crate::x`) only modules on layers below its own. Lower layers know nothing of the ones
-//! above them, so there is no import circle between modules. The table is the one in
-//! docs/ARCHITECTURE.md; this test reads the source files and fails on an upward arrow.
+//! above them, so there is no import circle between modules. Inside a module folder, the files
+//! that name each other (`super::x`) form no circle either. The table is the one in
+//! docs/ARCHITECTURE.md; these tests read the source files and fail on an upward arrow or a
+//! circle.
 
 /// Layers, lowest first.
 const LAYERS: &[&[&str]] = &[
@@ -113,5 +115,149 @@ fn dependencies_point_down_only() {
         upward.is_empty(),
         "imports that point up or sideways:\n{}",
         upward.join("\n")
+    );
+}
+
+/// The sibling modules a file inside a module folder names through `super::` (library code
+/// only, as in [`named_modules`]), among `siblings`.
+fn named_siblings(text: &str, siblings: &[String]) -> Vec<String> {
+    let mut out = Vec::new();
+    for line in text.lines() {
+        if line.trim_start().starts_with("#[cfg(test)]") {
+            break;
+        }
+        let code = line.split("//").next().unwrap_or("");
+        let mut rest = code;
+        while let Some(p) = rest.find("super::") {
+            let after = &rest[p + "super::".len()..];
+            let names: Vec<&str> = match after.strip_prefix('{') {
+                Some(group) => group
+                    .split('}')
+                    .next()
+                    .unwrap_or("")
+                    .split(',')
+                    .map(|item| item.trim().split("::").next().unwrap_or(""))
+                    .collect(),
+                None => vec![after
+                    .split(|c: char| !(c.is_ascii_alphanumeric() || c == '_'))
+                    .next()
+                    .unwrap_or("")],
+            };
+            for n in names {
+                if siblings.iter().any(|s| s == n) && !out.iter().any(|o| o == n) {
+                    out.push(n.to_string());
+                }
+            }
+            rest = after;
+        }
+    }
+    out
+}
+
+/// A circle in a graph given as (node, the nodes it names), if there is one.
+fn find_circle(graph: &[(String, Vec<String>)]) -> Option<Vec<String>> {
+    fn visit(
+        node: &str,
+        graph: &[(String, Vec<String>)],
+        path: &mut Vec<String>,
+        done: &mut Vec<String>,
+    ) -> Option<Vec<String>> {
+        if let Some(start) = path.iter().position(|p| p == node) {
+            let mut circle = path[start..].to_vec();
+            circle.push(node.to_string());
+            return Some(circle);
+        }
+        if done.iter().any(|d| d == node) {
+            return None;
+        }
+        path.push(node.to_string());
+        let next = graph
+            .iter()
+            .find(|(n, _)| n == node)
+            .map(|(_, e)| e.clone());
+        for m in next.unwrap_or_default() {
+            if let Some(c) = visit(&m, graph, path, done) {
+                return Some(c);
+            }
+        }
+        path.pop();
+        done.push(node.to_string());
+        None
+    }
+    let mut done = Vec::new();
+    graph
+        .iter()
+        .find_map(|(n, _)| visit(n, graph, &mut Vec::new(), &mut done))
+}
+
+#[test]
+fn finds_siblings_and_circles() {
+    let sib = vec!["a".to_string(), "b".to_string(), "c".to_string()];
+    let text = "use super::{a, b::X};\nuse super::c::Y; // super::zz\n";
+    assert_eq!(named_siblings(text, &sib), vec!["a", "b", "c"]);
+    let g = |edges: &[(&str, &[&str])]| -> Vec<(String, Vec<String>)> {
+        edges
+            .iter()
+            .map(|(n, e)| (n.to_string(), e.iter().map(|x| x.to_string()).collect()))
+            .collect()
+    };
+    assert_eq!(
+        find_circle(&g(&[("a", &["b"]), ("b", &["c"]), ("c", &[])])),
+        None
+    );
+    assert_eq!(
+        find_circle(&g(&[("a", &["b"]), ("b", &["a"])])),
+        Some(vec!["a".to_string(), "b".to_string(), "a".to_string()])
+    );
+}
+
+#[test]
+fn files_in_a_module_folder_form_no_circle() {
+    fn folders(dir: &std::path::Path, out: &mut Vec<std::path::PathBuf>) {
+        for entry in std::fs::read_dir(dir)
+            .expect("readable source folder")
+            .flatten()
+        {
+            if entry.path().is_dir() {
+                out.push(entry.path());
+                folders(&entry.path(), out);
+            }
+        }
+    }
+    let src = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("src");
+    let mut dirs = Vec::new();
+    folders(&src, &mut dirs);
+    let mut circles = Vec::new();
+    for dir in dirs {
+        let mut files = Vec::new();
+        for entry in std::fs::read_dir(&dir).expect("readable folder").flatten() {
+            let p = entry.path();
+            let stem = p
+                .file_stem()
+                .and_then(|s| s.to_str())
+                .unwrap_or("")
+                .to_string();
+            if p.extension().is_some_and(|e| e == "rs") && stem != "mod" && stem != "tests" {
+                files.push((stem, p));
+            }
+        }
+        let names: Vec<String> = files.iter().map(|(n, _)| n.clone()).collect();
+        let graph: Vec<(String, Vec<String>)> = files
+            .iter()
+            .map(|(n, p)| {
+                let text = std::fs::read_to_string(p).expect("readable source file");
+                let mut named = named_siblings(&text, &names);
+                named.retain(|m| m != n);
+                (n.clone(), named)
+            })
+            .collect();
+        if let Some(c) = find_circle(&graph) {
+            circles.push(format!("{}: {}", dir.display(), c.join(" -> ")));
+        }
+    }
+    assert!(
+        circles.is_empty(),
+        "import circles:\n{}",
+        circles.join("\n")
     );
 }

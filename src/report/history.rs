@@ -9,6 +9,29 @@ use serde::Serialize;
 use std::io::Write;
 use std::path::Path;
 
+/// History entries of the same unit that started before the record in `dir` (the record's
+/// folder sits in `<records>/<unit>/`), oldest first, for drift flags. Unreadable siblings
+/// are skipped; no siblings give an empty list.
+pub fn earlier_entries(dir: &Path, opts: &AnalysisOptions) -> Vec<HistoryEntry> {
+    let Ok(info) = load_run_info(dir) else {
+        return Vec::new();
+    };
+    let Some(unit_dir) = dir.parent() else {
+        return Vec::new();
+    };
+    let (Some(unit), Some(root)) = (unit_dir.file_name(), unit_dir.parent()) else {
+        return Vec::new();
+    };
+    history(root, &unit.to_string_lossy(), opts)
+        .map(|h| {
+            h.entries
+                .into_iter()
+                .filter(|e| e.started_utc < info.started_utc)
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
 /// A unit's history: dated entries (oldest first) and the drift flags between them.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct History {

@@ -1,7 +1,7 @@
 //! The summary of a record (metrics, verdicts, drift flags) and the derived files written from
 //! it: `summary.json`, `plots/` and `report.html`. Building the summary is pure; only
 //! [`load_record`] and [`write_report`] touch files.
-use super::{history, html, plots};
+use super::{html, plots};
 use crate::analysis::{self, AnalysisOptions, Metrics};
 use crate::compare::{
     self, Comparison, DesignExpectation, DriftFlag, HistoryEntry, KeyValues, Verdict,
@@ -271,29 +271,6 @@ pub fn write_report_for_design(
 ) -> Result<Written, ReportError> {
     let exp = DesignExpectation::from_design(design, expectation);
     write_report(dir, Some(&exp), opts)
-}
-
-/// History entries of the same unit that started before the record in `dir` (the record's
-/// folder sits in `<records>/<unit>/`), oldest first, for drift flags. Unreadable siblings
-/// are skipped; no siblings give an empty list.
-pub fn earlier_entries(dir: &Path, opts: &AnalysisOptions) -> Vec<HistoryEntry> {
-    let Ok(info) = load_run_info(dir) else {
-        return Vec::new();
-    };
-    let Some(unit_dir) = dir.parent() else {
-        return Vec::new();
-    };
-    let (Some(unit), Some(root)) = (unit_dir.file_name(), unit_dir.parent()) else {
-        return Vec::new();
-    };
-    history(root, &unit.to_string_lossy(), opts)
-        .map(|h| {
-            h.entries
-                .into_iter()
-                .filter(|e| e.started_utc < info.started_utc)
-                .collect()
-        })
-        .unwrap_or_default()
 }
 
 /// The plots a record gets (only those with data).

@@ -4,12 +4,12 @@
 use super::bench_file::bench_toml;
 use super::instruments::{FaultSchedule, InstrumentKind, InstrumentState, Noise, PortFaults};
 use super::options::{Fault, PortFault, SimError, SimOptions};
+use super::ports::{Link, PortInfo};
 use super::serve::{self, lock, Endpoint, Shared, World};
 use super::unit::{Controls, OperatingPoint, SimUnit, Thermal, Truth, UnitFault};
 use crate::design::Design;
-use serde::Serialize;
 use std::collections::BTreeMap;
-use std::net::{SocketAddr, TcpListener};
+use std::net::TcpListener;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, Mutex};
 use std::thread::JoinHandle;
@@ -18,33 +18,6 @@ use std::time::Instant;
 /// Pseudo-terminal pair creation is not thread-safe: every pair in this process is created
 /// while holding this lock. Tests that create pairs themselves should hold it too.
 pub static PTY_PAIR_LOCK: Mutex<()> = Mutex::new(());
-
-/// Where an instrument listens.
-#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Link {
-    /// A pseudo-terminal: the bench opens this path (e.g. `/dev/pts/4`).
-    Pty(String),
-    /// A TCP listener on 127.0.0.1.
-    Tcp(SocketAddr),
-}
-
-impl std::fmt::Display for Link {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self {
-            Link::Pty(p) => write!(f, "serial {p}"),
-            Link::Tcp(a) => write!(f, "tcp {a}"),
-        }
-    }
-}
-
-/// One simulated instrument's port.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct PortInfo {
-    pub kind: InstrumentKind,
-    pub name: &'static str,
-    pub link: Link,
-}
 
 /// A running simulated bench. Dropping it shuts it down (ports closed, threads joined).
 pub struct SimBench {

@@ -1,9 +1,9 @@
 //! The bench file text for a simulated bench's ports, so `regulus run` can drive it like a
 //! real bench. Pure text.
 
-use super::bench::{Link, PortInfo};
 use super::instruments::InstrumentKind;
 use super::options::{Fault, PortFault, SimOptions};
+use super::ports::{Link, PortInfo};
 use std::fmt::Write as _;
 
 pub(super) fn toml_str(s: &str) -> String {

@@ -8,10 +8,12 @@ mod bench;
 mod bench_file;
 pub mod instruments;
 mod options;
+mod ports;
 pub mod serve;
 pub mod unit;
 
-pub use bench::{Link, PortInfo, SimBench, PTY_PAIR_LOCK};
+pub use bench::{SimBench, PTY_PAIR_LOCK};
 pub use bench_file::bench_toml;
 pub use options::{Fault, PortFault, SimError, SimOptions, TransportMix};
+pub use ports::{Link, PortInfo};
 pub use unit::{Controls, OperatingPoint, SimUnit, Thermal, Truth, UnitFault, UnitModel};

@@ -27,7 +27,6 @@
 //! 2 % below its no-load value, all junctions at ambient, on the design's own input.
 
 mod as_built;
-mod curve;
 mod model;
 #[cfg(test)]
 mod tests;
