@@ -77,7 +77,11 @@ pub fn parse_number(text: &str) -> Option<f64> {
     let v: f64 = num.parse().ok()?;
     // Multiply by the prefix's value (as instruments' numbers always were read), so a reading
     // is the same double it was: `470m` is 470 * 0.001.
-    let v = v * scale_pow10(1.0, exp);
+    let v = if exp == 0 {
+        v
+    } else {
+        v * scale_pow10(1.0, exp)
+    };
     v.is_finite().then_some(v)
 }
 

@@ -10,18 +10,40 @@ use super::writer::lock;
 use crate::measure::Quantity;
 use std::fs::{self, File};
 use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
 
-/// Index of a quantity's value column (its spread follows it) in the readings header.
+/// Index of a quantity's value column (its spread follows it) in the readings header, found
+/// once from the header itself.
 pub(super) fn value_column(q: Quantity) -> usize {
-    let name = format!("{} [{}]", q.as_str(), q.unit());
-    READINGS_HEADER
-        .split(',')
-        .position(|h| h == name)
+    static COLUMNS: OnceLock<Vec<(Quantity, usize)>> = OnceLock::new();
+    let columns = COLUMNS.get_or_init(|| {
+        Quantity::ALL
+            .iter()
+            .map(|&q| {
+                let name = format!("{} [{}]", q.as_str(), q.unit());
+                let at = READINGS_HEADER
+                    .split(',')
+                    .position(|h| h == name)
+                    .expect("every quantity has a column in the readings header");
+                (q, at)
+            })
+            .collect()
+    });
+    columns
+        .iter()
+        .find(|(c, _)| *c == q)
+        .map(|(_, at)| *at)
         .expect("every quantity has a column in the readings header")
 }
 
+/// Number of fields of a readings row (the header's).
+fn field_count() -> usize {
+    static COUNT: OnceLock<usize> = OnceLock::new();
+    *COUNT.get_or_init(|| READINGS_HEADER.split(',').count())
+}
+
 fn parse_row(rec: &csv::StringRecord) -> Result<Row, String> {
-    let n_fields = READINGS_HEADER.split(',').count();
+    let n_fields = field_count();
     if rec.len() != n_fields {
         return Err(format!("expected {n_fields} fields, found {}", rec.len()));
     }

@@ -6,7 +6,6 @@ use crate::control::InstrumentIdentity;
 use crate::measure::{LoadMode, Quantity};
 use chrono::{DateTime, SecondsFormat, Utc};
 use serde::{Deserialize, Serialize};
-use std::collections::BTreeMap;
 
 /// Version of the record layout written by this build.
 pub const SCHEMA_VERSION: u32 = 1;
@@ -68,7 +67,15 @@ pub enum Cell {
 /// The measured cells of one row, keyed by quantity. A quantity without an instrument has no
 /// cell.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
-pub struct Cells(BTreeMap<Quantity, Cell>);
+pub struct Cells([Option<Cell>; Quantity::ALL.len()]);
+
+/// Position of a quantity in [`Quantity::ALL`] (the cells' slot).
+fn slot(q: Quantity) -> usize {
+    Quantity::ALL
+        .iter()
+        .position(|x| *x == q)
+        .unwrap_or_default()
+}
 
 impl Cells {
     pub fn new() -> Cells {
@@ -76,22 +83,15 @@ impl Cells {
     }
     /// The cell of a quantity, if one was measured.
     pub fn get(&self, q: Quantity) -> Option<Cell> {
-        self.0.get(&q).copied()
+        self.0[slot(q)]
     }
     /// Set (or, with `None`, clear) the cell of a quantity.
     pub fn set(&mut self, q: Quantity, cell: Option<Cell>) {
-        match cell {
-            Some(c) => {
-                self.0.insert(q, c);
-            }
-            None => {
-                self.0.remove(&q);
-            }
-        }
+        self.0[slot(q)] = cell;
     }
     /// True when any cell is an overrange.
     pub fn any_overrange(&self) -> bool {
-        self.0.values().any(|c| *c == Cell::Overrange)
+        self.0.contains(&Some(Cell::Overrange))
     }
 }
 
