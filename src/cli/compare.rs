@@ -4,7 +4,7 @@
 
 use super::options::AnalysisArgs;
 use super::report::load_expectation;
-use super::{CodedError, EXIT_USAGE};
+use super::usage;
 use crate::compare::{self, KeyMetric, KeyValues};
 use anyhow::Context;
 use std::io::Write;
@@ -47,12 +47,9 @@ struct Output {
 }
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
-    let aopts = args
-        .analysis
-        .options()
-        .map_err(|m| CodedError::new(EXIT_USAGE, m))?;
+    let aopts = args.analysis.options().map_err(usage)?;
     if args.z_limit.is_nan() || args.z_limit <= 0.0 {
-        return Err(CodedError::new(EXIT_USAGE, "--z-limit must be positive (default 3)").into());
+        return Err(usage("--z-limit must be positive (default 3)"));
     }
     let exp = load_expectation(&args.design)?;
     let mut judged = Vec::new();

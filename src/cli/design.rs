@@ -1,5 +1,6 @@
 //! `regulus design FILE`: compute a design's expected behaviour and print it as a table or JSON.
 
+use super::usage;
 use crate::design::{self, Design, Verdict};
 use crate::spice;
 use anyhow::Context;
@@ -39,11 +40,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let d = Design::load(&args.file)?;
     let samples = args.samples.unwrap_or(d.rules.monte_carlo_samples);
     if samples == 0 || samples > 10_000_000 {
-        return Err(super::CodedError::new(
-            super::EXIT_USAGE,
-            "--samples must be between 1 and 10,000,000",
-        )
-        .into());
+        return Err(usage("--samples must be between 1 and 10,000,000"));
     }
     let e = design::expect_with(&d, samples, args.seed.unwrap_or(d.rules.seed));
     let stdout = std::io::stdout();

@@ -2,7 +2,8 @@
 //! CSV or JSON, optionally with a plot of the key metrics over dates.
 
 use super::options::AnalysisArgs;
-use super::{CodedError, EXIT_OK, EXIT_USAGE};
+use super::usage;
+use super::EXIT_OK;
 use anyhow::Context;
 use std::path::PathBuf;
 
@@ -28,37 +29,26 @@ pub struct Args {
 }
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
-    let aopts = args
-        .analysis
-        .options()
-        .map_err(|m| CodedError::new(EXIT_USAGE, m))?;
+    let aopts = args.analysis.options().map_err(usage)?;
     let plot_kind = match &args.plot {
         Some(p) => match p.extension().and_then(|e| e.to_str()) {
             Some("svg") => Some(false),
             Some("png") => Some(true),
             _ => {
-                return Err(CodedError::new(
-                    EXIT_USAGE,
-                    format!(
-                        "--plot {}: the file name must end in .svg or .png",
-                        p.display()
-                    ),
-                )
-                .into())
+                return Err(usage(format!(
+                    "--plot {}: the file name must end in .svg or .png",
+                    p.display()
+                )))
             }
         },
         None => None,
     };
     if !args.records.join(&args.unit).is_dir() {
-        return Err(CodedError::new(
-            EXIT_USAGE,
-            format!(
-                "no records for unit '{}' under {} (check --records and the unit serial)",
-                args.unit,
-                args.records.display()
-            ),
-        )
-        .into());
+        return Err(usage(format!(
+            "no records for unit '{}' under {} (check --records and the unit serial)",
+            args.unit,
+            args.records.display()
+        )));
     }
     let h = crate::report::history(&args.records, &args.unit, &aopts)?;
     let mut out = std::io::stdout().lock();

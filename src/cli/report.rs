@@ -2,7 +2,7 @@
 //! with the record's design snapshot (or another design file). Exit 1 on a failing verdict.
 
 use super::options::AnalysisArgs;
-use super::{CodedError, EXIT_USAGE};
+use super::usage;
 use anyhow::Context;
 use std::path::{Path, PathBuf};
 
@@ -33,19 +33,12 @@ pub fn load_expectation(path: &Path) -> anyhow::Result<crate::compare::DesignExp
 }
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
-    let aopts = args
-        .analysis
-        .options()
-        .map_err(|m| CodedError::new(EXIT_USAGE, m))?;
+    let aopts = args.analysis.options().map_err(usage)?;
     if !args.record.join("run.json").is_file() {
-        return Err(CodedError::new(
-            EXIT_USAGE,
-            format!(
-                "{}: not a record folder (no run.json); give <records>/<unit>/<stamp>_<plan>",
-                args.record.display()
-            ),
-        )
-        .into());
+        return Err(usage(format!(
+            "{}: not a record folder (no run.json); give <records>/<unit>/<stamp>_<plan>",
+            args.record.display()
+        )));
     }
     let exp = if args.no_design {
         None
@@ -55,15 +48,11 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             None => {
                 let snap = args.record.join("design.toml");
                 if !snap.is_file() {
-                    return Err(CodedError::new(
-                        EXIT_USAGE,
-                        format!(
-                            "{}: the record has no design.toml snapshot; give --design FILE, \
+                    return Err(usage(format!(
+                        "{}: the record has no design.toml snapshot; give --design FILE, \
                              or --no-design for metrics only",
-                            args.record.display()
-                        ),
-                    )
-                    .into());
+                        args.record.display()
+                    )));
                 }
                 snap
             }

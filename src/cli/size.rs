@@ -1,6 +1,7 @@
 //! `regulus size`: choose the sense resistor (and a foldback divider) from targets as preferred
 //! values, print the resulting limit bands and ratings, and optionally write a design file.
 
+use super::usage;
 use crate::design::eseries::Series;
 use crate::design::sizing::{self, Targets};
 use crate::design::{self, Clamp, Design, Stage};
@@ -71,7 +72,6 @@ pub struct Args {
 const TEMPLATE: &str = include_str!("../../config/design-template.toml");
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
-    let usage = |m: String| anyhow::Error::from(super::CodedError::new(super::EXIT_USAGE, m));
     let mut base = match &args.base {
         Some(p) => Design::load(p)?,
         None => Design::parse(TEMPLATE, "config/design-template.toml")?,
@@ -113,7 +113,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         ))
     })?;
     if args.samples == 0 || args.samples > 10_000_000 {
-        return Err(usage("--samples must be between 1 and 10,000,000".into()));
+        return Err(usage("--samples must be between 1 and 10,000,000"));
     }
     let e = design::expect_with(&base, args.samples, base.rules.seed);
 

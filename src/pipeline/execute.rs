@@ -4,7 +4,7 @@
 //! written into it. Prints nothing: the caller shows progress (an `Observer`) and the result.
 
 use super::{PipelineError, Prepared, RunRequest};
-use crate::compare::{DesignExpectation, Verdict};
+use crate::compare::Verdict;
 use crate::control::BenchControl;
 use crate::report::{ReportError, ReportOptions, Written};
 use crate::runner::{self, CancelToken, Observer, RunReport, RunSetup};
@@ -57,7 +57,6 @@ pub async fn execute<B: BenchControl, O: Observer>(
 /// Write summary.json, plots (SVG and PNG) and report.html for a finished run, with drift
 /// flags against the unit's earlier records.
 pub fn write_derived(report: &RunReport, prep: &Prepared) -> Result<Written, ReportError> {
-    let exp = DesignExpectation::from_design(&prep.design, &prep.expectation);
     let analysis = crate::analysis::AnalysisOptions::default();
     let earlier = crate::report::earlier_entries(&report.dir, &analysis);
     let opts = ReportOptions {
@@ -65,5 +64,5 @@ pub fn write_derived(report: &RunReport, prep: &Prepared) -> Result<Written, Rep
         earlier,
         png: true,
     };
-    crate::report::write_report(&report.dir, Some(&exp), &opts)
+    crate::report::write_report_for_design(&report.dir, &prep.design, &prep.expectation, &opts)
 }
