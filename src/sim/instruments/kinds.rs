@@ -50,11 +50,11 @@ impl InstrumentKind {
     /// Model field of the identity reply (invented model names).
     pub fn model(self) -> &'static str {
         match self {
-            InstrumentKind::QueryMeter => "SV-61 query meter",
-            InstrumentKind::StreamMeter => "SA-42 streaming ammeter",
-            InstrumentKind::Load => "SL-300 electronic load",
-            InstrumentKind::Source => "SP-60 programmable source",
-            InstrumentKind::Thermometer => "ST-4 thermometer",
+            InstrumentKind::QueryMeter => "Gnomon query voltmeter",
+            InstrumentKind::StreamMeter => "Ticker streaming ammeter",
+            InstrumentKind::Load => "Sinkhole electronic load",
+            InstrumentKind::Source => "Wellspring bench source",
+            InstrumentKind::Thermometer => "Ember thermometer",
         }
     }
 }

@@ -242,3 +242,15 @@ fn fault_schedule_drops_garbles_and_closes() {
     );
     assert!(!f.closed_by_time(1.0) && f.closed_by_time(1.5));
 }
+
+/// The simulated family carries names of its own: a word and a kind, never a code of letters and
+/// digits that could be taken for a real product line's model number (project rule).
+#[test]
+fn simulated_models_are_named_not_coded() {
+    let code = regex::Regex::new(r"\b[A-Z]{1,3}-?\d{1,4}\b").expect("pattern");
+    for kind in InstrumentKind::ALL {
+        let model = kind.model();
+        assert!(!code.is_match(model), "{model} looks like a model code");
+        assert!(model.split(' ').count() >= 2, "{model}");
+    }
+}
