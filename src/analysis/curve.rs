@@ -6,6 +6,7 @@ use super::fit::{linear_fit, robust_fit};
 use super::line::line_regulation;
 use super::metrics::*;
 use super::short::short_circuit;
+use super::soak::soak;
 use crate::measure::Quantity;
 use crate::record::{Flag, Row, StepKind};
 
@@ -49,9 +50,10 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         DEFAULT_KNEE_DROP
     };
     let curve = curve_points(rows);
+    // A reading that tripped an interlock is a stop, not a point of the characteristic.
     let sweep: Vec<CurvePoint> = rows
         .iter()
-        .filter(|r| r.step_kind == StepKind::LoadSweep)
+        .filter(|r| r.step_kind == StepKind::LoadSweep && !r.has_flag(Flag::Interlock))
         .filter_map(curve_point)
         .collect();
 
@@ -146,7 +148,8 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         _ => None,
     };
 
-    let short_circuit = short_circuit(rows, threshold);
+    let recovery_threshold = threshold.or(opts.nominal_voltage.map(|v| (1.0 - d) * v));
+    let short_circuit = short_circuit(rows, recovery_threshold);
     let foldback_ratio = match (&short_circuit, knee.as_ref().and_then(|k| k.fixed_drop)) {
         (Some(sc), Some(kp)) if kp.current > 0.0 => Some(sc.start_current / kp.current),
         _ => None,
@@ -158,6 +161,11 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         .as_ref()
         .and_then(|k| k.two_segment.or(k.fixed_drop))
         .and_then(|kp| knee_conditions(rows, kp.current));
+
+    let soak = soak(rows);
+    if soak.is_none() && rows.iter().any(|r| r.step_kind == StepKind::Soak) {
+        notes.push("soak: fewer than two soak readings with an output voltage".into());
+    }
 
     let max_temperature = rows
         .iter()
@@ -177,6 +185,7 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         line_regulation,
         max_temperature,
         knee_conditions,
+        soak,
         notes,
     }
 }
@@ -317,5 +326,6 @@ pub(super) fn knee_metrics(curve: &[CurvePoint], v_nl: f64, d: f64, span: f64) -
         threshold_voltage: threshold,
         fixed_drop,
         two_segment,
+        highest_regulating: above.copied(),
     }
 }

@@ -112,7 +112,14 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         let prep = pipeline::prepare(&request)?;
         let code = rt.block_on(async {
             let mut bench = Bench::open(&prep.bench).await?;
-            present::run_and_show(&mut bench, &prep, &request, &cancel).await
+            present::run_and_show(
+                &mut bench,
+                &prep,
+                &request,
+                &cancel,
+                present::ResultFormat::Text,
+            )
+            .await
         })?;
         sim.shutdown();
         println!();

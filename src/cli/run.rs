@@ -2,8 +2,8 @@
 //! short-circuit test, open the bench, run the plan with a progress bar per step, and map the
 //! outcome to an exit code. A thin caller of [`crate::pipeline`]: it holds no domain logic.
 
-use super::exit::{usage, CodedError, EXIT_ABORTED};
-use super::present;
+use super::exit::{usage, CodedError, EXIT_INCOMPLETE};
+use super::present::{self, ResultFormat};
 use crate::bench::Bench;
 use crate::control::BenchControl;
 use crate::pipeline::{self, Prepared, RunRequest};
@@ -14,6 +14,7 @@ use std::path::PathBuf;
 
 /// Options of `regulus run`.
 #[derive(Debug, Clone, clap::Args)]
+#[command(after_help = super::exit::exit_codes_help())]
 pub struct Args {
     /// Bench file (instruments by role).
     #[arg(long, value_name = "FILE")]
@@ -39,6 +40,10 @@ pub struct Args {
     /// Skip the confirmation before a short-circuit test (for test stations).
     #[arg(long)]
     pub yes: bool,
+    /// Print the result as one JSON object on stdout (outcome, exit code, reasons, record,
+    /// files, summary) instead of lines for people.
+    #[arg(long)]
+    pub json: bool,
 }
 
 impl Args {
@@ -64,7 +69,8 @@ pub fn prepare(args: &Args) -> anyhow::Result<Prepared> {
 }
 
 /// Print the short-circuit cautions and ask. `yes` skips the question; without a terminal on
-/// stdin and without `yes`, refuse (exit 2). A declined answer aborts (exit 3).
+/// stdin and without `yes`, refuse (exit 2). A declined answer is INCOMPLETE (exit 3):
+/// nothing was switched on.
 pub fn confirm_short_circuit(
     plan: &Plan,
     vin: Option<f64>,
@@ -96,7 +102,7 @@ pub fn confirm_short_circuit(
     if answer.trim().eq_ignore_ascii_case("yes") {
         Ok(())
     } else {
-        Err(CodedError::new(EXIT_ABORTED, "not confirmed: nothing was switched on").into())
+        Err(CodedError::new(EXIT_INCOMPLETE, "not confirmed: nothing was switched on").into())
     }
 }
 
@@ -127,7 +133,12 @@ pub async fn execute<B: BenchControl>(
     args: &Args,
     cancel: &CancelToken,
 ) -> anyhow::Result<u8> {
-    present::run_and_show(bench, prep, &args.request(), cancel).await
+    let format = if args.json {
+        ResultFormat::Json
+    } else {
+        ResultFormat::Text
+    };
+    present::run_and_show(bench, prep, &args.request(), cancel, format).await
 }
 
 #[cfg(test)]
@@ -174,7 +185,7 @@ mod tests {
         assert!(confirm_short_circuit(&p, None, false, true, &mut &b"yes\n"[..], &mut out).is_ok());
         let e =
             confirm_short_circuit(&p, None, false, true, &mut &b"n\n"[..], &mut out).unwrap_err();
-        assert_eq!(code(&e), EXIT_ABORTED);
+        assert_eq!(code(&e), EXIT_INCOMPLETE);
     }
 
     #[test]

@@ -151,14 +151,19 @@ impl DesignExpectation {
     }
 }
 
-/// Pass: inside the Monte Carlo band. Marginal: inside the worst case, outside the Monte
-/// Carlo band. Fail: outside the worst case.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+/// A check's verdict, and a record's overall outcome. A check is pass (inside the Monte
+/// Carlo band), marginal (inside the worst case, outside the Monte Carlo band) or fail
+/// (outside the worst case). A record is also one of those, or incomplete (did not finish,
+/// stopped, or a promised metric missing) or error (the station failed); see
+/// [`super::judge`]. Ordered by severity: the worst of several is their `max`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Verdict {
     Pass,
     Marginal,
+    Incomplete,
     Fail,
+    Error,
 }
 
 impl Verdict {
@@ -166,7 +171,20 @@ impl Verdict {
         match self {
             Verdict::Pass => "pass",
             Verdict::Marginal => "marginal",
+            Verdict::Incomplete => "incomplete",
             Verdict::Fail => "fail",
+            Verdict::Error => "error",
+        }
+    }
+
+    /// The word for people: `PASS`, `MARGINAL`, `INCOMPLETE`, `FAIL`, `ERROR`.
+    pub fn label(self) -> &'static str {
+        match self {
+            Verdict::Pass => "PASS",
+            Verdict::Marginal => "MARGINAL",
+            Verdict::Incomplete => "INCOMPLETE",
+            Verdict::Fail => "FAIL",
+            Verdict::Error => "ERROR",
         }
     }
 }
@@ -187,6 +205,10 @@ pub struct Check {
     pub margin_percent: f64,
     /// (measured - nominal) / nominal * 100.
     pub deviation_percent: f64,
+    /// How the value was obtained when it is not a plain measurement (for instance a bound:
+    /// "at least", when the limit was not reached).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub note: Option<String>,
 }
 
 /// Judge one value against a band.
@@ -222,6 +244,7 @@ pub fn check(metric: &str, unit: &str, measured: f64, band: &ExpectedBand) -> Ch
         margin,
         margin_percent: pct(margin),
         deviation_percent: pct(measured - band.nominal),
+        note: None,
     }
 }
 
@@ -251,13 +274,38 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
     }
     match metrics.limit_current() {
         Some(i) => checks.push(check("limit_current", "A", i, &exp.limit_current)),
-        None => not_measured.push("limit_current".to_string()),
+        None => {
+            not_measured.push("limit_current".to_string());
+            // The limit was not reached, but the output still regulated above the highest
+            // worst-case limit: the limit is at least that high, which already fails.
+            let wc_max = exp.limit_current.worst_case.max;
+            let held = metrics
+                .knee
+                .and_then(|k| k.highest_regulating)
+                .filter(|p| p.current > wc_max);
+            if let Some(p) = held {
+                let mut c = check("limit_current", "A", p.current, &exp.limit_current);
+                c.note = Some(format!(
+                    "not reached: the output still regulated at {}, above the design's highest \
+                     worst-case limit {}; the limit is at least that",
+                    crate::quantity::eng(p.current, "A"),
+                    crate::quantity::eng(wc_max, "A")
+                ));
+                checks.push(c);
+            }
+        }
     }
     if let Some(band) = &exp.short_circuit_current {
         match &metrics.short_circuit {
             Some(sc) => checks.push(check("short_circuit_current", "A", sc.start_current, band)),
             None => not_measured.push("short_circuit_current".to_string()),
         }
+    }
+    if let Some(c) = metrics
+        .short_circuit
+        .and_then(|sc| recovery_check(&sc, exp))
+    {
+        checks.push(c);
     }
     let verdict = checks
         .iter()
@@ -272,6 +320,36 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
         likely_causes,
         not_measured,
     }
+}
+
+/// The output after the short was removed against the voltage it had to reach (the knee
+/// threshold): pass when it got there, fail when it did not (no marginal band).
+fn recovery_check(sc: &crate::analysis::ShortCircuit, exp: &DesignExpectation) -> Option<Check> {
+    let (v, thr) = (sc.recovery_voltage?, sc.recovery_threshold?);
+    let band = ExpectedBand {
+        nominal: exp.vout.nominal,
+        worst_case: Limits {
+            min: thr,
+            max: exp.vout.worst_case.max.max(thr),
+        },
+        monte_carlo: MonteCarlo {
+            samples: 0,
+            mean: exp.vout.nominal,
+            sigma: 0.0,
+            p_low: thr,
+            p_high: exp.vout.worst_case.max.max(thr),
+        },
+    };
+    let mut c = check("recovery_voltage", "V", v, &band);
+    // Above the worst-case output is not this check's business (output_voltage judges it).
+    if v > band.worst_case.max {
+        c.verdict = Verdict::Pass;
+    }
+    c.note = Some(format!(
+        "after the short was removed; it must reach {}",
+        crate::quantity::eng(thr, "V")
+    ));
+    Some(c)
 }
 
 /// The preferred value nearest to `value` (by ratio), from E12 when one lies within

@@ -18,9 +18,30 @@ pub struct Finished {
 }
 
 impl Finished {
-    /// The overall verdict, when the derived files were written.
+    /// The overall outcome of the run ([`crate::compare::judge`] through the summary), or
+    /// ERROR when the record could not be closed (run.json's final state not on disk) or the
+    /// summary and report could not be written: a verdict that is not on disk is lost.
     pub fn verdict(&self) -> Option<Verdict> {
-        self.written.as_ref().ok().and_then(|w| w.summary.verdict)
+        if self.report.finish_error.is_some() {
+            return Some(Verdict::Error);
+        }
+        match &self.written {
+            Ok(w) => w.summary.verdict,
+            Err(_) => Some(Verdict::Error),
+        }
+    }
+
+    /// Why the outcome is what it is (the summary's reasons, or the write failure).
+    pub fn reasons(&self) -> Vec<String> {
+        let mut v = Vec::new();
+        if let Some(e) = &self.report.finish_error {
+            v.push(format!("run.json's final state was not written: {e}"));
+        }
+        match &self.written {
+            Ok(w) => v.extend(w.summary.reasons.iter().cloned()),
+            Err(e) => v.push(format!("the summary and report were not written: {e}")),
+        }
+        v
     }
 }
 
@@ -63,6 +84,7 @@ pub fn write_derived(report: &RunReport, prep: &Prepared) -> Result<Written, Rep
         analysis,
         earlier,
         png: true,
+        plan_steps: Some(prep.plan.steps.iter().map(|s| s.kind).collect()),
     };
     crate::report::write_report_for_design(&report.dir, &prep.design, &prep.expectation, &opts)
 }

@@ -45,7 +45,8 @@ pub use error::PlanError;
 pub use knee::{KneeConfig, KneeOutcome, KneeRequest, KneeResult, KneeSearch};
 pub use quantity::{parse_quantity, tidy, Dim};
 pub use steps::{
-    recovery_readings, short_readings, Action, Interlocks, LoadSetting, Plan, ShortCircuit, Step,
+    recovery_readings, short_readings, step_kinds, Action, Interlocks, LoadSetting, Plan,
+    ShortCircuit, Step,
 };
 pub use targets::DesignTargets;
 

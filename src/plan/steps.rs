@@ -207,3 +207,24 @@ impl Plan {
         Ok(())
     }
 }
+
+/// The kinds of a plan's steps, in order, read from plan text without the design (what a
+/// record's plan snapshot promised). Errors name the file, line and column.
+pub fn step_kinds(text: &str, file: &str) -> Result<Vec<StepKind>, PlanError> {
+    let raw: RawPlan =
+        toml::from_str(text).map_err(|e| PlanError::Invalid(config::from_toml(file, text, &e)))?;
+    raw.step
+        .iter()
+        .map(|s| {
+            let kind = s.get_ref().kind.get_ref();
+            StepKind::parse(kind).ok_or_else(|| {
+                PlanError::Invalid(config::at_span(
+                    file,
+                    text,
+                    Some(s.get_ref().kind.span()),
+                    format!("unknown step kind '{kind}'"),
+                ))
+            })
+        })
+        .collect()
+}

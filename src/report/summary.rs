@@ -6,7 +6,7 @@ use crate::analysis::{self, AnalysisOptions, Metrics};
 use crate::compare::{
     self, Comparison, DesignExpectation, DriftFlag, HistoryEntry, KeyValues, Verdict,
 };
-use crate::record::{self, Outcome, RecordError, RecordState, Row, RunInfo, RunRecord};
+use crate::record::{self, Outcome, RecordError, RecordState, Row, RunInfo, RunRecord, StepKind};
 use serde::Serialize;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -73,9 +73,29 @@ pub struct Summary {
     pub metrics: Metrics,
     pub comparison: Option<Comparison>,
     pub drift: Vec<DriftFlag>,
-    /// Overall verdict ([`compare::record_verdict`]): the comparison's, or fail when the run
-    /// did not finish.
+    /// The metrics the plan's steps promise (all required), and where the steps were read.
+    pub promised: Vec<compare::Promised>,
+    pub promised_from: PromisedFrom,
+    /// Promised metrics the record lacks, with why.
+    pub missing: Vec<compare::Missing>,
+    /// Overall outcome ([`compare::judge`]): pass, marginal, fail, incomplete or error;
+    /// `null` only for a finished record judged against no design.
     pub verdict: Option<Verdict>,
+    /// Why the outcome is not a plain pass.
+    pub reasons: Vec<String>,
+}
+
+/// Where a summary found the plan's steps.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum PromisedFrom {
+    /// Given by the caller (the run that just ended).
+    Plan,
+    /// The record's plan.toml snapshot.
+    PlanSnapshot,
+    /// The step kinds seen in readings.csv (no readable plan snapshot: a step that never
+    /// wrote a row is not known).
+    Readings,
 }
 
 /// Options of a report.
@@ -86,6 +106,9 @@ pub struct ReportOptions {
     pub earlier: Vec<HistoryEntry>,
     /// Also write PNG files beside the SVG plots.
     pub png: bool,
+    /// The kinds of the plan's steps, in order (what the plan promises). `None`: read them
+    /// from the record's plan.toml snapshot ([`write_report`]), else from its rows.
+    pub plan_steps: Option<Vec<StepKind>>,
 }
 
 /// Build the summary of a record (pure).
@@ -112,8 +135,23 @@ pub fn summarize_record(
     }
     let metrics = analysis::analyse(rows, &aopts);
     let comparison = exp.map(|e| compare::compare(&metrics, e));
-    let verdict =
-        compare::record_verdict(info.outcome, state, comparison.as_ref().map(|c| c.verdict));
+    let (kinds, promised_from) = match &opts.plan_steps {
+        Some(k) => (k.clone(), PromisedFrom::Plan),
+        None => {
+            let mut k: Vec<StepKind> = rows.iter().map(|r| r.step_kind).collect();
+            k.dedup();
+            (k, PromisedFrom::Readings)
+        }
+    };
+    let promised = compare::promised_metrics(&kinds);
+    let missing = compare::missing_metrics(&metrics, &promised);
+    let facts = compare::RecordFacts {
+        outcome: info.outcome,
+        state,
+        reason: info.reason.as_deref(),
+    };
+    let judgement = compare::judge(facts, comparison.as_ref(), &missing);
+    let verdict = judgement.verdict;
     let this = entry_for(&record_name_of(info), info, &metrics, verdict);
     let mut all = opts.earlier.clone();
     all.push(this.clone());
@@ -143,7 +181,11 @@ pub fn summarize_record(
         metrics,
         comparison,
         drift,
+        promised,
+        promised_from,
+        missing,
         verdict,
+        reasons: judgement.reasons,
     }
 }
 
@@ -152,12 +194,7 @@ fn record_name_of(info: &RunInfo) -> String {
 }
 
 pub(super) fn outcome_str(o: Outcome) -> &'static str {
-    match o {
-        Outcome::Running => "running",
-        Outcome::Completed => "completed",
-        Outcome::Aborted => "aborted",
-        Outcome::Failed => "failed",
-    }
+    o.as_str()
 }
 
 pub(super) fn entry_for(
@@ -189,14 +226,30 @@ pub struct Written {
 }
 
 fn write_file(path: &Path, bytes: &[u8]) -> Result<(), ReportError> {
-    // Write a temporary file and rename it so a reader never sees half a report.
+    // Write a temporary file, sync it and rename it so a reader never sees half a report.
     let tmp = path.with_extension("tmp");
-    std::fs::write(&tmp, bytes)
-        .and_then(|_| std::fs::rename(&tmp, path))
-        .map_err(|source| ReportError::Write {
+    let write = || -> std::io::Result<()> {
+        let mut f = std::fs::File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        drop(f);
+        std::fs::rename(&tmp, path)
+    };
+    write().map_err(|source| {
+        let _ = std::fs::remove_file(&tmp);
+        ReportError::Write {
             path: path.to_path_buf(),
             source,
-        })
+        }
+    })
+}
+
+/// Sync a folder so the names of the files renamed into it are on disk.
+fn sync_folder(dir: &Path) -> Result<(), ReportError> {
+    record::sync_dir(dir).map_err(|source| ReportError::Write {
+        path: dir.to_path_buf(),
+        source,
+    })
 }
 
 /// Analyse a finished record folder and write `summary.json`, `plots/` and `report.html`
@@ -207,7 +260,38 @@ pub fn write_report(
     opts: &ReportOptions,
 ) -> Result<Written, ReportError> {
     let rec = load_record(dir)?;
-    let mut summary = summarize_record(&rec.info, Some(rec.state), &rec.rows, exp, opts);
+    let summary = evaluate_loaded(&rec, dir, exp, opts);
+    write_derived_files(&rec, dir, &summary, exp, opts)
+}
+
+/// The summary of a record folder without writing anything: the record read, the plan's
+/// steps taken from `opts` or the record's plan.toml snapshot, judged by the one rule.
+pub fn evaluate(
+    dir: &Path,
+    exp: Option<&DesignExpectation>,
+    opts: &ReportOptions,
+) -> Result<Summary, ReportError> {
+    let rec = load_record(dir)?;
+    Ok(evaluate_loaded(&rec, dir, exp, opts))
+}
+
+/// [`evaluate`] of a record already read from `dir`.
+pub fn evaluate_loaded(
+    rec: &RunRecord,
+    dir: &Path,
+    exp: Option<&DesignExpectation>,
+    opts: &ReportOptions,
+) -> Summary {
+    let mut opts = opts.clone();
+    let mut from = PromisedFrom::Plan;
+    if opts.plan_steps.is_none() {
+        opts.plan_steps = plan_snapshot_steps(dir);
+        from = PromisedFrom::PlanSnapshot;
+    }
+    let mut summary = summarize_record(&rec.info, Some(rec.state), &rec.rows, exp, &opts);
+    if summary.promised_from == PromisedFrom::Plan {
+        summary.promised_from = from;
+    }
     summary.record_state = state_word(rec.state).to_string();
     // Drift flags name the record by its folder.
     let folder = dir
@@ -217,6 +301,36 @@ pub fn write_report(
     for f in &mut summary.drift {
         f.record = folder.clone();
     }
+    summary
+}
+
+/// The kinds of the steps in a record's plan.toml snapshot, when it reads.
+fn plan_snapshot_steps(dir: &Path) -> Option<Vec<StepKind>> {
+    let text = std::fs::read_to_string(dir.join(record::PLAN_SNAPSHOT)).ok()?;
+    crate::plan::step_kinds(
+        &text,
+        &dir.join(record::PLAN_SNAPSHOT).display().to_string(),
+    )
+    .ok()
+}
+
+/// Write `summary.json`, `plots/` and `report.html` of the record `rec` into `out`
+/// (the record folder itself, or a re-evaluation folder beside it). Each file is written
+/// to a temporary name, synced and renamed, and the folder synced, so a reader never sees
+/// half a file and a written file survives a power cut.
+pub fn write_derived_files(
+    rec: &RunRecord,
+    out: &Path,
+    summary: &Summary,
+    exp: Option<&DesignExpectation>,
+    opts: &ReportOptions,
+) -> Result<Written, ReportError> {
+    let dir = out;
+    std::fs::create_dir_all(dir).map_err(|source| ReportError::Write {
+        path: dir.to_path_buf(),
+        source,
+    })?;
+    let summary = summary.clone();
     let mut files = Vec::new();
     let mut json = Vec::new();
     write_summary_json(&mut json, &summary).map_err(|source| ReportError::Write {
@@ -258,6 +372,8 @@ pub fn write_report(
     let p = dir.join("report.html");
     write_file(&p, &page)?;
     files.push(p);
+    sync_folder(&plots_dir)?;
+    sync_folder(dir)?;
     Ok(Written { summary, files })
 }
 

@@ -76,8 +76,8 @@ fn simulated_units_are_judged_and_the_wrong_sense_resistor_is_named() {
     );
     let stdout = String::from_utf8_lossy(&c.stdout);
     assert_eq!(c.status.code(), Some(1), "{stdout}");
-    assert!(stdout.contains("PASS      TLB-0001"), "{stdout}");
-    assert!(stdout.contains("FAIL      TLB-0002"), "{stdout}");
+    assert!(stdout.contains("PASS       TLB-0001"), "{stdout}");
+    assert!(stdout.contains("FAIL       TLB-0002"), "{stdout}");
 
     let h = regulus(
         &["history", "TLB-0002", "--records", "out", "--csv"],
