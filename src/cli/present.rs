@@ -424,3 +424,95 @@ pub fn chain_text(e: &dyn std::error::Error) -> String {
     }
     text
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::pipeline::Finished;
+    use crate::record::{FileAction, RecordError};
+    use std::path::PathBuf;
+
+    fn report(finish_error: Option<RecordError>) -> RunReport {
+        RunReport {
+            outcome: Outcome::Completed,
+            reason: None,
+            dir: PathBuf::from("records/U1/20260101T000000Z_p"),
+            rows: 12,
+            steps: vec![],
+            safe_state_errors: vec![],
+            info: None,
+            finish_error,
+        }
+    }
+
+    fn no_space() -> std::io::Error {
+        // ENOSPC (POSIX): what a full disk answers to a write.
+        std::io::Error::from_raw_os_error(28)
+    }
+
+    #[test]
+    fn a_record_whose_final_state_is_not_on_disk_is_not_called_closed_and_is_an_error() {
+        let e = RecordError::Io {
+            action: FileAction::Sync,
+            path: "records/U1/x/run.json".into(),
+            source: no_space(),
+        };
+        let f = Finished {
+            report: report(Some(e)),
+            written: Err(crate::report::ReportError::Write {
+                path: "s".into(),
+                source: no_space(),
+            }),
+        };
+        assert_eq!(f.verdict(), Some(Verdict::Error));
+        assert_eq!(super::super::for_verdict(f.verdict()), 4);
+        assert!(f.reasons()[0].contains("run.json's final state was not written"));
+        let mut out = Vec::new();
+        write_summary(&mut out, &f.report).unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert!(text.contains("NOT closed"), "{text}");
+        assert!(!text.contains("(record closed)"), "{text}");
+
+        let mut out = Vec::new();
+        write_summary(&mut out, &report(None)).unwrap();
+        assert!(String::from_utf8(out).unwrap().contains("(record closed)"));
+    }
+
+    #[test]
+    fn unwritten_derived_files_make_the_run_an_error() {
+        let f = Finished {
+            report: report(None),
+            written: Err(crate::report::ReportError::Write {
+                path: "records/U1/x/summary.json".into(),
+                source: no_space(),
+            }),
+        };
+        assert_eq!(f.verdict(), Some(Verdict::Error));
+        assert!(
+            f.reasons()[0].contains("were not written"),
+            "{:?}",
+            f.reasons()
+        );
+    }
+
+    struct Closed;
+    impl Write for Closed {
+        fn write(&mut self, _: &[u8]) -> std::io::Result<usize> {
+            Err(std::io::ErrorKind::BrokenPipe.into())
+        }
+        fn flush(&mut self) -> std::io::Result<()> {
+            Err(std::io::ErrorKind::BrokenPipe.into())
+        }
+    }
+
+    #[test]
+    fn the_console_swallows_a_closed_pipe_and_remembers_it() {
+        let mut c = Console::new(Closed);
+        assert!(writeln!(c, "verdict: PASS").is_ok());
+        assert!(c.flush().is_ok());
+        assert_eq!(
+            c.failure().map(|e| e.kind()),
+            Some(std::io::ErrorKind::BrokenPipe)
+        );
+    }
+}

@@ -247,6 +247,10 @@ fn sigint_mid_plan_reaches_the_safe_state_with_exit_3() {
     let (code, stdout, stderr) = child.finish();
     assert_eq!(code, Some(3), "{stdout}\n{stderr}");
     assert!(stderr.contains("interrupt"), "{stderr}");
+    // Stopped by the operator: INCOMPLETE with the reason, not FAIL.
+    assert!(stdout.contains("verdict: INCOMPLETE"), "{stdout}");
+    assert!(stdout.contains("interrupted by the operator"), "{stdout}");
+    assert!(!stdout.contains("FAIL"), "{stdout}");
     let rec = read_run(&dir).unwrap();
     assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted));
     assert_eq!(

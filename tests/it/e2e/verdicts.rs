@@ -1,0 +1,261 @@
+//! The outcome contract end to end on the simulated bench (the built binary over real
+//! pseudo-terminals and loopback TCP): a limit the plan never reached is not a pass, a plan
+//! that judges nothing is not a pass, a killed run reads back INCOMPLETE, `--json` prints
+//! one object, a closed stdout changes neither the exit code nor the files written, and a
+//! report that cannot be written (file-size limit) is an ERROR. Exit codes:
+//! docs/ARCHITECTURE.md "Exit codes".
+
+use crate::support::e2e::{serial, show, wait_rows, Rig};
+use regulus::sim::{Fault, SimOptions};
+use std::os::unix::process::CommandExt;
+use std::process::Stdio;
+use std::time::Duration;
+
+const LAB: &str = "teaching-lab-0-20v.toml";
+
+/// A knee search alone, with the power interlock raised so the search can go far.
+const KNEE_ONLY: &str = r#"
+name = "knee-only"
+source = "100 % of vin"
+settle = "40 ms"
+samples = 1
+
+[interlocks]
+max_load_power = "200 W"
+
+[[step]]
+kind = "knee_search"
+drop = "2 %"
+"#;
+
+/// A load sweep and a knee search: quick, and judged on voltage and limit.
+const QUICK: &str = r#"
+name = "quick"
+source = "100 % of vin"
+settle = "40 ms"
+samples = 1
+
+[[step]]
+kind = "load_sweep"
+from = "0 A"
+to = "max_load"
+points = 4
+
+[[step]]
+kind = "knee_search"
+drop = "2 %"
+"#;
+
+#[test]
+fn a_limit_far_above_the_design_never_passes_by_omission() {
+    // A 0.1 ohm sense resistor where the design has 0.39 ohm puts the limit near 6.4 A on a
+    // 1.15-2.21 A design (I = V_sense / R_sense); the knee search stops at its ceiling with
+    // the output still regulating: the limit was not measured, and what was measured
+    // already lies above the worst case.
+    let _g = serial();
+    let fault = Fault::parse("sense=0.1").unwrap();
+    let rig = Rig::start(LAB, SimOptions::default().seed(201).fault(fault));
+    let out = rig.run("E2E-0201", KNEE_ONLY);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert_ne!(out.status.code(), Some(0), "{}", show(&out));
+    assert!(!stdout.contains("verdict: PASS"), "{}", show(&out));
+    assert_eq!(out.status.code(), Some(1), "{}", show(&out));
+    assert!(stdout.contains("verdict: FAIL"), "{}", show(&out));
+    assert!(
+        stdout.contains("limit_current not measured"),
+        "{}",
+        show(&out)
+    );
+    assert!(
+        stdout.contains("the limit is at least that"),
+        "{}",
+        show(&out)
+    );
+}
+
+#[test]
+fn a_line_and_soak_plan_judges_nothing_and_is_incomplete() {
+    let _g = serial();
+    let rig = Rig::start(LAB, SimOptions::default().seed(202));
+    let out = rig.run(
+        "E2E-0202",
+        r#"
+name = "line-soak"
+source = "100 % of vin"
+settle = "40 ms"
+samples = 1
+
+[[step]]
+kind = "line_sweep"
+from = "90 % of vin"
+to = "110 % of vin"
+points = 3
+load = "50 % of max_load"
+
+[[step]]
+kind = "soak"
+load = "50 % of max_load"
+duration = "600 ms"
+interval = "200 ms"
+"#,
+    );
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(3), "{}", show(&out));
+    assert!(stdout.contains("verdict: INCOMPLETE"), "{}", show(&out));
+    assert!(stdout.contains("nothing was judged"), "{}", show(&out));
+    // The line regulation and the soak were measured all the same.
+    let dir = rig.run_dir("E2E-0202");
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    assert!(s["metrics"]["line_regulation"].is_object(), "{s}");
+    assert!(s["metrics"]["soak"].is_object(), "{s}");
+    assert_eq!(s["verdict"], "incomplete");
+}
+
+#[test]
+fn a_run_killed_during_the_short_reads_back_incomplete() {
+    let _g = serial();
+    let rig = Rig::start(LAB, SimOptions::default().seed(203));
+    let child = rig.spawn(
+        "E2E-0203",
+        r#"
+name = "short-long"
+source = "100 % of vin"
+settle = "40 ms"
+samples = 1
+
+[interlocks]
+max_short_dwell = "30 s"
+
+[[step]]
+kind = "load_sweep"
+from = "0 A"
+to = "max_load"
+points = 3
+
+[[step]]
+kind = "short_circuit"
+dwell = "20 s"
+interval = "100 ms"
+"#,
+    );
+    let dir = rig.wait_run_dir("E2E-0203", Duration::from_secs(20));
+    // Three sweep rows, then a few rows into the dwell.
+    wait_rows(&dir, 6, Duration::from_secs(30));
+    child.signal(libc::SIGKILL);
+    let (code, _, _) = child.finish();
+    assert_eq!(code, None, "killed by the signal");
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_regulus"))
+        .arg("report")
+        .arg(&dir)
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(3), "{}", show(&out));
+    assert!(stdout.contains("verdict: INCOMPLETE"), "{}", show(&out));
+    assert!(stdout.contains("never finished"), "{}", show(&out));
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(s["outcome"], "running");
+    assert_eq!(s["verdict"], "incomplete");
+}
+
+#[test]
+fn run_json_prints_one_result_object() {
+    let _g = serial();
+    let fault = Fault::parse("sense=0.68").unwrap();
+    let rig = Rig::start(LAB, SimOptions::default().seed(204).fault(fault));
+    let plan = rig.write_plan(QUICK);
+    let out = rig
+        .command("E2E-0204", &plan)
+        .arg("--json")
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(1), "{}", show(&out));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout)
+        .unwrap_or_else(|e| panic!("stdout is not one JSON object ({e}): {}", show(&out)));
+    assert_eq!(v["outcome"], "fail");
+    assert_eq!(v["exit_code"], 1);
+    assert_eq!(v["record_closed"], true);
+    assert_eq!(v["run_outcome"], "completed");
+    assert!(!v["reasons"].as_array().unwrap().is_empty(), "{v}");
+    assert_eq!(v["summary"]["verdict"], "fail");
+    assert!(v["files"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|f| f.as_str().unwrap().ends_with("report.html")));
+}
+
+#[test]
+fn a_closed_stdout_changes_neither_the_exit_code_nor_the_files() {
+    // `regulus run ... | head -4` where the reader is gone before anything is printed: every
+    // write to stdout fails with a broken pipe. The failing unit still exits 1 and its
+    // summary and report are on disk.
+    let _g = serial();
+    let fault = Fault::parse("sense=0.68").unwrap();
+    let rig = Rig::start(LAB, SimOptions::default().seed(205).fault(fault));
+    let plan = rig.write_plan(QUICK);
+    let mut child = rig
+        .command("E2E-0205", &plan)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    drop(child.stdout.take());
+    let out = child.wait_with_output().unwrap();
+    assert_eq!(out.status.code(), Some(1), "{}", show(&out));
+    let dir = rig.run_dir("E2E-0205");
+    assert!(dir.join("summary.json").is_file());
+    assert!(dir.join("report.html").is_file());
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(s["verdict"], "fail");
+    let info: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("run.json")).unwrap()).unwrap();
+    assert_eq!(info["outcome"], "completed");
+}
+
+#[test]
+fn a_report_that_cannot_be_written_is_a_station_error() {
+    // The child runs with a file-size limit (RLIMIT_FSIZE, POSIX setrlimit) of 24 KiB and
+    // SIGXFSZ ignored, so writing past it fails with EFBIG, as a full disk fails a write: the
+    // small record files fit, the report page with its inline plots does not.
+    let _g = serial();
+    let rig = Rig::start(LAB, SimOptions::default().seed(206));
+    let plan = rig.write_plan(QUICK);
+    let mut cmd = rig.command("E2E-0206", &plan);
+    // SAFETY: only async-signal-safe calls (signal, setrlimit) between fork and exec.
+    unsafe {
+        cmd.pre_exec(|| {
+            libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
+            let lim = libc::rlimit {
+                rlim_cur: 24 * 1024,
+                rlim_max: 24 * 1024,
+            };
+            if libc::setrlimit(libc::RLIMIT_FSIZE, &lim) != 0 {
+                return Err(std::io::Error::last_os_error());
+            }
+            Ok(())
+        });
+    }
+    let out = cmd.output().unwrap();
+    let all = show(&out);
+    assert_eq!(out.status.code(), Some(4), "{all}");
+    assert!(all.contains("verdict: ERROR"), "{all}");
+    assert!(all.contains("were not written"), "{all}");
+    let dir = rig.run_dir("E2E-0206");
+    // The record itself is closed: run.json holds its final state.
+    let info: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("run.json")).unwrap()).unwrap();
+    assert_eq!(info["outcome"], "completed");
+    assert!(!dir.join("report.html").exists(), "no half-written page");
+    assert!(
+        std::fs::read_dir(&dir).unwrap().all(|e| !e
+            .unwrap()
+            .file_name()
+            .to_string_lossy()
+            .ends_with(".tmp")),
+        "no temporary file left behind"
+    );
+}
