@@ -323,3 +323,28 @@ mod property {
         }
     }
 }
+
+#[test]
+fn help_lists_every_exit_code() {
+    let tmp = tempfile::tempdir().unwrap();
+    for args in [
+        &["--help"][..],
+        &["run", "--help"],
+        &["report", "--help"],
+        &["compare", "--help"],
+    ] {
+        let out = regulus(args, tmp.path());
+        let t = text(&out);
+        assert_eq!(out.status.code(), Some(0), "{t}");
+        for line in [
+            "0  PASS",
+            "1  FAIL",
+            "2  usage",
+            "3  INCOMPLETE",
+            "4  ERROR",
+            "5  MARGINAL",
+        ] {
+            assert!(t.contains(line), "{args:?}: {line}: {t}");
+        }
+    }
+}
