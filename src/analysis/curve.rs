@@ -89,15 +89,31 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
     let threshold = knee.as_ref().map(|k| k.threshold_voltage);
 
     let full_load = match (threshold, opts.full_load_current) {
-        (Some(_), Some(i_fl)) => {
-            let p = interpolate_at_current(&sweep, i_fl);
-            if p.is_none() {
-                notes.push(format!(
-                    "full-load current {i_fl} A lies outside the load sweep"
-                ));
+        (Some(thr), Some(i_fl)) => match interpolate_at_current(&sweep, i_fl) {
+            Some(p) => Some(p),
+            None => {
+                // The rated load was not reached: regulation at the highest regulating point,
+                // and a note of which load that was and why.
+                let reached = sweep
+                    .iter()
+                    .filter(|p| p.voltage >= thr)
+                    .copied()
+                    .max_by(|a, b| a.current.total_cmp(&b.current));
+                let top = sweep.iter().map(|p| p.current).fold(0.0, f64::max);
+                if let Some(p) = reached {
+                    notes.push(format!(
+                        "load regulation taken at {:.4} A, the highest regulating load-sweep \
+                         point, not at the rated load {i_fl} A: the sweep went up to {top:.4} A",
+                        p.current
+                    ));
+                } else {
+                    notes.push(format!(
+                        "full-load current {i_fl} A lies outside the load sweep"
+                    ));
+                }
+                reached
             }
-            p
-        }
+        },
         (Some(thr), None) => sweep
             .iter()
             .filter(|p| p.voltage >= thr)

@@ -108,6 +108,9 @@ pub fn confirm_short_circuit(
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
     let prep = prepare(&args)?;
+    for note in prep.plan.beyond_design_notes() {
+        eprintln!("CAUTION: {note}");
+    }
     let stdin = std::io::stdin();
     confirm_short_circuit(
         &prep.plan,

@@ -109,6 +109,10 @@ pub struct DesignExpectation {
     pub curve_low: Vec<(f64, f64)>,
     #[serde(default)]
     pub curve_high: Vec<(f64, f64)>,
+    /// The design's rated (maximum continuous) load current, A: where load regulation is
+    /// taken.
+    #[serde(default)]
+    pub rated_load_a: Option<f64>,
 }
 
 impl DesignExpectation {
@@ -147,6 +151,7 @@ impl DesignExpectation {
             curve: e.curve.clone(),
             curve_low: e.curve_low.clone(),
             curve_high: e.curve_high.clone(),
+            rated_load_a: Some(d.load.max_current_a).filter(|i| i.is_finite() && *i > 0.0),
         }
     }
 }
@@ -597,6 +602,7 @@ mod tests {
             curve: vec![],
             curve_low: vec![],
             curve_high: vec![],
+            rated_load_a: None,
         };
         let checks = vec![check("limit_current", "A", 0.6 / 0.68, &exp.limit_current)];
         assert_eq!(checks[0].verdict, Verdict::Fail);
@@ -634,6 +640,7 @@ mod tests {
             curve: vec![],
             curve_low: vec![],
             curve_high: vec![],
+            rated_load_a: None,
         };
         let checks = vec![check("limit_current", "A", 1.95, &exp.limit_current)];
         let m = crate::analysis::analyse(&[], &Default::default());
@@ -703,6 +710,7 @@ mod tests {
             curve: vec![],
             curve_low: vec![],
             curve_high: vec![],
+            rated_load_a: None,
         };
         let measured = 0.71 / 0.68;
         let checks = vec![check("limit_current", "A", measured, &exp.limit_current)];

@@ -89,6 +89,16 @@ impl Cx<'_> {
             Some(l) => l.get_ref().clone(),
             None => format!("{} {}", index + 1, kind.as_str()),
         };
+        let beyond_design = match &s.beyond_design {
+            Some(b) if b.get_ref().trim().is_empty() => {
+                return Err(self.at(
+                    b.span(),
+                    "`beyond_design` must say why this step may go beyond the design                      (it is shown in the record and the report)",
+                ))
+            }
+            Some(b) => Some(b.get_ref().trim().to_string()),
+            None => None,
+        };
         let settle = match &s.settle {
             Some(v) => self.duration(v, "settle")?,
             None => settle,
@@ -179,6 +189,7 @@ impl Cx<'_> {
         Ok(Step {
             kind,
             label,
+            beyond_design,
             settle,
             samples,
             action,

@@ -35,6 +35,10 @@ pub(super) struct RawInterlocks {
 pub(super) struct RawStep {
     pub(super) kind: Spanned<String>,
     pub(super) label: Option<Spanned<String>>,
+    /// Why this step may go beyond what the design allows (a CC load above its lowest
+    /// worst-case limit, past an interlock); shown on the console, in the record's plan
+    /// snapshot and in the report.
+    pub(super) beyond_design: Option<Spanned<String>>,
     pub(super) settle: Option<SV>,
     pub(super) samples: Option<SV>,
     pub(super) mode: Option<Spanned<String>>,

@@ -73,6 +73,9 @@ pub enum Action {
 pub struct Step {
     pub kind: StepKind,
     pub label: String,
+    /// The plan's reason for letting this step go beyond the design (`beyond_design`), which
+    /// lifts the design checks of `Plan::parse_for_design` for it.
+    pub beyond_design: Option<String>,
     pub settle: Duration,
     pub samples: u32,
     pub action: Action,
@@ -208,23 +211,45 @@ impl Plan {
     }
 }
 
-/// The kinds of a plan's steps, in order, read from plan text without the design (what a
-/// record's plan snapshot promised). Errors name the file, line and column.
-pub fn step_kinds(text: &str, file: &str) -> Result<Vec<StepKind>, PlanError> {
+/// One step of a plan as read without the design: its kind, label and `beyond_design`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StepOutline {
+    pub kind: StepKind,
+    pub label: Option<String>,
+    pub beyond_design: Option<String>,
+}
+
+/// The steps of plan text, in order, read without the design (what a record's plan
+/// snapshot promised). Errors name the file, line and column.
+pub fn outline(text: &str, file: &str) -> Result<Vec<StepOutline>, PlanError> {
     let raw: RawPlan =
         toml::from_str(text).map_err(|e| PlanError::Invalid(config::from_toml(file, text, &e)))?;
     raw.step
         .iter()
         .map(|s| {
-            let kind = s.get_ref().kind.get_ref();
-            StepKind::parse(kind).ok_or_else(|| {
+            let s = s.get_ref();
+            let kind = s.kind.get_ref();
+            let kind = StepKind::parse(kind).ok_or_else(|| {
                 PlanError::Invalid(config::at_span(
                     file,
                     text,
-                    Some(s.get_ref().kind.span()),
+                    Some(s.kind.span()),
                     format!("unknown step kind '{kind}'"),
                 ))
+            })?;
+            Ok(StepOutline {
+                kind,
+                label: s.label.as_ref().map(|l| l.get_ref().clone()),
+                beyond_design: s
+                    .beyond_design
+                    .as_ref()
+                    .map(|b| b.get_ref().trim().to_string()),
             })
         })
         .collect()
+}
+
+/// The kinds of a plan's steps, in order (see [`outline`]).
+pub fn step_kinds(text: &str, file: &str) -> Result<Vec<StepKind>, PlanError> {
+    Ok(outline(text, file)?.into_iter().map(|s| s.kind).collect())
 }

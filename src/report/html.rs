@@ -63,13 +63,22 @@ pub fn write_html<W: Write>(
         e(&info.unit),
         e(&info.plan_name)
     )?;
-    let overall = match s.verdict {
+    let mut overall = match s.verdict {
         Some(v) => format!(
             "<table><tr><th>Overall verdict</th>{}</tr></table>",
             verdict_cell(v)
         ),
         None => "<p>No design expectation was given: metrics only, no verdict.</p>".into(),
     };
+    // Why the outcome is not a plain pass, and steps the plan ran beyond the design.
+    for (title, lines) in [("Why", &s.reasons), ("Beyond the design", &s.beyond_design)] {
+        if !lines.is_empty() {
+            let items: String = lines.iter().map(|r| format!("<li>{}</li>", e(r))).collect();
+            overall.push_str(&format!(
+                "<p>{title}:</p><ul class=\"reasons\">{items}</ul>"
+            ));
+        }
+    }
     writeln!(
         w,
         "<h1>Unit {} &mdash; plan {}</h1>\n{overall}",

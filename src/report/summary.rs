@@ -83,6 +83,8 @@ pub struct Summary {
     pub verdict: Option<Verdict>,
     /// Why the outcome is not a plain pass.
     pub reasons: Vec<String>,
+    /// Steps the plan let go beyond the design (`beyond_design`), with why.
+    pub beyond_design: Vec<String>,
 }
 
 /// Where a summary found the plan's steps.
@@ -132,6 +134,9 @@ pub fn summarize_record(
     let mut aopts = opts.analysis.clone();
     if aopts.nominal_voltage.is_none() {
         aopts.nominal_voltage = exp.map(|e| e.vout.nominal);
+    }
+    if aopts.full_load_current.is_none() {
+        aopts.full_load_current = exp.and_then(|e| e.rated_load_a);
     }
     let metrics = analysis::analyse(rows, &aopts);
     let comparison = exp.map(|e| compare::compare(&metrics, e));
@@ -186,6 +191,7 @@ pub fn summarize_record(
         missing,
         verdict,
         reasons: judgement.reasons,
+        beyond_design: Vec::new(),
     }
 }
 
@@ -284,14 +290,33 @@ pub fn evaluate_loaded(
 ) -> Summary {
     let mut opts = opts.clone();
     let mut from = PromisedFrom::Plan;
+    let snapshot = plan_snapshot(dir);
     if opts.plan_steps.is_none() {
-        opts.plan_steps = plan_snapshot_steps(dir);
+        opts.plan_steps = snapshot
+            .as_ref()
+            .map(|s| s.iter().map(|o| o.kind).collect());
         from = PromisedFrom::PlanSnapshot;
     }
     let mut summary = summarize_record(&rec.info, Some(rec.state), &rec.rows, exp, &opts);
     if summary.promised_from == PromisedFrom::Plan {
         summary.promised_from = from;
     }
+    summary.beyond_design = snapshot
+        .iter()
+        .flatten()
+        .enumerate()
+        .filter_map(|(k, o)| {
+            let why = o.beyond_design.as_ref()?;
+            let label = o
+                .label
+                .clone()
+                .unwrap_or_else(|| o.kind.as_str().to_string());
+            Some(format!(
+                "step {} ('{label}') ran beyond the design: {why}",
+                k + 1
+            ))
+        })
+        .collect();
     summary.record_state = state_word(rec.state).to_string();
     // Drift flags name the record by its folder.
     let folder = dir
@@ -304,10 +329,10 @@ pub fn evaluate_loaded(
     summary
 }
 
-/// The kinds of the steps in a record's plan.toml snapshot, when it reads.
-fn plan_snapshot_steps(dir: &Path) -> Option<Vec<StepKind>> {
+/// The steps of a record's plan.toml snapshot, when it reads.
+fn plan_snapshot(dir: &Path) -> Option<Vec<crate::plan::StepOutline>> {
     let text = std::fs::read_to_string(dir.join(record::PLAN_SNAPSHOT)).ok()?;
-    crate::plan::step_kinds(
+    crate::plan::outline(
         &text,
         &dir.join(record::PLAN_SNAPSHOT).display().to_string(),
     )

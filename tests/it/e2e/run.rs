@@ -25,7 +25,7 @@ max_short_dwell = "1 s"
 [[step]]
 kind = "load_sweep"
 from = "0 A"
-to = "max_load"
+to = "95 % of max_load"
 points = 5
 
 [[step]]
@@ -64,7 +64,7 @@ samples = 1
 [[step]]
 kind = "load_sweep"
 from = "0 A"
-to = "max_load"
+to = "95 % of max_load"
 points = 400
 "#;
 

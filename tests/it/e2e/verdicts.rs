@@ -38,7 +38,7 @@ samples = 1
 [[step]]
 kind = "load_sweep"
 from = "0 A"
-to = "max_load"
+to = "95 % of max_load"
 points = 4
 
 [[step]]
@@ -130,7 +130,7 @@ max_short_dwell = "30 s"
 [[step]]
 kind = "load_sweep"
 from = "0 A"
-to = "max_load"
+to = "95 % of max_load"
 points = 3
 
 [[step]]
@@ -258,4 +258,43 @@ fn a_report_that_cannot_be_written_is_a_station_error() {
             .ends_with(".tmp")),
         "no temporary file left behind"
     );
+}
+
+#[test]
+fn a_plan_the_design_forbids_is_refused_before_any_port_opens() {
+    // A CC load sweep to 200 % of the limit on the foldback sample, and a load-power
+    // interlock a 3 A sweep must exceed on the 12 V sample: both refused with file, line and
+    // column (exit 2), and no record is created.
+    let _g = serial();
+    let rig = Rig::start(
+        "fixed-12v-3a-foldback.toml",
+        SimOptions::default().seed(207),
+    );
+    for (text, line) in [
+        (
+            "name = \"cc200\"\n[[step]]\nkind = \"load_sweep\"\nfrom = \"0 A\"\n\
+             to = \"200 % of limit\"\npoints = 5\n",
+            ":5:6: ",
+        ),
+        (
+            "name = \"p10\"\n[interlocks]\nmax_load_power = \"10 W\"\n[[step]]\n\
+             kind = \"load_sweep\"\nfrom = \"0 A\"\nto = \"3 A\"\npoints = 4\n",
+            ":3:18: ",
+        ),
+    ] {
+        let out = rig.run("E2E-0207", text);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{}", show(&out));
+        assert!(
+            stderr.contains(&format!("plan.toml{line}")),
+            "{line}: {}",
+            show(&out)
+        );
+        assert!(stderr.contains("beyond_design"), "{}", show(&out));
+        assert!(
+            !rig.records.join("E2E-0207").exists(),
+            "a record was started"
+        );
+        assert!(!rig.load_input_on());
+    }
 }

@@ -51,6 +51,7 @@ fn expectation() -> DesignExpectation {
         curve: vec![],
         curve_low: vec![],
         curve_high: vec![],
+        rated_load_a: None,
     }
 }
 

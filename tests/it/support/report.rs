@@ -154,6 +154,7 @@ pub fn expectation() -> DesignExpectation {
         curve: vec![],
         curve_low: vec![],
         curve_high: vec![],
+        rated_load_a: None,
     }
 }
 
