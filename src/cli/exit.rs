@@ -91,6 +91,9 @@ pub fn exit_code_for(err: &anyhow::Error) -> u8 {
             return c.code;
         }
         if let Some(e) = cause.downcast_ref::<crate::pipeline::PipelineError>() {
+            if e.is_stopped_before_stress() {
+                return EXIT_INCOMPLETE;
+            }
             return config_or_abort(e.is_config());
         }
         if let Some(e) = cause.downcast_ref::<crate::bench::BenchError>() {

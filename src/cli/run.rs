@@ -44,6 +44,10 @@ pub struct Args {
     /// files, summary) instead of lines for people.
     #[arg(long)]
     pub json: bool,
+    /// Skip the pre-flight check (the unloaded output compared with the design's band before
+    /// any stress); use it only for a unit you know differs from its design file.
+    #[arg(long)]
+    pub no_preflight: bool,
 }
 
 impl Args {
@@ -65,7 +69,11 @@ impl Args {
 /// pipeline). Every failure is a usage or configuration error (exit 2) naming the file, line
 /// and column where there is one.
 pub fn prepare(args: &Args) -> anyhow::Result<Prepared> {
-    Ok(pipeline::prepare(&args.request())?)
+    let mut prep = pipeline::prepare(&args.request())?;
+    if args.no_preflight {
+        prep.preflight = pipeline::Preflight::Skip;
+    }
+    Ok(prep)
 }
 
 /// Print the short-circuit cautions and ask. `yes` skips the question; without a terminal on

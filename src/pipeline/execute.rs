@@ -45,7 +45,8 @@ impl Finished {
     }
 }
 
-/// Run a prepared plan on an open bench and write the derived files. When the runner refuses
+/// Take the pre-flight reading (see [`super::preflight`]), run a prepared plan on an open
+/// bench and write the derived files. When the runner refuses
 /// to start (missing roles, the record cannot be created), the bench is put in its safe state
 /// and the error is returned together with the safe-state failures.
 pub async fn execute<B: BenchControl, O: Observer>(
@@ -55,6 +56,7 @@ pub async fn execute<B: BenchControl, O: Observer>(
     observer: &mut O,
     cancel: &CancelToken,
 ) -> Result<Finished, PipelineError> {
+    super::preflight(bench, prep, cancel).await?;
     let setup = RunSetup {
         records: &req.records,
         unit: req.unit.clone(),

@@ -82,6 +82,8 @@ pub struct Prepared {
     pub design_file: InputFile,
     pub bench_file: InputFile,
     pub plan_file: InputFile,
+    /// Whether the unloaded output is checked against the design before the plan runs.
+    pub preflight: super::Preflight,
 }
 
 impl Prepared {
@@ -144,5 +146,6 @@ pub fn prepare(req: &RunRequest) -> Result<Prepared, PipelineError> {
         design_file,
         bench_file,
         plan_file,
+        preflight: super::Preflight::Check,
     })
 }

@@ -87,6 +87,7 @@ fn search(design_name: &str, seed: u64, fault: Option<&str>) -> Found {
         note: None,
         yes: true,
         json: false,
+        no_preflight: false,
     };
     let prep = prepare(&args).unwrap();
     let cfg = BenchConfig::load(&bench_path).unwrap();

@@ -298,3 +298,42 @@ fn a_plan_the_design_forbids_is_refused_before_any_port_opens() {
         assert!(!rig.load_input_on());
     }
 }
+
+#[test]
+fn a_unit_that_does_not_look_like_the_design_stops_at_the_pre_flight() {
+    // The 20 V teaching-lab design given for a simulated 12 V unit: the unloaded output
+    // (about 12.0 V against 19.7-21.1 V) stops the run before any load is applied; no record
+    // is started and the bench is left safe. --no-preflight goes ahead, and the run fails.
+    let _g = serial();
+    let mut rig = Rig::start(
+        "fixed-12v-3a-foldback.toml",
+        SimOptions::default().seed(208),
+    );
+    rig.design_path = crate::support::e2e::sample(LAB);
+    let plan = rig.write_plan(QUICK);
+    let out = rig.command("E2E-0208", &plan).output().unwrap();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(3), "{}", show(&out));
+    assert!(
+        stderr.contains("does not look like the design"),
+        "{}",
+        show(&out)
+    );
+    assert!(stderr.contains("reads 12."), "{}", show(&out));
+    assert!(stderr.contains("--no-preflight"), "{}", show(&out));
+    assert!(
+        !rig.records.join("E2E-0208").exists(),
+        "a record was started"
+    );
+    let (_, _, c) = rig.sim.state();
+    assert!(!c.load.input_on, "load input on");
+    assert!(!c.source.output_on, "source output left on");
+
+    let out = rig
+        .command("E2E-0208", &plan)
+        .arg("--no-preflight")
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(1), "{}", show(&out));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("output_voltage"));
+}

@@ -21,6 +21,7 @@ fn args(tmp: &std::path::Path, plan: &str) -> Args {
         note: Some("first article".into()),
         yes: true,
         json: false,
+        no_preflight: false,
     }
 }
 
