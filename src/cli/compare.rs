@@ -29,6 +29,11 @@ pub struct Args {
     /// Outlier limit on |z| across units.
     #[arg(long, default_value_t = compare::DEFAULT_OUTLIER_Z)]
     pub z_limit: f64,
+    /// Smallest difference from the other units worth an outlier flag, as METRIC=VALUE in
+    /// the metric's unit (e.g. output_resistance=0.002); repeatable. Default: 5 % of the
+    /// design's tolerance band, at least a few meter counts.
+    #[arg(long, value_name = "METRIC=VALUE")]
+    pub floor: Vec<String>,
     /// Print JSON instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -110,6 +115,23 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     if args.z_limit.is_nan() || args.z_limit <= 0.0 {
         return Err(usage("--z-limit must be positive (default 3)"));
     }
+    let mut floors = Vec::new();
+    for f in &args.floor {
+        let parsed = f
+            .split_once('=')
+            .and_then(|(k, v)| Some((KeyMetric::parse(k.trim())?, v.trim().parse::<f64>().ok()?)));
+        match parsed {
+            Some((k, v)) if v.is_finite() && v >= 0.0 => floors.push((k, v)),
+            _ => {
+                let names: Vec<&str> = KeyMetric::ALL.iter().map(|k| k.as_str()).collect();
+                return Err(usage(format!(
+                    "--floor {f}: give METRIC=VALUE with METRIC one of {} and VALUE a \
+                     non-negative number in the metric's unit",
+                    names.join(", ")
+                )));
+            }
+        }
+    }
     let exp = load_expectation(&args.design)?;
     let mut dirs = Vec::new();
     for r in &args.records {
@@ -167,7 +189,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             .map(|b| (KeyMetric::ShortCircuitCurrent, b.worst_case)),
     )
     .collect::<Vec<_>>();
-    let population = compare::population(&units, &specs, args.z_limit);
+    let population = compare::population_with_floors(&units, &specs, args.z_limit, &floors);
     if let Some(dir) = &args.plot_dir {
         std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
         for (metric, spec) in &specs {
