@@ -150,7 +150,16 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
 
     let output_resistance = match (&knee, threshold) {
         (Some(k), Some(thr)) => {
-            let region = regulation_region(&curve, thr, k.fixed_drop, opts.regulation_span);
+            let wide = regulation_region(&curve, thr, k.fixed_drop, opts.regulation_span);
+            let region = before_knee_onset(&wide, no_load.map(|p| p.voltage).unwrap_or(0.0));
+            if region.len() < wide.len() {
+                let top = region.iter().map(|p| p.current).fold(0.0, f64::max);
+                notes.push(format!(
+                    "output resistance fitted up to {top:.4} A: {} higher point(s) fell below \
+                     the regulation line (knee onset) and were left out",
+                    wide.len() - region.len()
+                ));
+            }
             let xs: Vec<f64> = region.iter().map(|p| p.current).collect();
             let ys: Vec<f64> = region.iter().map(|p| p.voltage).collect();
             linear_fit(&xs, &ys).map(|f| OutputResistance {
@@ -250,6 +259,40 @@ pub(super) fn interpolate_at_current(points: &[CurvePoint], i: f64) -> Option<Cu
             None
         }
     })
+}
+
+/// Fewest points from the bottom of the regulation region that seed the knee-onset test.
+const ONSET_SEED: usize = 3;
+
+/// The regulation region cut before the knee onset: seeded with the lower half of the points
+/// (at least [`ONSET_SEED`]), it grows point by point up the current while each point stays
+/// on the seed's regulation line within three residual standard deviations (at least 50 ppm
+/// of the output, about a count of a 5.5-digit meter: project choice); it stops at the first
+/// two points in a row that fall below the line, where the clamp starts to take over.
+pub(super) fn before_knee_onset(region: &[CurvePoint], v_out: f64) -> Vec<CurvePoint> {
+    let mut pts = region.to_vec();
+    pts.sort_by(|a, b| a.current.total_cmp(&b.current));
+    let n = pts.len();
+    let seed = (n.div_ceil(2)).max(ONSET_SEED);
+    if n <= seed + 1 {
+        return pts;
+    }
+    let xs: Vec<f64> = pts[..seed].iter().map(|p| p.current).collect();
+    let ys: Vec<f64> = pts[..seed].iter().map(|p| p.voltage).collect();
+    let Some(fit) = linear_fit(&xs, &ys) else {
+        return pts;
+    };
+    let tol = (3.0 * fit.residual_sd.unwrap_or(0.0)).max(50e-6 * v_out.abs());
+    let below = |p: &CurvePoint| p.voltage < fit.intercept + fit.slope * p.current - tol;
+    let mut keep = seed;
+    while keep < n {
+        if below(&pts[keep]) && pts.get(keep + 1).is_none_or(below) {
+            break;
+        }
+        keep += 1;
+    }
+    pts.truncate(keep);
+    pts
 }
 
 pub(super) fn regulation_region(
