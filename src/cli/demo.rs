@@ -175,17 +175,8 @@ fn recap(records: &Path, serial: &str) -> (String, Vec<String>, String) {
                 .collect()
         })
         .unwrap_or_default();
-    // The named part is the most useful line; fall back to the first cause.
-    let named: Vec<String> = all
-        .iter()
-        .filter(|c| c.contains("matches"))
-        .cloned()
-        .collect();
-    let causes = if named.is_empty() {
-        all.into_iter().take(1).collect()
-    } else {
-        named
-    };
+    // The causes are ranked: the first is the best fit.
+    let causes: Vec<String> = all.into_iter().take(1).collect();
     (
         verdict,
         causes,

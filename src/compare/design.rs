@@ -113,6 +113,10 @@ pub struct DesignExpectation {
     /// taken.
     #[serde(default)]
     pub rated_load_a: Option<f64>,
+    /// The design itself, for the diagnosis (fitting single-part hypotheses through the
+    /// design model); `None` when only the bands are known.
+    #[serde(skip)]
+    pub design: Option<Box<crate::design::Design>>,
 }
 
 impl DesignExpectation {
@@ -152,6 +156,7 @@ impl DesignExpectation {
             curve_low: e.curve_low.clone(),
             curve_high: e.curve_high.clone(),
             rated_load_a: Some(d.load.max_current_a).filter(|i| i.is_finite() && *i > 0.0),
+            design: Some(Box::new(d.clone())),
         }
     }
 }
@@ -317,13 +322,55 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
         .map(|c| c.verdict)
         .max()
         .unwrap_or(Verdict::Pass);
-    let likely_causes = likely_causes(metrics, exp, &checks);
+    let off = checks.iter().any(|c| c.verdict != Verdict::Pass);
+    let likely_causes = match (&exp.design, off) {
+        (Some(d), true) => {
+            super::diagnosis_lines(&super::diagnose(d, exp, &observations(metrics, d)))
+        }
+        (Some(_), false) => Vec::new(),
+        (None, _) => likely_causes(metrics, exp, &checks),
+    };
     Comparison {
         design_name: exp.design_name.clone(),
         checks,
         verdict,
         likely_causes,
         not_measured,
+    }
+}
+
+/// What the diagnosis fits: the no-load output (2 mV or 100 ppm, whichever is larger: about a
+/// 4.5-digit meter's reading; project choice), the limit knee (0.5 %, or half the distance
+/// between the two knee methods when larger), the short-circuit current at the start of the
+/// dwell (0.5 %), and the pass junction temperature at the knee from the case reading.
+pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observations {
+    use super::Observed;
+    let vout = m.no_load.map(|p| Observed {
+        value: p.voltage,
+        u: (2e-3f64).max(1e-4 * p.voltage.abs()),
+    });
+    let limit = m.limit_current().map(|i| {
+        let spread = m
+            .knee
+            .and_then(|k| Some((k.two_segment?.current - k.fixed_drop?.current).abs() / 2.0))
+            .unwrap_or(0.0);
+        Observed {
+            value: i,
+            u: (0.005 * i.abs()).max(spread),
+        }
+    });
+    let short = m.short_circuit.map(|s| Observed {
+        value: s.start_current,
+        u: 0.005 * s.start_current.abs(),
+    });
+    let pass_junction_c = m
+        .knee_conditions
+        .and_then(|k| Some(k.case_temperature? + k.pass_watts.unwrap_or(0.0) * d.pass.theta_jc));
+    super::Observations {
+        vout,
+        limit,
+        short,
+        pass_junction_c,
     }
 }
 
@@ -603,6 +650,7 @@ mod tests {
             curve_low: vec![],
             curve_high: vec![],
             rated_load_a: None,
+            design: None,
         };
         let checks = vec![check("limit_current", "A", 0.6 / 0.68, &exp.limit_current)];
         assert_eq!(checks[0].verdict, Verdict::Fail);
@@ -641,6 +689,7 @@ mod tests {
             curve_low: vec![],
             curve_high: vec![],
             rated_load_a: None,
+            design: None,
         };
         let checks = vec![check("limit_current", "A", 1.95, &exp.limit_current)];
         let m = crate::analysis::analyse(&[], &Default::default());
@@ -711,6 +760,7 @@ mod tests {
             curve_low: vec![],
             curve_high: vec![],
             rated_load_a: None,
+            design: None,
         };
         let measured = 0.71 / 0.68;
         let checks = vec![check("limit_current", "A", measured, &exp.limit_current)];

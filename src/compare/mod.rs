@@ -17,5 +17,9 @@ pub use finished::{
 };
 mod design;
 pub use design::*;
+mod diagnose;
+pub use diagnose::{
+    diagnose, diagnosis_lines, Diagnosis, Hypothesis, Observations, Observed, FIT_Z,
+};
 mod units;
 pub use units::{choose_records, Candidate, Chosen, LeftOut, Selection};

@@ -52,6 +52,7 @@ fn expectation() -> DesignExpectation {
         curve_low: vec![],
         curve_high: vec![],
         rated_load_a: None,
+        design: None,
     }
 }
 

@@ -155,6 +155,7 @@ pub fn expectation() -> DesignExpectation {
         curve_low: vec![],
         curve_high: vec![],
         rated_load_a: None,
+        design: None,
     }
 }
 
