@@ -92,6 +92,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         earlier,
         png: args.png,
         plan_steps: None,
+        plan_limits: None,
     };
     let summary = crate::report::evaluate_loaded(&rec, &args.record, exp.as_ref(), &opts);
     let out_dir = match &args.design {

@@ -339,6 +339,75 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
     }
 }
 
+/// Limits a plan sets on metrics the design gives no band for.
+#[derive(Debug, Clone, Copy, PartialEq, Default, Serialize, Deserialize)]
+pub struct MetricLimits {
+    /// Largest |line regulation| that passes, percent.
+    pub line_regulation_percent: Option<f64>,
+    /// Largest |soak drift| that passes, percent.
+    pub soak_drift_percent: Option<f64>,
+    /// Largest temperature rise over the soak that passes, degC.
+    pub soak_rise_c: Option<f64>,
+}
+
+/// A value checked against a symmetric limit `|x| <= max` (no marginal band).
+fn limit_check(metric: &str, unit: &str, measured: f64, max: f64, note: String) -> Check {
+    let band = ExpectedBand {
+        nominal: 0.0,
+        worst_case: Limits { min: -max, max },
+        monte_carlo: MonteCarlo {
+            samples: 0,
+            mean: 0.0,
+            sigma: 0.0,
+            p_low: -max,
+            p_high: max,
+        },
+    };
+    let mut c = check(metric, unit, measured, &band);
+    c.note = Some(note);
+    c
+}
+
+/// Checks of the metrics a plan limits (line regulation, soak drift, temperature rise), for
+/// those that were measured; a limited metric that is missing is the promised-metric rule's.
+pub fn plan_limit_checks(m: &Metrics, l: &MetricLimits) -> Vec<Check> {
+    let mut v = Vec::new();
+    if let (Some(max), Some(lr)) = (l.line_regulation_percent, m.line_regulation) {
+        v.push(limit_check(
+            "line_regulation",
+            "%",
+            lr.percent,
+            max,
+            format!(
+                "output change over the line sweep {:.1} V .. {:.1} V; the plan allows {max} %",
+                lr.input_low, lr.input_high
+            ),
+        ));
+    }
+    if let (Some(max), Some(s)) = (l.soak_drift_percent, m.soak) {
+        v.push(limit_check(
+            "soak_drift",
+            "%",
+            s.drift_percent,
+            max,
+            format!(
+                "output drift over the {:.0} s soak; the plan allows {max} %",
+                s.duration_s
+            ),
+        ));
+    }
+    if let (Some(max), Some(rise)) = (l.soak_rise_c, m.soak.and_then(|s| s.temperature_rise)) {
+        v.push(limit_check(
+            "soak_temperature_rise",
+            "degC",
+            rise,
+            max,
+            format!("temperature rise over the soak; the plan allows {max} degC"),
+        ));
+    }
+    v
+}
+
 /// What the diagnosis fits: the no-load output (2 mV or 100 ppm, whichever is larger: about a
 /// 4.5-digit meter's reading; project choice), the limit knee (0.5 %, or half the distance
 /// between the two knee methods when larger), the short-circuit current at the start of the

@@ -87,6 +87,9 @@ pub fn write_derived(report: &RunReport, prep: &Prepared) -> Result<Written, Rep
         earlier,
         png: true,
         plan_steps: Some(prep.plan.steps.iter().map(|s| s.kind).collect()),
+        plan_limits: Some(crate::report::metric_limits(
+            prep.plan.steps.iter().map(|s| s.limits),
+        )),
     };
     crate::report::write_report_for_design(&report.dir, &prep.design, &prep.expectation, &opts)
 }

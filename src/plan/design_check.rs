@@ -366,6 +366,27 @@ mod tests {
     }
 
     #[test]
+    fn line_and_soak_steps_carry_their_limits_and_only_theirs() {
+        let p = parse(
+            "fx",
+            "name = \"l\"\n[[step]]\nkind = \"line_sweep\"\nfrom = \"90 % of vin\"\n\
+             to = \"110 % of vin\"\npoints = 3\nmax_change = \"0.2 %\"\n[[step]]\n\
+             kind = \"soak\"\nload = \"1 A\"\nduration = \"2 s\"\ninterval = \"1 s\"\n\
+             max_drift = \"0.5 %\"\nmax_rise = \"25 degC\"\n",
+        )
+        .unwrap();
+        assert_eq!(p.steps[0].limits.max_change_percent, Some(0.2));
+        assert_eq!(p.steps[1].limits.max_drift_percent, Some(0.5));
+        assert_eq!(p.steps[1].limits.max_rise_c, Some(25.0));
+        let l = err(
+            "fx",
+            "name = \"l\"\n[[step]]\nkind = \"load_sweep\"\nfrom = \"0 A\"\nto = \"1 A\"\n\
+             points = 3\nmax_drift = \"1 %\"\n",
+        );
+        assert_eq!(l.line, Some(7), "{l}");
+    }
+
+    #[test]
     fn the_standard_plan_passes_on_both_samples() {
         for name in ["lab", "fx"] {
             parse(name, include_str!("../../samples/plans/standard.toml"))

@@ -48,7 +48,7 @@ pub use knee::{KneeConfig, KneeOutcome, KneeRequest, KneeResult, KneeSearch};
 pub use quantity::{parse_quantity, tidy, Dim};
 pub use steps::{
     outline, recovery_readings, short_readings, step_kinds, Action, Interlocks, LoadSetting, Plan,
-    ShortCircuit, Step, StepOutline,
+    ShortCircuit, Step, StepLimits, StepOutline,
 };
 pub use targets::DesignTargets;
 

@@ -76,6 +76,8 @@ pub struct Step {
     /// The plan's reason for letting this step go beyond the design (`beyond_design`), which
     /// lifts the design checks of `Plan::parse_for_design` for it.
     pub beyond_design: Option<String>,
+    /// Limits the step sets on its own metrics.
+    pub limits: StepLimits,
     pub settle: Duration,
     pub samples: u32,
     pub action: Action,
@@ -211,12 +213,25 @@ impl Plan {
     }
 }
 
-/// One step of a plan as read without the design: its kind, label and `beyond_design`.
+/// Limits a step sets on its own metrics (line regulation, soak drift and temperature rise).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct StepLimits {
+    /// Largest |line regulation| that passes, percent.
+    pub max_change_percent: Option<f64>,
+    /// Largest |soak drift| that passes, percent.
+    pub max_drift_percent: Option<f64>,
+    /// Largest temperature rise over the soak that passes, degC.
+    pub max_rise_c: Option<f64>,
+}
+
+/// One step of a plan as read without the design: its kind, label, `beyond_design` and the
+/// limits it sets on its metrics.
 #[derive(Debug, Clone, PartialEq)]
 pub struct StepOutline {
     pub kind: StepKind,
     pub label: Option<String>,
     pub beyond_design: Option<String>,
+    pub limits: StepLimits,
 }
 
 /// The steps of plan text, in order, read without the design (what a record's plan
@@ -237,6 +252,16 @@ pub fn outline(text: &str, file: &str) -> Result<Vec<StepOutline>, PlanError> {
                     format!("unknown step kind '{kind}'"),
                 ))
             })?;
+            // The limits are absolute (a percentage, a temperature difference): no design
+            // value is needed to read them.
+            let none = DesignTargets {
+                vout_v: 0.0,
+                limit_current_a: 0.0,
+                short_circuit_current_a: 0.0,
+                max_load_current_a: 0.0,
+                input_voltage_v: None,
+            };
+            let cx = Cx::new(text, file, &none);
             Ok(StepOutline {
                 kind,
                 label: s.label.as_ref().map(|l| l.get_ref().clone()),
@@ -244,6 +269,7 @@ pub fn outline(text: &str, file: &str) -> Result<Vec<StepOutline>, PlanError> {
                     .beyond_design
                     .as_ref()
                     .map(|b| b.get_ref().trim().to_string()),
+                limits: cx.step_limits(s)?,
             })
         })
         .collect()

@@ -111,6 +111,9 @@ pub struct ReportOptions {
     /// The kinds of the plan's steps, in order (what the plan promises). `None`: read them
     /// from the record's plan.toml snapshot ([`write_report`]), else from its rows.
     pub plan_steps: Option<Vec<StepKind>>,
+    /// Limits the plan sets on metrics the design has no band for (line regulation, soak
+    /// drift and temperature rise). `None`: read them from the plan.toml snapshot.
+    pub plan_limits: Option<compare::MetricLimits>,
 }
 
 /// Build the summary of a record (pure).
@@ -139,7 +142,19 @@ pub fn summarize_record(
         aopts.full_load_current = exp.and_then(|e| e.rated_load_a);
     }
     let metrics = analysis::analyse(rows, &aopts);
-    let comparison = exp.map(|e| compare::compare(&metrics, e));
+    let limits = opts.plan_limits.unwrap_or_default();
+    let comparison = exp.map(|e| {
+        let mut c = compare::compare(&metrics, e);
+        c.checks
+            .extend(compare::plan_limit_checks(&metrics, &limits));
+        c.verdict = c
+            .checks
+            .iter()
+            .map(|ch| ch.verdict)
+            .max()
+            .unwrap_or(Verdict::Pass);
+        c
+    });
     let (kinds, promised_from) = match &opts.plan_steps {
         Some(k) => (k.clone(), PromisedFrom::Plan),
         None => {
@@ -297,6 +312,11 @@ pub fn evaluate_loaded(
             .map(|s| s.iter().map(|o| o.kind).collect());
         from = PromisedFrom::PlanSnapshot;
     }
+    if opts.plan_limits.is_none() {
+        opts.plan_limits = snapshot
+            .as_ref()
+            .map(|s| metric_limits(s.iter().map(|o| o.limits)));
+    }
     let mut summary = summarize_record(&rec.info, Some(rec.state), &rec.rows, exp, &opts);
     if summary.promised_from == PromisedFrom::Plan {
         summary.promised_from = from;
@@ -327,6 +347,19 @@ pub fn evaluate_loaded(
         f.record = folder.clone();
     }
     summary
+}
+
+/// The limits a plan's steps set, the first of each kind.
+pub fn metric_limits(
+    steps: impl Iterator<Item = crate::plan::StepLimits>,
+) -> compare::MetricLimits {
+    let mut l = compare::MetricLimits::default();
+    for s in steps {
+        l.line_regulation_percent = l.line_regulation_percent.or(s.max_change_percent);
+        l.soak_drift_percent = l.soak_drift_percent.or(s.max_drift_percent);
+        l.soak_rise_c = l.soak_rise_c.or(s.max_rise_c);
+    }
+    l
 }
 
 /// The steps of a record's plan.toml snapshot, when it reads.

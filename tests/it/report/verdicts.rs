@@ -348,3 +348,51 @@ fn help_lists_every_exit_code() {
         }
     }
 }
+
+#[test]
+fn plan_limits_make_line_regulation_and_soak_drift_judged_metrics() {
+    // The same line-and-soak record as above, with limits in its plan snapshot: the line
+    // regulation and the soak drift are judged (a generous limit passes, a tight one fails).
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = good_record(tmp.path(), "SN-0203", 0, 8);
+    let rows = regulus::record::read_rows(&dir.join("readings.csv")).unwrap();
+    let mut line: Vec<regulus::record::Row> = Vec::new();
+    for (k, r) in rows.iter().take(6).enumerate() {
+        let mut r = r.clone();
+        r.step = usize::from(k >= 3);
+        r.point = k % 3;
+        r.step_kind = if k < 3 {
+            regulus::record::StepKind::LineSweep
+        } else {
+            regulus::record::StepKind::Soak
+        };
+        r.source_volts = Some(16.0 + k as f64);
+        // The programmed source voltage is the line (no input voltmeter reading).
+        r.cells.set(regulus::measure::Quantity::InputVoltage, None);
+        r.flags = Default::default();
+        line.push(r);
+    }
+    std::fs::write(dir.join("readings.csv"), sup::readings_csv(&line)).unwrap();
+    let plan = |change: &str, drift: &str| {
+        format!(
+            "name = \"line-soak\"\n[[step]]\nkind = \"line_sweep\"\nfrom = \"16 V\"\n\
+             to = \"18 V\"\npoints = 3\nload = \"0.5 A\"\nmax_change = \"{change}\"\n[[step]]\n\
+             kind = \"soak\"\nload = \"0.5 A\"\nduration = \"2 s\"\ninterval = \"1 s\"\n\
+             max_drift = \"{drift}\"\n"
+        )
+    };
+    std::fs::write(dir.join("plan.toml"), plan("50 %", "50 %")).unwrap();
+    let out = regulus(&["report", dir.to_str().unwrap()], tmp.path());
+    let t = text(&out);
+    assert_eq!(out.status.code(), Some(0), "{t}");
+    assert!(
+        t.contains("line_regulation") && t.contains("soak_drift"),
+        "{t}"
+    );
+    assert!(t.contains("verdict: PASS"), "{t}");
+    std::fs::write(dir.join("plan.toml"), plan("0.0001 %", "50 %")).unwrap();
+    let out = regulus(&["report", dir.to_str().unwrap()], tmp.path());
+    let t = text(&out);
+    assert_eq!(out.status.code(), Some(1), "{t}");
+    assert!(t.contains("line_regulation fail"), "{t}");
+}
