@@ -70,7 +70,22 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         notes.push("no load-sweep or curve rows with output voltage and current".into());
     }
 
-    let knee = no_load.map(|nl| knee_metrics(&curve, nl.voltage, d, opts.regulation_span));
+    let mut knee = no_load.map(|nl| knee_metrics(&curve, nl.voltage, d, opts.regulation_span));
+    // A reading that tripped an interlock is no point of the characteristic, but when the
+    // output still regulated there it shows that the limit lies above its current.
+    if let Some(k) = knee.as_mut() {
+        let tripped = rows
+            .iter()
+            .filter(|r| is_curve_kind(r.step_kind) && r.has_flag(Flag::Interlock))
+            .filter_map(curve_point)
+            .filter(|p| p.voltage >= k.threshold_voltage)
+            .max_by(|a, b| a.current.total_cmp(&b.current));
+        if let Some(t) = tripped {
+            if k.highest_regulating.is_none_or(|h| t.current > h.current) {
+                k.highest_regulating = Some(t);
+            }
+        }
+    }
     if let Some(k) = &knee {
         if k.fixed_drop.is_none() {
             notes.push(format!(

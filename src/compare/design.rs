@@ -435,11 +435,19 @@ pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observatio
     let pass_junction_c = m
         .knee_conditions
         .and_then(|k| Some(k.case_temperature? + k.pass_watts.unwrap_or(0.0) * d.pass.theta_jc));
+    let limit_at_least = match limit {
+        Some(_) => None,
+        None => m.knee.and_then(|k| k.highest_regulating).map(|p| Observed {
+            value: p.current,
+            u: 0.005 * p.current.abs(),
+        }),
+    };
     super::Observations {
         vout,
         limit,
         short,
         pass_junction_c,
+        limit_at_least,
     }
 }
 

@@ -28,6 +28,9 @@ pub struct Observations {
     pub short: Option<Observed>,
     /// Estimated pass junction temperature at the knee (case reading plus P theta_jc).
     pub pass_junction_c: Option<f64>,
+    /// When the limit was not reached: the highest current at which the output still
+    /// regulated (the limit lies above it).
+    pub limit_at_least: Option<Observed>,
 }
 
 /// A hypothesis that fits, with its score and what it predicts.
@@ -96,6 +99,7 @@ fn predict(d: &Design, p: &Params) -> [f64; 3] {
 struct Scorer {
     obs: [Option<Observed>; 3],
     spread: [(f64, f64); 3],
+    limit_at_least: Option<Observed>,
 }
 
 impl Scorer {
@@ -110,6 +114,16 @@ impl Scorer {
                 let z = if s > 0.0 { (o.value - p) / s } else { 0.0 };
                 chi2 += z * z;
                 worst = worst.max(z.abs());
+            }
+        }
+        // A one-sided observation: only a predicted limit below the bound is a residual.
+        if let Some(b) = self.limit_at_least {
+            let (rel, abs) = self.spread[1];
+            let s = (b.u.powi(2) + ((rel * pred[1]).abs().max(abs)).powi(2)).sqrt();
+            if pred[1] < b.value && s > 0.0 {
+                let z = (b.value - pred[1]) / s;
+                chi2 += z * z;
+                worst = worst.max(z);
             }
         }
         (chi2 + free as f64, worst)
@@ -170,6 +184,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
     let scorer = Scorer {
         obs: [obs.vout, obs.limit, obs.short],
         spread,
+        limit_at_least: obs.limit_at_least,
     };
     let mut base = Params::nominal(d);
     if let Some(t) = obs.pass_junction_c {
@@ -448,6 +463,7 @@ mod tests {
             limit: Some(o(pred[1], 0.005 * pred[1])),
             short: Some(o(pred[2], 0.005 * pred[2])),
             pass_junction_c: None,
+            limit_at_least: None,
         }
     }
 
@@ -597,6 +613,7 @@ mod tests {
                 u: 0.01,
             }),
             pass_junction_c: None,
+            limit_at_least: None,
         };
         let diag = diagnose(&d, &x, &obs);
         assert_eq!(

@@ -424,3 +424,41 @@ fn the_diagnosis_names_the_wrong_part_on_simulated_units() {
     eprintln!("diagnosis on the simulated bench, first in {first} of 3: {seen:#?}");
     assert!(first >= 2, "ranked first in {first} of 3: {seen:#?}");
 }
+
+#[test]
+fn one_clamp_diode_extra_is_named_not_lost_to_an_interlock() {
+    // One diode more in the teaching-lab string raises the limit by one junction drop (about
+    // 0.65 V / 0.39 ohm = 1.7 A more; V_sense = n V_F - m V_BE). The knee search trips the
+    // load-power interlock while the output still regulates at a current above the design's
+    // highest worst-case limit: that reading bounds the limit from below, so the run FAILs
+    // (not INCOMPLETE, not PASS) and the diagnosis, fitted to the bound, names the extra
+    // diode among the parts that fit it.
+    let _g = serial();
+    let rig = Rig::start(
+        LAB,
+        SimOptions::default()
+            .seed(214)
+            .fault(Fault::parse("diodes=+1").unwrap()),
+    );
+    let out = rig.run(
+        "E2E-0214",
+        &include_str!("../../../samples/plans/standard.toml")
+            .replace("settle = \"150 ms\"", "settle = \"60 ms\"")
+            .replace("dwell = \"3 s\"", "dwell = \"600 ms\""),
+    );
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(1), "{}", show(&out));
+    assert!(stdout.contains("verdict: FAIL"), "{}", show(&out));
+    assert!(
+        stdout.contains("the limit is at least that"),
+        "{}",
+        show(&out)
+    );
+    assert!(
+        stdout
+            .lines()
+            .any(|l| l.starts_with("likely cause: ") && l.contains("one clamp diode more")),
+        "{}",
+        show(&out)
+    );
+}
