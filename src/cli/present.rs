@@ -359,6 +359,11 @@ pub fn print_checks<W: std::io::Write>(
     for f in &s.drift {
         writeln!(w, "DRIFT: {}", f.message)?;
     }
+    // What the analysis could not do as asked, and where it took a metric instead (load
+    // regulation below the rated load, a fit cut at the knee onset).
+    for n in &s.metrics.notes {
+        writeln!(w, "note: {n}")?;
+    }
     Ok(())
 }
 
