@@ -130,8 +130,8 @@ impl Stop {
         match self {
             Stop::Interlock(r) => (Outcome::Aborted, format!("interlock: {r}")),
             Stop::Cancelled => (Outcome::Aborted, "interrupted by the operator".to_string()),
-            Stop::Instrument(r) => (Outcome::Aborted, format!("instrument failure: {r}")),
-            Stop::Record(r) => (Outcome::Failed, format!("record could not be written: {r}")),
+            Stop::Instrument(r) => (Outcome::Error, format!("instrument failure: {r}")),
+            Stop::Record(r) => (Outcome::Error, format!("record could not be written: {r}")),
         }
     }
 }
@@ -221,9 +221,7 @@ pub async fn run<B: BenchControl, O: Observer>(
             Some(r) => format!("{r}; {text}"),
             None => text,
         });
-        if outcome == Outcome::Completed {
-            outcome = Outcome::Failed;
-        }
+        outcome = Outcome::Error;
     }
     let rows = writer.rows();
     let (info, finish_error) = match writer.finish(Utc::now(), outcome, reason.clone()) {

@@ -6,6 +6,7 @@ use super::fit::{linear_fit, robust_fit};
 use super::line::line_regulation;
 use super::metrics::*;
 use super::short::short_circuit;
+use super::soak::soak;
 use crate::measure::Quantity;
 use crate::record::{Flag, Row, StepKind};
 
@@ -49,9 +50,10 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         DEFAULT_KNEE_DROP
     };
     let curve = curve_points(rows);
+    // A reading that tripped an interlock is a stop, not a point of the characteristic.
     let sweep: Vec<CurvePoint> = rows
         .iter()
-        .filter(|r| r.step_kind == StepKind::LoadSweep)
+        .filter(|r| r.step_kind == StepKind::LoadSweep && !r.has_flag(Flag::Interlock))
         .filter_map(curve_point)
         .collect();
 
@@ -68,7 +70,22 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         notes.push("no load-sweep or curve rows with output voltage and current".into());
     }
 
-    let knee = no_load.map(|nl| knee_metrics(&curve, nl.voltage, d, opts.regulation_span));
+    let mut knee = no_load.map(|nl| knee_metrics(&curve, nl.voltage, d, opts.regulation_span));
+    // A reading that tripped an interlock is no point of the characteristic, but when the
+    // output still regulated there it shows that the limit lies above its current.
+    if let Some(k) = knee.as_mut() {
+        let tripped = rows
+            .iter()
+            .filter(|r| is_curve_kind(r.step_kind) && r.has_flag(Flag::Interlock))
+            .filter_map(curve_point)
+            .filter(|p| p.voltage >= k.threshold_voltage)
+            .max_by(|a, b| a.current.total_cmp(&b.current));
+        if let Some(t) = tripped {
+            if k.highest_regulating.is_none_or(|h| t.current > h.current) {
+                k.highest_regulating = Some(t);
+            }
+        }
+    }
     if let Some(k) = &knee {
         if k.fixed_drop.is_none() {
             notes.push(format!(
@@ -87,15 +104,31 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
     let threshold = knee.as_ref().map(|k| k.threshold_voltage);
 
     let full_load = match (threshold, opts.full_load_current) {
-        (Some(_), Some(i_fl)) => {
-            let p = interpolate_at_current(&sweep, i_fl);
-            if p.is_none() {
-                notes.push(format!(
-                    "full-load current {i_fl} A lies outside the load sweep"
-                ));
+        (Some(thr), Some(i_fl)) => match interpolate_at_current(&sweep, i_fl) {
+            Some(p) => Some(p),
+            None => {
+                // The rated load was not reached: regulation at the highest regulating point,
+                // and a note of which load that was and why.
+                let reached = sweep
+                    .iter()
+                    .filter(|p| p.voltage >= thr)
+                    .copied()
+                    .max_by(|a, b| a.current.total_cmp(&b.current));
+                let top = sweep.iter().map(|p| p.current).fold(0.0, f64::max);
+                if let Some(p) = reached {
+                    notes.push(format!(
+                        "load regulation taken at {:.4} A, the highest regulating load-sweep \
+                         point, not at the rated load {i_fl} A: the sweep went up to {top:.4} A",
+                        p.current
+                    ));
+                } else {
+                    notes.push(format!(
+                        "full-load current {i_fl} A lies outside the load sweep"
+                    ));
+                }
+                reached
             }
-            p
-        }
+        },
         (Some(thr), None) => sweep
             .iter()
             .filter(|p| p.voltage >= thr)
@@ -132,7 +165,16 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
 
     let output_resistance = match (&knee, threshold) {
         (Some(k), Some(thr)) => {
-            let region = regulation_region(&curve, thr, k.fixed_drop, opts.regulation_span);
+            let wide = regulation_region(&curve, thr, k.fixed_drop, opts.regulation_span);
+            let region = before_knee_onset(&wide, no_load.map(|p| p.voltage).unwrap_or(0.0));
+            if region.len() < wide.len() {
+                let top = region.iter().map(|p| p.current).fold(0.0, f64::max);
+                notes.push(format!(
+                    "output resistance fitted up to {top:.4} A: {} higher point(s) fell below \
+                     the regulation line (knee onset) and were left out",
+                    wide.len() - region.len()
+                ));
+            }
             let xs: Vec<f64> = region.iter().map(|p| p.current).collect();
             let ys: Vec<f64> = region.iter().map(|p| p.voltage).collect();
             linear_fit(&xs, &ys).map(|f| OutputResistance {
@@ -146,7 +188,8 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         _ => None,
     };
 
-    let short_circuit = short_circuit(rows, threshold);
+    let recovery_threshold = threshold.or(opts.nominal_voltage.map(|v| (1.0 - d) * v));
+    let short_circuit = short_circuit(rows, recovery_threshold);
     let foldback_ratio = match (&short_circuit, knee.as_ref().and_then(|k| k.fixed_drop)) {
         (Some(sc), Some(kp)) if kp.current > 0.0 => Some(sc.start_current / kp.current),
         _ => None,
@@ -158,6 +201,11 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         .as_ref()
         .and_then(|k| k.two_segment.or(k.fixed_drop))
         .and_then(|kp| knee_conditions(rows, kp.current));
+
+    let soak = soak(rows);
+    if soak.is_none() && rows.iter().any(|r| r.step_kind == StepKind::Soak) {
+        notes.push("soak: fewer than two soak readings with an output voltage".into());
+    }
 
     let max_temperature = rows
         .iter()
@@ -177,6 +225,7 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         line_regulation,
         max_temperature,
         knee_conditions,
+        soak,
         notes,
     }
 }
@@ -225,6 +274,40 @@ pub(super) fn interpolate_at_current(points: &[CurvePoint], i: f64) -> Option<Cu
             None
         }
     })
+}
+
+/// Fewest points from the bottom of the regulation region that seed the knee-onset test.
+const ONSET_SEED: usize = 3;
+
+/// The regulation region cut before the knee onset: seeded with the lower half of the points
+/// (at least [`ONSET_SEED`]), it grows point by point up the current while each point stays
+/// on the seed's regulation line within three residual standard deviations (at least 50 ppm
+/// of the output, about a count of a 5.5-digit meter: project choice); it stops at the first
+/// two points in a row that fall below the line, where the clamp starts to take over.
+pub(super) fn before_knee_onset(region: &[CurvePoint], v_out: f64) -> Vec<CurvePoint> {
+    let mut pts = region.to_vec();
+    pts.sort_by(|a, b| a.current.total_cmp(&b.current));
+    let n = pts.len();
+    let seed = (n.div_ceil(2)).max(ONSET_SEED);
+    if n <= seed + 1 {
+        return pts;
+    }
+    let xs: Vec<f64> = pts[..seed].iter().map(|p| p.current).collect();
+    let ys: Vec<f64> = pts[..seed].iter().map(|p| p.voltage).collect();
+    let Some(fit) = linear_fit(&xs, &ys) else {
+        return pts;
+    };
+    let tol = (3.0 * fit.residual_sd.unwrap_or(0.0)).max(50e-6 * v_out.abs());
+    let below = |p: &CurvePoint| p.voltage < fit.intercept + fit.slope * p.current - tol;
+    let mut keep = seed;
+    while keep < n {
+        if below(&pts[keep]) && pts.get(keep + 1).is_none_or(below) {
+            break;
+        }
+        keep += 1;
+    }
+    pts.truncate(keep);
+    pts
 }
 
 pub(super) fn regulation_region(
@@ -317,5 +400,6 @@ pub(super) fn knee_metrics(curve: &[CurvePoint], v_nl: f64, d: f64, span: f64) -
         threshold_voltage: threshold,
         fixed_drop,
         two_segment,
+        highest_regulating: above.copied(),
     }
 }

@@ -102,6 +102,10 @@ pub struct KneeMetrics {
     pub fixed_drop: Option<CurvePoint>,
     /// Intersection of the regulation line and the limit line.
     pub two_segment: Option<CurvePoint>,
+    /// The highest-current curve point still at or above the threshold: when the limit was
+    /// not reached, the limit is at least this high.
+    #[serde(default)]
+    pub highest_regulating: Option<CurvePoint>,
 }
 
 /// Short-circuit current over the dwell.
@@ -121,6 +125,13 @@ pub struct ShortCircuit {
     /// True when the output came back above the knee threshold after the short was removed;
     /// None when no recovery rows exist.
     pub recovered: Option<bool>,
+    /// Output voltage of the last reading after the short was removed.
+    #[serde(default)]
+    pub recovery_voltage: Option<f64>,
+    /// The voltage it had to reach (the knee threshold, or the design's nominal output less
+    /// the knee drop when the record has no no-load reading).
+    #[serde(default)]
+    pub recovery_threshold: Option<f64>,
     pub points: usize,
 }
 
@@ -157,7 +168,26 @@ pub struct Metrics {
     pub max_temperature: Option<f64>,
     /// Conditions of the curve row nearest the knee (for reading the limit model hot).
     pub knee_conditions: Option<KneeConditions>,
+    /// Output drift and temperature rise over a soak.
+    #[serde(default)]
+    pub soak: Option<Soak>,
     pub notes: Vec<String>,
+}
+
+/// What a soak showed: the output's drift from its first to its last reading, and the
+/// temperature rise from the first reading to the highest.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Soak {
+    pub start_voltage: f64,
+    pub end_voltage: f64,
+    /// end - start, V.
+    pub drift_v: f64,
+    /// (end - start) / start * 100.
+    pub drift_percent: f64,
+    pub duration_s: f64,
+    /// Highest minus first temperature reading, degC (None without a thermometer).
+    pub temperature_rise: Option<f64>,
+    pub points: usize,
 }
 
 /// What the pass device saw at the knee: its case temperature and dissipation.

@@ -23,6 +23,7 @@ mod fit;
 mod line;
 mod metrics;
 mod short;
+mod soak;
 #[cfg(test)]
 mod tests;
 
@@ -30,7 +31,7 @@ pub use curve::{analyse, curve_points, load_regulation_percent};
 pub use fit::{fit_exponential, linear_fit, robust_fit, ExpFit, LineFit};
 pub use metrics::{
     AnalysisOptions, CurvePoint, KneeConditions, KneeMetrics, LineRegulation, LoadRegulation,
-    Metrics, OutputResistance, RegulationReference, ShortCircuit, DEFAULT_KNEE_DROP,
+    Metrics, OutputResistance, RegulationReference, ShortCircuit, Soak, DEFAULT_KNEE_DROP,
     DEFAULT_REGULATION_SPAN,
 };
 pub use short::{dwell_series, SHORTED_FRACTION};

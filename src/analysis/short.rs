@@ -72,12 +72,12 @@ pub(super) fn short_circuit(rows: &[Row], threshold: Option<f64>) -> Option<Shor
         .filter(|r| r.step_kind == StepKind::ShortCircuit && !r.has_flag(Flag::Recovery))
         .filter_map(|r| r.value(Quantity::Temperature))
         .reduce(f64::max);
-    let recovered = rows
+    let recovery_voltage = rows
         .iter()
         .filter(|r| r.step_kind == StepKind::ShortCircuit && r.has_flag(Flag::Recovery))
         .filter_map(|r| r.value(Quantity::OutputVoltage))
-        .next_back()
-        .and_then(|v| threshold.map(|thr| v >= thr));
+        .next_back();
+    let recovered = recovery_voltage.and_then(|v| threshold.map(|thr| v >= thr));
     Some(ShortCircuit {
         start_current: first.1,
         end_current: last.1,
@@ -87,6 +87,8 @@ pub(super) fn short_circuit(rows: &[Row], threshold: Option<f64>) -> Option<Shor
         time_constant: fit_exponential(&ts, &is),
         peak_temperature,
         recovered,
+        recovery_voltage,
+        recovery_threshold: threshold,
         points: pts.len(),
     })
 }

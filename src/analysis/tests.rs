@@ -209,3 +209,46 @@ fn dwell_ignores_a_start_reading_taken_before_the_output_collapsed() {
     assert!((sc.start_current - 1.01).abs() < 1e-12);
     assert!((sc.dwell_s - 9.0).abs() < 1e-12);
 }
+
+#[test]
+fn output_resistance_fit_stops_before_the_knee_onset() {
+    // A regulation line V = 12 - 0.010 I (10 mohm) with an exponential knee onset
+    // 0.05 V x exp((I - 1.5) / 0.08) (the shape of a junction clamp turning on, Shockley's
+    // law), sampled every 50 mA up to 1.6 A and then a limit line. The onset is 1.6 mV at
+    // 1.22 A and grows from there: a fit over the whole region below the fixed-drop knee bends
+    // with it; the fit cut at the onset finds the line's 10 mohm.
+    let v = |i: f64| 12.0 - 0.010 * i - 0.05 * ((i - 1.5) / 0.08).exp();
+    let mut rows = Vec::new();
+    for k in 0..=32 {
+        let i = k as f64 * 0.05;
+        rows.push(row(StepKind::LoadSweep, k as f64, v(i), i));
+    }
+    for k in 1..=8 {
+        rows.push(row(
+            StepKind::LimitTrace,
+            40.0 + k as f64,
+            11.0 - k as f64,
+            1.62,
+        ));
+    }
+    let m = analyse(&rows, &AnalysisOptions::default());
+    let r = m.output_resistance.unwrap();
+    assert!((r.ohms - 0.010).abs() < 0.0002, "{r:?} {:?}", m.notes);
+    assert!(
+        m.notes.iter().any(|n| n.contains("knee onset")),
+        "{:?}",
+        m.notes
+    );
+    // Without the cut, the same points give a visibly higher resistance.
+    let k = m.knee.unwrap();
+    let wide = super::curve::regulation_region(
+        &curve_points(&rows),
+        k.threshold_voltage,
+        k.fixed_drop,
+        DEFAULT_REGULATION_SPAN,
+    );
+    let xs: Vec<f64> = wide.iter().map(|p| p.current).collect();
+    let ys: Vec<f64> = wide.iter().map(|p| p.voltage).collect();
+    let old = -linear_fit(&xs, &ys).unwrap().slope;
+    assert!(old > 0.0105, "{old}");
+}

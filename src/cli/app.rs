@@ -13,7 +13,8 @@ use clap::{Parser, Subcommand};
 bands, drives bench instruments over serial or TCP to characterize each built unit, compares \
 measured with designed, flags drift and keeps a dated record per unit.\n\nCAUTION: power supplies \
 under test can carry mains voltages, get hot and deliver large short-circuit currents. Follow \
-local codes and licensed practice."
+local codes and licensed practice.",
+    after_help = super::exit_codes_help()
 )]
 pub struct Cli {
     #[command(subcommand)]

@@ -1,27 +1,39 @@
 //! `regulus compare --design D RECORD...`: re-evaluate records against a design (for instance a
-//! new revision) without rewriting them; across several units, flag outliers and give Cpk.
-//! Exit 1 when any verdict fails.
+//! new revision) without rewriting them, and judge units: by default each unit's latest
+//! finished run, saying how many records were left out and why. Across several units, flag
+//! outliers and give Cpk. Each record is judged by the same rule as `run` and `report`; the
+//! exit code is the worst outcome's (see `--help`).
 
 use super::options::AnalysisArgs;
+use super::present::Console;
 use super::report::load_expectation;
 use super::usage;
-use crate::compare::{self, KeyMetric, KeyValues};
+use crate::compare::{self, KeyMetric, KeyValues, Selection, Verdict};
 use anyhow::Context;
 use std::io::Write;
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 /// Options of `regulus compare`.
 #[derive(Debug, clap::Args)]
+#[command(after_help = super::exit::exit_codes_help())]
 pub struct Args {
     /// Design file to judge the records against.
     #[arg(long, value_name = "FILE")]
     pub design: PathBuf,
-    /// Record folders.
+    /// Record folders, unit folders (every record in them) or a records folder (every unit).
     #[arg(required = true, value_name = "RECORD")]
     pub records: Vec<PathBuf>,
+    /// Judge every record given, not only each unit's latest finished run.
+    #[arg(long)]
+    pub every_record: bool,
     /// Outlier limit on |z| across units.
     #[arg(long, default_value_t = compare::DEFAULT_OUTLIER_Z)]
     pub z_limit: f64,
+    /// Smallest difference from the other units worth an outlier flag, as METRIC=VALUE in
+    /// the metric's unit (e.g. output_resistance=0.002); repeatable. Default: 5 % of the
+    /// design's tolerance band, at least a few meter counts.
+    #[arg(long, value_name = "METRIC=VALUE")]
+    pub floor: Vec<String>,
     /// Print JSON instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -36,14 +48,66 @@ pub struct Args {
 struct Judged {
     record: String,
     unit: String,
-    comparison: compare::Comparison,
+    /// The overall outcome by the one rule (pass, marginal, fail, incomplete, error).
+    verdict: Option<Verdict>,
+    reasons: Vec<String>,
+    comparison: Option<compare::Comparison>,
 }
 
 #[derive(serde::Serialize)]
 struct Output {
     design: String,
+    /// Records offered (after expanding unit and records folders).
+    offered: usize,
+    units: usize,
     records: Vec<Judged>,
+    left_out: Vec<compare::LeftOut>,
     population: compare::Population,
+}
+
+/// Record folders under `path`: the folder itself when it holds run.json, else its
+/// subfolders that do (a unit folder), else those of its subfolders (a records folder).
+fn expand(path: &Path) -> anyhow::Result<Vec<PathBuf>> {
+    if path.join("run.json").is_file() {
+        return Ok(vec![path.to_path_buf()]);
+    }
+    let subdirs = |p: &Path| -> Vec<PathBuf> {
+        let mut v: Vec<PathBuf> = std::fs::read_dir(p)
+            .map(|rd| {
+                rd.filter_map(|e| e.ok())
+                    .map(|e| e.path())
+                    .filter(|p| p.is_dir())
+                    .collect()
+            })
+            .unwrap_or_default();
+        v.sort();
+        v
+    };
+    if !path.is_dir() {
+        return Err(usage(format!(
+            "{}: not a record folder (no run.json), a unit folder or a records folder",
+            path.display()
+        )));
+    }
+    let direct: Vec<PathBuf> = subdirs(path)
+        .into_iter()
+        .filter(|d| d.join("run.json").is_file())
+        .collect();
+    if !direct.is_empty() {
+        return Ok(direct);
+    }
+    let nested: Vec<PathBuf> = subdirs(path)
+        .iter()
+        .flat_map(|u| subdirs(u))
+        .filter(|d| d.join("run.json").is_file())
+        .collect();
+    if nested.is_empty() {
+        return Err(usage(format!(
+            "{}: no records found (no run.json in it, its folders or theirs)",
+            path.display()
+        )));
+    }
+    Ok(nested)
 }
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
@@ -51,26 +115,68 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     if args.z_limit.is_nan() || args.z_limit <= 0.0 {
         return Err(usage("--z-limit must be positive (default 3)"));
     }
+    let mut floors = Vec::new();
+    for f in &args.floor {
+        let parsed = f
+            .split_once('=')
+            .and_then(|(k, v)| Some((KeyMetric::parse(k.trim())?, v.trim().parse::<f64>().ok()?)));
+        match parsed {
+            Some((k, v)) if v.is_finite() && v >= 0.0 => floors.push((k, v)),
+            _ => {
+                let names: Vec<&str> = KeyMetric::ALL.iter().map(|k| k.as_str()).collect();
+                return Err(usage(format!(
+                    "--floor {f}: give METRIC=VALUE with METRIC one of {} and VALUE a \
+                     non-negative number in the metric's unit",
+                    names.join(", ")
+                )));
+            }
+        }
+    }
     let exp = load_expectation(&args.design)?;
-    let mut judged = Vec::new();
-    let mut units: Vec<(String, KeyValues)> = Vec::new();
+    let mut dirs = Vec::new();
     for r in &args.records {
+        dirs.extend(expand(r)?);
+    }
+    let mut ao = aopts.clone();
+    ao.nominal_voltage.get_or_insert(exp.vout.nominal);
+    let opts = crate::report::ReportOptions {
+        analysis: ao,
+        ..Default::default()
+    };
+    let mut summaries = Vec::new();
+    let mut candidates = Vec::new();
+    for r in &dirs {
         let rec = crate::report::load_record(r)
             .with_context(|| format!("reading record {}", r.display()))?;
-        let mut ao = aopts.clone();
-        ao.nominal_voltage.get_or_insert(exp.vout.nominal);
-        let m = crate::analysis::analyse(&rec.rows, &ao);
-        let mut c = compare::compare(&m, &exp);
-        // As in `regulus report`: a run that did not finish cannot pass.
-        if let Some(v) = compare::record_verdict(rec.info.outcome, Some(rec.state), Some(c.verdict))
-        {
-            c.verdict = v;
-        }
-        units.push((rec.info.unit.clone(), KeyValues::from_metrics(&m)));
-        judged.push(Judged {
+        let s = crate::report::evaluate_loaded(&rec, r, Some(&exp), &opts);
+        candidates.push(compare::Candidate {
             record: r.display().to_string(),
             unit: rec.info.unit.clone(),
-            comparison: c,
+            started_utc: rec.info.started_utc.clone(),
+            finished: compare::finished(rec.info.outcome, Some(rec.state)),
+        });
+        summaries.push(s);
+    }
+    let selection = if args.every_record {
+        Selection::Every
+    } else {
+        Selection::LatestFinished
+    };
+    let chosen = compare::choose_records(&candidates, selection);
+    let mut judged = Vec::new();
+    let mut units: Vec<(String, KeyValues)> = Vec::new();
+    for &i in &chosen.judged {
+        let s = &summaries[i];
+        // Only units judged on a finished run enter the population statistics.
+        if candidates[i].finished {
+            units.push((s.unit.clone(), KeyValues::from_metrics(&s.metrics)));
+        }
+        judged.push(Judged {
+            record: candidates[i].record.clone(),
+            unit: s.unit.clone(),
+            verdict: s.verdict,
+            reasons: s.reasons.clone(),
+            comparison: s.comparison.clone(),
         });
     }
     let specs = vec![
@@ -83,7 +189,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             .map(|b| (KeyMetric::ShortCircuitCurrent, b.worst_case)),
     )
     .collect::<Vec<_>>();
-    let population = compare::population(&units, &specs, args.z_limit);
+    let population = compare::population_with_floors(&units, &specs, args.z_limit, &floors);
     if let Some(dir) = &args.plot_dir {
         std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
         for (metric, spec) in &specs {
@@ -98,29 +204,43 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             std::fs::write(&path, svg).with_context(|| format!("writing {}", path.display()))?;
         }
     }
-    let code = super::for_verdicts(judged.iter().map(|j| Some(j.comparison.verdict)));
+    let code = super::for_verdicts(judged.iter().map(|j| j.verdict));
+    let mut unit_names: Vec<&str> = judged.iter().map(|j| j.unit.as_str()).collect();
+    unit_names.sort();
+    unit_names.dedup();
     let out = Output {
         design: exp.design_name.clone(),
+        offered: candidates.len(),
+        units: unit_names.len(),
         records: judged,
+        left_out: chosen.left_out,
         population,
     };
-    let mut w = std::io::stdout().lock();
+    let mut w = Console::new(std::io::stdout().lock());
     if args.json {
-        serde_json::to_writer_pretty(&mut w, &out)?;
-        writeln!(w)?;
+        let _ = serde_json::to_writer_pretty(&mut w, &out);
+        let _ = writeln!(w);
     } else {
-        write_table(&mut w, &out)?;
+        let _ = write_table(&mut w, &out);
     }
     Ok(code)
 }
 
 fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
     writeln!(w, "design {}", out.design)?;
+    writeln!(
+        w,
+        "{} unit(s) judged on {} of {} record(s); {} left out",
+        out.units,
+        out.records.len(),
+        out.offered,
+        out.left_out.len()
+    )?;
     for j in &out.records {
         let checks: Vec<String> = j
             .comparison
-            .checks
             .iter()
+            .flat_map(|c| c.checks.iter())
             .map(|c| {
                 format!(
                     "{} {} ({})",
@@ -132,15 +252,23 @@ fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
             .collect();
         writeln!(
             w,
-            "{:<9} {}  {}: {}",
-            j.comparison.verdict.as_str().to_uppercase(),
+            "{:<10} {}  {}: {}",
+            j.verdict.map(|v| v.label()).unwrap_or("-"),
             j.unit,
             j.record,
             checks.join(", ")
         )?;
-        for cause in &j.comparison.likely_causes {
-            writeln!(w, "          likely cause: {cause}")?;
+        if j.verdict != Some(Verdict::Pass) {
+            for r in &j.reasons {
+                writeln!(w, "           because: {r}")?;
+            }
         }
+        for cause in j.comparison.iter().flat_map(|c| c.likely_causes.iter()) {
+            writeln!(w, "           likely cause: {cause}")?;
+        }
+    }
+    for l in &out.left_out {
+        writeln!(w, "left out  {}  {}: {}", l.unit, l.record, l.why)?;
     }
     for s in &out.population.stats {
         let cpk = match (s.cpk, s.spec) {

@@ -112,7 +112,14 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         let prep = pipeline::prepare(&request)?;
         let code = rt.block_on(async {
             let mut bench = Bench::open(&prep.bench).await?;
-            present::run_and_show(&mut bench, &prep, &request, &cancel).await
+            present::run_and_show(
+                &mut bench,
+                &prep,
+                &request,
+                &cancel,
+                present::ResultFormat::Text,
+            )
+            .await
         })?;
         sim.shutdown();
         println!();
@@ -168,17 +175,8 @@ fn recap(records: &Path, serial: &str) -> (String, Vec<String>, String) {
                 .collect()
         })
         .unwrap_or_default();
-    // The named part is the most useful line; fall back to the first cause.
-    let named: Vec<String> = all
-        .iter()
-        .filter(|c| c.contains("matches"))
-        .cloned()
-        .collect();
-    let causes = if named.is_empty() {
-        all.into_iter().take(1).collect()
-    } else {
-        named
-    };
+    // The causes are ranked: the first is the best fit.
+    let causes: Vec<String> = all.into_iter().take(1).collect();
     (
         verdict,
         causes,

@@ -19,6 +19,7 @@ pub mod size;
 
 pub use app::{dispatch, Cli, Command};
 pub use exit::{
-    exit_code_for, for_batch, for_run, for_verdicts, usage, CodedError, EXIT_ABORTED, EXIT_FAIL,
-    EXIT_OK, EXIT_USAGE,
+    exit_code_for, exit_codes_help, for_batch, for_verdict, for_verdicts, usage, CodedError,
+    EXIT_ABORTED, EXIT_CODES, EXIT_ERROR, EXIT_FAIL, EXIT_INCOMPLETE, EXIT_MARGINAL, EXIT_OK,
+    EXIT_USAGE,
 };

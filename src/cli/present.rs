@@ -3,6 +3,7 @@
 //! summary and the verdict table. Output functions take a generic writer so they can be
 //! checked byte for byte. Holds no domain logic.
 
+use crate::compare::Verdict;
 use crate::control::BenchControl;
 use crate::measure::Quantity;
 use crate::pipeline::{self, PipelineError, Prepared, RunRequest};
@@ -32,15 +33,87 @@ pub fn interruptible_runtime() -> anyhow::Result<(CancelToken, tokio::runtime::R
     Ok((cancel, rt))
 }
 
-/// Run a prepared plan on an open bench through the pipeline with a progress bar per step,
-/// then print the summary and the verdict (or a warning when the derived files could not be
-/// written: the record itself is complete). Returns the exit code. `run` and `demo` both
+/// How a run's result is printed on stdout.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ResultFormat {
+    /// Lines for people: the run, the checks, the verdict and its reasons, the files.
+    Text,
+    /// One JSON object ([`RunResult`]) and nothing else.
+    Json,
+}
+
+/// A writer that never fails: after the first error (a closed pipe: `regulus run | head`)
+/// it drops everything, so printing can neither change the exit code nor skip work that
+/// follows it. The error is kept for a note on stderr.
+pub struct Console<W: Write> {
+    inner: W,
+    failed: Option<std::io::Error>,
+}
+
+impl<W: Write> Console<W> {
+    pub fn new(inner: W) -> Console<W> {
+        Console {
+            inner,
+            failed: None,
+        }
+    }
+    /// The first write error, if any.
+    pub fn failure(&self) -> Option<&std::io::Error> {
+        self.failed.as_ref()
+    }
+}
+
+impl<W: Write> Write for Console<W> {
+    fn write(&mut self, buf: &[u8]) -> std::io::Result<usize> {
+        if self.failed.is_none() {
+            if let Err(e) = self.inner.write_all(buf) {
+                self.failed = Some(e);
+            }
+        }
+        Ok(buf.len())
+    }
+    fn flush(&mut self) -> std::io::Result<()> {
+        if self.failed.is_none() {
+            if let Err(e) = self.inner.flush() {
+                self.failed = Some(e);
+            }
+        }
+        Ok(())
+    }
+}
+
+/// What `run --json` prints: one object with the overall outcome, its exit code and
+/// reasons, the record and its files, and the summary.
+#[derive(Debug, serde::Serialize)]
+pub struct RunResult<'a> {
+    /// `pass`, `marginal`, `fail`, `incomplete` or `error`.
+    pub outcome: Option<Verdict>,
+    pub exit_code: u8,
+    pub reasons: Vec<String>,
+    pub unit: &'a str,
+    pub record: String,
+    /// run.json's outcome and reason.
+    pub run_outcome: Outcome,
+    pub run_reason: Option<&'a str>,
+    pub rows: u64,
+    /// True when run.json's final state is on disk (written, synced, folder synced).
+    pub record_closed: bool,
+    pub files: Vec<String>,
+    pub summary: Option<&'a crate::report::Summary>,
+}
+
+/// Run a prepared plan on an open bench through the pipeline with a progress bar per step.
+/// The record is closed (run.json's final state synced) and the summary and report written
+/// before anything about the result is printed; printing cannot change the exit code (a
+/// closed stdout is noted on stderr). Returns the exit code of the overall outcome: ERROR
+/// when the record could not be closed or the report not written. `run` and `demo` both
 /// show a run this way.
 pub async fn run_and_show<B: BenchControl>(
     bench: &mut B,
     prep: &Prepared,
     req: &RunRequest,
     cancel: &CancelToken,
+    format: ResultFormat,
 ) -> anyhow::Result<u8> {
     let mut progress = Progress::new(prep.plan.steps.len());
     let finished = match pipeline::execute(bench, prep, req, &mut progress, cancel).await {
@@ -54,31 +127,84 @@ pub async fn run_and_show<B: BenchControl>(
             return Err(e.into());
         }
     };
+    let verdict = finished.verdict();
+    let code = super::for_verdict(verdict);
     let report = &finished.report;
-    let stdout = std::io::stdout();
-    write_summary(&mut stdout.lock(), report).context("writing the summary")?;
-    match &finished.written {
-        Ok(written) => print_outcome(&mut stdout.lock(), written).context("writing the verdict")?,
-        Err(e) => eprintln!(
-            "warning: the report of {} was not written: {}; the record is complete, \
-             retry with `regulus report {}`",
+    if let Err(e) = &finished.written {
+        eprintln!(
+            "error: the summary and report of {} were not written: {}; the readings are on \
+             disk, retry with `regulus report {}` once the cause is fixed",
             report.dir.display(),
             chain_text(e),
             report.dir.display()
-        ),
+        );
     }
-    Ok(super::for_run(report.outcome, finished.verdict()))
+    let mut out = Console::new(std::io::stdout().lock());
+    match format {
+        ResultFormat::Text => {
+            let _ = write_summary(&mut out, report);
+            if let Ok(written) = &finished.written {
+                let _ = print_checks(&mut out, &written.summary);
+            }
+            let _ = print_verdict(&mut out, verdict, &finished.reasons());
+            if let Ok(written) = &finished.written {
+                let _ = print_files(&mut out, written);
+            }
+        }
+        ResultFormat::Json => {
+            let written = finished.written.as_ref().ok();
+            let result = RunResult {
+                outcome: verdict,
+                exit_code: code,
+                reasons: finished.reasons(),
+                unit: &req.unit,
+                record: report.dir.display().to_string(),
+                run_outcome: report.outcome,
+                run_reason: report.reason.as_deref(),
+                rows: report.rows,
+                record_closed: report.finish_error.is_none(),
+                files: written
+                    .map(|w| w.files.iter().map(|f| f.display().to_string()).collect())
+                    .unwrap_or_default(),
+                summary: written.map(|w| &w.summary),
+            };
+            let _ = serde_json::to_writer_pretty(&mut out, &result);
+            let _ = writeln!(out);
+        }
+    }
+    let _ = out.flush();
+    if let Some(e) = out.failure() {
+        if e.kind() != std::io::ErrorKind::BrokenPipe {
+            eprintln!("warning: the result could not be printed: {e}");
+        }
+    }
+    Ok(code)
 }
 
-/// Human summary of a run.
+/// Human summary of a run. The record is called complete only when run.json's final state
+/// is on disk.
 pub fn write_summary(out: &mut impl Write, r: &RunReport) -> std::io::Result<()> {
     let outcome = match r.outcome {
         Outcome::Completed => "completed",
-        Outcome::Aborted => "ABORTED",
-        Outcome::Failed => "FAILED",
+        Outcome::Aborted => "STOPPED",
+        Outcome::Error | Outcome::Failed => "STATION ERROR",
         Outcome::Running => "running",
     };
-    writeln!(out, "run {outcome}: {} rows in {}", r.rows, r.dir.display())?;
+    match &r.finish_error {
+        None => writeln!(
+            out,
+            "run {outcome}: {} rows in {} (record closed)",
+            r.rows,
+            r.dir.display()
+        )?,
+        Some(e) => writeln!(
+            out,
+            "run {outcome}: {} rows in {}, but the record is NOT closed: run.json's final \
+             state could not be written: {e}",
+            r.rows,
+            r.dir.display()
+        )?,
+    }
     if let Some(reason) = &r.reason {
         writeln!(out, "  reason: {reason}")?;
     }
@@ -111,9 +237,6 @@ pub fn write_summary(out: &mut impl Write, r: &RunReport) -> std::io::Result<()>
                 }
             )?;
         }
-    }
-    if let Some(e) = &r.finish_error {
-        writeln!(out, "  warning: run.json could not be finalised: {e}")?;
     }
     Ok(())
 }
@@ -191,12 +314,23 @@ impl Observer for Progress {
     }
 }
 
-/// Print the comparison, likely causes, drift flags, verdict and written files.
+/// Print the comparison, likely causes, drift flags, verdict and its reasons, and the
+/// written files.
 pub fn print_outcome<W: std::io::Write>(
     mut w: W,
     written: &crate::report::Written,
 ) -> std::io::Result<()> {
-    let s = &written.summary;
+    print_checks(&mut w, &written.summary)?;
+    print_verdict(&mut w, written.summary.verdict, &written.summary.reasons)?;
+    print_files(&mut w, written)
+}
+
+/// The checks against the design (with the knee method the limit check uses), likely
+/// causes and drift flags.
+pub fn print_checks<W: std::io::Write>(
+    mut w: W,
+    s: &crate::report::Summary,
+) -> std::io::Result<()> {
     if let Some(c) = &s.comparison {
         for ch in &c.checks {
             writeln!(
@@ -207,8 +341,16 @@ pub fn print_outcome<W: std::io::Write>(
                 crate::quantity::eng(ch.nominal, &ch.unit),
                 crate::quantity::eng(ch.worst_case.min, &ch.unit),
                 crate::quantity::eng(ch.worst_case.max, &ch.unit),
-                ch.verdict.as_str().to_uppercase()
+                ch.verdict.label()
             )?;
+            if let Some(note) = &ch.note {
+                writeln!(w, "  {}: {note}", ch.metric)?;
+            }
+        }
+        if c.checks.iter().any(|ch| ch.metric == "limit_current") {
+            if let Some(line) = knee_method_line(&s.metrics) {
+                writeln!(w, "  {line}")?;
+            }
         }
         for cause in &c.likely_causes {
             writeln!(w, "likely cause: {cause}")?;
@@ -217,10 +359,59 @@ pub fn print_outcome<W: std::io::Write>(
     for f in &s.drift {
         writeln!(w, "DRIFT: {}", f.message)?;
     }
-    match s.verdict {
-        Some(v) => writeln!(w, "verdict: {}", v.as_str().to_uppercase())?,
+    // What the analysis could not do as asked, and where it took a metric instead (load
+    // regulation below the rated load, a fit cut at the knee onset).
+    for n in &s.metrics.notes {
+        writeln!(w, "note: {n}")?;
+    }
+    Ok(())
+}
+
+/// Which knee the limit check judged: the two-segment fit when it exists, else the fixed
+/// drop (as `Metrics::limit_current` chooses), with the other for comparison.
+pub fn knee_method_line(m: &crate::analysis::Metrics) -> Option<String> {
+    let k = m.knee.as_ref()?;
+    let drop = format!("{:.0} % drop", k.drop_fraction * 100.0);
+    match (k.two_segment, k.fixed_drop) {
+        (Some(t), Some(f)) => Some(format!(
+            "limit_current judged at the two-segment fit's knee {} (regulation line meets the \
+             limit line); the fixed {drop} knee is {}",
+            eng(t.current, "A"),
+            eng(f.current, "A")
+        )),
+        (Some(t), None) => Some(format!(
+            "limit_current judged at the two-segment fit's knee {}",
+            eng(t.current, "A")
+        )),
+        (None, Some(f)) => Some(format!(
+            "limit_current judged at the fixed {drop} knee {} (no two-segment fit)",
+            eng(f.current, "A")
+        )),
+        (None, None) => None,
+    }
+}
+
+/// The overall verdict and, unless it is a plain pass, why.
+pub fn print_verdict<W: std::io::Write>(
+    mut w: W,
+    verdict: Option<Verdict>,
+    reasons: &[String],
+) -> std::io::Result<()> {
+    match verdict {
+        Some(v) => writeln!(w, "verdict: {}", v.label())?,
         None => writeln!(w, "no design given: metrics only")?,
     }
+    for r in reasons {
+        writeln!(w, "  because: {r}")?;
+    }
+    Ok(())
+}
+
+/// The files a report wrote.
+pub fn print_files<W: std::io::Write>(
+    mut w: W,
+    written: &crate::report::Written,
+) -> std::io::Result<()> {
     for f in &written.files {
         writeln!(w, "wrote {}", f.display())?;
     }
@@ -237,4 +428,96 @@ pub fn chain_text(e: &dyn std::error::Error) -> String {
         source = s.source();
     }
     text
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::pipeline::Finished;
+    use crate::record::{FileAction, RecordError};
+    use std::path::PathBuf;
+
+    fn report(finish_error: Option<RecordError>) -> RunReport {
+        RunReport {
+            outcome: Outcome::Completed,
+            reason: None,
+            dir: PathBuf::from("records/U1/20260101T000000Z_p"),
+            rows: 12,
+            steps: vec![],
+            safe_state_errors: vec![],
+            info: None,
+            finish_error,
+        }
+    }
+
+    fn no_space() -> std::io::Error {
+        // ENOSPC (POSIX): what a full disk answers to a write.
+        std::io::Error::from_raw_os_error(28)
+    }
+
+    #[test]
+    fn a_record_whose_final_state_is_not_on_disk_is_not_called_closed_and_is_an_error() {
+        let e = RecordError::Io {
+            action: FileAction::Sync,
+            path: "records/U1/x/run.json".into(),
+            source: no_space(),
+        };
+        let f = Finished {
+            report: report(Some(e)),
+            written: Err(crate::report::ReportError::Write {
+                path: "s".into(),
+                source: no_space(),
+            }),
+        };
+        assert_eq!(f.verdict(), Some(Verdict::Error));
+        assert_eq!(super::super::for_verdict(f.verdict()), 4);
+        assert!(f.reasons()[0].contains("run.json's final state was not written"));
+        let mut out = Vec::new();
+        write_summary(&mut out, &f.report).unwrap();
+        let text = String::from_utf8(out).unwrap();
+        assert!(text.contains("NOT closed"), "{text}");
+        assert!(!text.contains("(record closed)"), "{text}");
+
+        let mut out = Vec::new();
+        write_summary(&mut out, &report(None)).unwrap();
+        assert!(String::from_utf8(out).unwrap().contains("(record closed)"));
+    }
+
+    #[test]
+    fn unwritten_derived_files_make_the_run_an_error() {
+        let f = Finished {
+            report: report(None),
+            written: Err(crate::report::ReportError::Write {
+                path: "records/U1/x/summary.json".into(),
+                source: no_space(),
+            }),
+        };
+        assert_eq!(f.verdict(), Some(Verdict::Error));
+        assert!(
+            f.reasons()[0].contains("were not written"),
+            "{:?}",
+            f.reasons()
+        );
+    }
+
+    struct Closed;
+    impl Write for Closed {
+        fn write(&mut self, _: &[u8]) -> std::io::Result<usize> {
+            Err(std::io::ErrorKind::BrokenPipe.into())
+        }
+        fn flush(&mut self) -> std::io::Result<()> {
+            Err(std::io::ErrorKind::BrokenPipe.into())
+        }
+    }
+
+    #[test]
+    fn the_console_swallows_a_closed_pipe_and_remembers_it() {
+        let mut c = Console::new(Closed);
+        assert!(writeln!(c, "verdict: PASS").is_ok());
+        assert!(c.flush().is_ok());
+        assert_eq!(
+            c.failure().map(|e| e.kind()),
+            Some(std::io::ErrorKind::BrokenPipe)
+        );
+    }
 }

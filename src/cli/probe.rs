@@ -2,7 +2,7 @@
 //! one reading from each measuring role, printing a table with round-trip times. Exit 2 on a
 //! bench file error, 3 when an instrument fails.
 
-use super::{CodedError, EXIT_ABORTED, EXIT_OK};
+use super::{CodedError, EXIT_ERROR, EXIT_OK};
 use crate::bench::{probe, write_probe_table, BenchConfig};
 use anyhow::Context;
 use std::path::PathBuf;
@@ -31,7 +31,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     write_probe_table(&mut out, &report).context("cannot write the probe table")?;
     if report.failed() {
         return Err(CodedError::new(
-            EXIT_ABORTED,
+            EXIT_ERROR,
             "some instruments failed; see the messages above",
         )
         .into());

@@ -2,8 +2,8 @@
 //! short-circuit test, open the bench, run the plan with a progress bar per step, and map the
 //! outcome to an exit code. A thin caller of [`crate::pipeline`]: it holds no domain logic.
 
-use super::exit::{usage, CodedError, EXIT_ABORTED};
-use super::present;
+use super::exit::{usage, CodedError, EXIT_INCOMPLETE};
+use super::present::{self, ResultFormat};
 use crate::bench::Bench;
 use crate::control::BenchControl;
 use crate::pipeline::{self, Prepared, RunRequest};
@@ -14,6 +14,7 @@ use std::path::PathBuf;
 
 /// Options of `regulus run`.
 #[derive(Debug, Clone, clap::Args)]
+#[command(after_help = super::exit::exit_codes_help())]
 pub struct Args {
     /// Bench file (instruments by role).
     #[arg(long, value_name = "FILE")]
@@ -39,6 +40,14 @@ pub struct Args {
     /// Skip the confirmation before a short-circuit test (for test stations).
     #[arg(long)]
     pub yes: bool,
+    /// Print the result as one JSON object on stdout (outcome, exit code, reasons, record,
+    /// files, summary) instead of lines for people.
+    #[arg(long)]
+    pub json: bool,
+    /// Skip the pre-flight check (the unloaded output compared with the design's band before
+    /// any stress); use it only for a unit you know differs from its design file.
+    #[arg(long)]
+    pub no_preflight: bool,
 }
 
 impl Args {
@@ -60,11 +69,16 @@ impl Args {
 /// pipeline). Every failure is a usage or configuration error (exit 2) naming the file, line
 /// and column where there is one.
 pub fn prepare(args: &Args) -> anyhow::Result<Prepared> {
-    Ok(pipeline::prepare(&args.request())?)
+    let mut prep = pipeline::prepare(&args.request())?;
+    if args.no_preflight {
+        prep.preflight = pipeline::Preflight::Skip;
+    }
+    Ok(prep)
 }
 
 /// Print the short-circuit cautions and ask. `yes` skips the question; without a terminal on
-/// stdin and without `yes`, refuse (exit 2). A declined answer aborts (exit 3).
+/// stdin and without `yes`, refuse (exit 2). A declined answer is INCOMPLETE (exit 3):
+/// nothing was switched on.
 pub fn confirm_short_circuit(
     plan: &Plan,
     vin: Option<f64>,
@@ -96,12 +110,15 @@ pub fn confirm_short_circuit(
     if answer.trim().eq_ignore_ascii_case("yes") {
         Ok(())
     } else {
-        Err(CodedError::new(EXIT_ABORTED, "not confirmed: nothing was switched on").into())
+        Err(CodedError::new(EXIT_INCOMPLETE, "not confirmed: nothing was switched on").into())
     }
 }
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
     let prep = prepare(&args)?;
+    for note in prep.plan.beyond_design_notes() {
+        eprintln!("CAUTION: {note}");
+    }
     let stdin = std::io::stdin();
     confirm_short_circuit(
         &prep.plan,
@@ -127,7 +144,12 @@ pub async fn execute<B: BenchControl>(
     args: &Args,
     cancel: &CancelToken,
 ) -> anyhow::Result<u8> {
-    present::run_and_show(bench, prep, &args.request(), cancel).await
+    let format = if args.json {
+        ResultFormat::Json
+    } else {
+        ResultFormat::Text
+    };
+    present::run_and_show(bench, prep, &args.request(), cancel, format).await
 }
 
 #[cfg(test)]
@@ -174,7 +196,7 @@ mod tests {
         assert!(confirm_short_circuit(&p, None, false, true, &mut &b"yes\n"[..], &mut out).is_ok());
         let e =
             confirm_short_circuit(&p, None, false, true, &mut &b"n\n"[..], &mut out).unwrap_err();
-        assert_eq!(code(&e), EXIT_ABORTED);
+        assert_eq!(code(&e), EXIT_INCOMPLETE);
     }
 
     #[test]

@@ -109,6 +109,14 @@ pub struct DesignExpectation {
     pub curve_low: Vec<(f64, f64)>,
     #[serde(default)]
     pub curve_high: Vec<(f64, f64)>,
+    /// The design's rated (maximum continuous) load current, A: where load regulation is
+    /// taken.
+    #[serde(default)]
+    pub rated_load_a: Option<f64>,
+    /// The design itself, for the diagnosis (fitting single-part hypotheses through the
+    /// design model); `None` when only the bands are known.
+    #[serde(skip)]
+    pub design: Option<Box<crate::design::Design>>,
 }
 
 impl DesignExpectation {
@@ -147,18 +155,25 @@ impl DesignExpectation {
             curve: e.curve.clone(),
             curve_low: e.curve_low.clone(),
             curve_high: e.curve_high.clone(),
+            rated_load_a: Some(d.load.max_current_a).filter(|i| i.is_finite() && *i > 0.0),
+            design: Some(Box::new(d.clone())),
         }
     }
 }
 
-/// Pass: inside the Monte Carlo band. Marginal: inside the worst case, outside the Monte
-/// Carlo band. Fail: outside the worst case.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
+/// A check's verdict, and a record's overall outcome. A check is pass (inside the Monte
+/// Carlo band), marginal (inside the worst case, outside the Monte Carlo band) or fail
+/// (outside the worst case). A record is also one of those, or incomplete (did not finish,
+/// stopped, or a promised metric missing) or error (the station failed); see
+/// [`super::judge`]. Ordered by severity: the worst of several is their `max`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Verdict {
     Pass,
     Marginal,
+    Incomplete,
     Fail,
+    Error,
 }
 
 impl Verdict {
@@ -166,7 +181,20 @@ impl Verdict {
         match self {
             Verdict::Pass => "pass",
             Verdict::Marginal => "marginal",
+            Verdict::Incomplete => "incomplete",
             Verdict::Fail => "fail",
+            Verdict::Error => "error",
+        }
+    }
+
+    /// The word for people: `PASS`, `MARGINAL`, `INCOMPLETE`, `FAIL`, `ERROR`.
+    pub fn label(self) -> &'static str {
+        match self {
+            Verdict::Pass => "PASS",
+            Verdict::Marginal => "MARGINAL",
+            Verdict::Incomplete => "INCOMPLETE",
+            Verdict::Fail => "FAIL",
+            Verdict::Error => "ERROR",
         }
     }
 }
@@ -187,6 +215,10 @@ pub struct Check {
     pub margin_percent: f64,
     /// (measured - nominal) / nominal * 100.
     pub deviation_percent: f64,
+    /// How the value was obtained when it is not a plain measurement (for instance a bound:
+    /// "at least", when the limit was not reached).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub note: Option<String>,
 }
 
 /// Judge one value against a band.
@@ -222,6 +254,7 @@ pub fn check(metric: &str, unit: &str, measured: f64, band: &ExpectedBand) -> Ch
         margin,
         margin_percent: pct(margin),
         deviation_percent: pct(measured - band.nominal),
+        note: None,
     }
 }
 
@@ -251,7 +284,26 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
     }
     match metrics.limit_current() {
         Some(i) => checks.push(check("limit_current", "A", i, &exp.limit_current)),
-        None => not_measured.push("limit_current".to_string()),
+        None => {
+            not_measured.push("limit_current".to_string());
+            // The limit was not reached, but the output still regulated above the highest
+            // worst-case limit: the limit is at least that high, which already fails.
+            let wc_max = exp.limit_current.worst_case.max;
+            let held = metrics
+                .knee
+                .and_then(|k| k.highest_regulating)
+                .filter(|p| p.current > wc_max);
+            if let Some(p) = held {
+                let mut c = check("limit_current", "A", p.current, &exp.limit_current);
+                c.note = Some(format!(
+                    "not reached: the output still regulated at {}, above the design's highest \
+                     worst-case limit {}; the limit is at least that",
+                    crate::quantity::eng(p.current, "A"),
+                    crate::quantity::eng(wc_max, "A")
+                ));
+                checks.push(c);
+            }
+        }
     }
     if let Some(band) = &exp.short_circuit_current {
         match &metrics.short_circuit {
@@ -259,12 +311,25 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
             None => not_measured.push("short_circuit_current".to_string()),
         }
     }
+    if let Some(c) = metrics
+        .short_circuit
+        .and_then(|sc| recovery_check(&sc, exp))
+    {
+        checks.push(c);
+    }
     let verdict = checks
         .iter()
         .map(|c| c.verdict)
         .max()
         .unwrap_or(Verdict::Pass);
-    let likely_causes = likely_causes(metrics, exp, &checks);
+    let off = checks.iter().any(|c| c.verdict != Verdict::Pass);
+    let likely_causes = match (&exp.design, off) {
+        (Some(d), true) => {
+            super::diagnosis_lines(&super::diagnose(d, exp, &observations(metrics, d)))
+        }
+        (Some(_), false) => Vec::new(),
+        (None, _) => likely_causes(metrics, exp, &checks),
+    };
     Comparison {
         design_name: exp.design_name.clone(),
         checks,
@@ -272,6 +337,148 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
         likely_causes,
         not_measured,
     }
+}
+
+/// Limits a plan sets on metrics the design gives no band for.
+#[derive(Debug, Clone, Copy, PartialEq, Default, Serialize, Deserialize)]
+pub struct MetricLimits {
+    /// Largest |line regulation| that passes, percent.
+    pub line_regulation_percent: Option<f64>,
+    /// Largest |soak drift| that passes, percent.
+    pub soak_drift_percent: Option<f64>,
+    /// Largest temperature rise over the soak that passes, degC.
+    pub soak_rise_c: Option<f64>,
+}
+
+/// A value checked against a symmetric limit `|x| <= max` (no marginal band).
+fn limit_check(metric: &str, unit: &str, measured: f64, max: f64, note: String) -> Check {
+    let band = ExpectedBand {
+        nominal: 0.0,
+        worst_case: Limits { min: -max, max },
+        monte_carlo: MonteCarlo {
+            samples: 0,
+            mean: 0.0,
+            sigma: 0.0,
+            p_low: -max,
+            p_high: max,
+        },
+    };
+    let mut c = check(metric, unit, measured, &band);
+    c.note = Some(note);
+    c
+}
+
+/// Checks of the metrics a plan limits (line regulation, soak drift, temperature rise), for
+/// those that were measured; a limited metric that is missing is the promised-metric rule's.
+pub fn plan_limit_checks(m: &Metrics, l: &MetricLimits) -> Vec<Check> {
+    let mut v = Vec::new();
+    if let (Some(max), Some(lr)) = (l.line_regulation_percent, m.line_regulation) {
+        v.push(limit_check(
+            "line_regulation",
+            "%",
+            lr.percent,
+            max,
+            format!(
+                "output change over the line sweep {:.1} V .. {:.1} V; the plan allows {max} %",
+                lr.input_low, lr.input_high
+            ),
+        ));
+    }
+    if let (Some(max), Some(s)) = (l.soak_drift_percent, m.soak) {
+        v.push(limit_check(
+            "soak_drift",
+            "%",
+            s.drift_percent,
+            max,
+            format!(
+                "output drift over the {:.0} s soak; the plan allows {max} %",
+                s.duration_s
+            ),
+        ));
+    }
+    if let (Some(max), Some(rise)) = (l.soak_rise_c, m.soak.and_then(|s| s.temperature_rise)) {
+        v.push(limit_check(
+            "soak_temperature_rise",
+            "degC",
+            rise,
+            max,
+            format!("temperature rise over the soak; the plan allows {max} degC"),
+        ));
+    }
+    v
+}
+
+/// What the diagnosis fits: the no-load output (2 mV or 100 ppm, whichever is larger: about a
+/// 4.5-digit meter's reading; project choice), the limit knee (0.5 %, or half the distance
+/// between the two knee methods when larger), the short-circuit current at the start of the
+/// dwell (0.5 %), and the pass junction temperature at the knee from the case reading.
+pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observations {
+    use super::Observed;
+    let vout = m.no_load.map(|p| Observed {
+        value: p.voltage,
+        u: (2e-3f64).max(1e-4 * p.voltage.abs()),
+    });
+    let limit = m.limit_current().map(|i| {
+        let spread = m
+            .knee
+            .and_then(|k| Some((k.two_segment?.current - k.fixed_drop?.current).abs() / 2.0))
+            .unwrap_or(0.0);
+        Observed {
+            value: i,
+            u: (0.005 * i.abs()).max(spread),
+        }
+    });
+    let short = m.short_circuit.map(|s| Observed {
+        value: s.start_current,
+        u: 0.005 * s.start_current.abs(),
+    });
+    let pass_junction_c = m
+        .knee_conditions
+        .and_then(|k| Some(k.case_temperature? + k.pass_watts.unwrap_or(0.0) * d.pass.theta_jc));
+    let limit_at_least = match limit {
+        Some(_) => None,
+        None => m.knee.and_then(|k| k.highest_regulating).map(|p| Observed {
+            value: p.current,
+            u: 0.005 * p.current.abs(),
+        }),
+    };
+    super::Observations {
+        vout,
+        limit,
+        short,
+        pass_junction_c,
+        limit_at_least,
+    }
+}
+
+/// The output after the short was removed against the voltage it had to reach (the knee
+/// threshold): pass when it got there, fail when it did not (no marginal band).
+fn recovery_check(sc: &crate::analysis::ShortCircuit, exp: &DesignExpectation) -> Option<Check> {
+    let (v, thr) = (sc.recovery_voltage?, sc.recovery_threshold?);
+    let band = ExpectedBand {
+        nominal: exp.vout.nominal,
+        worst_case: Limits {
+            min: thr,
+            max: exp.vout.worst_case.max.max(thr),
+        },
+        monte_carlo: MonteCarlo {
+            samples: 0,
+            mean: exp.vout.nominal,
+            sigma: 0.0,
+            p_low: thr,
+            p_high: exp.vout.worst_case.max.max(thr),
+        },
+    };
+    let mut c = check("recovery_voltage", "V", v, &band);
+    // Above the worst-case output is not this check's business (output_voltage judges it).
+    if v > band.worst_case.max {
+        c.verdict = Verdict::Pass;
+    }
+    c.note = Some(format!(
+        "after the short was removed; it must reach {}",
+        crate::quantity::eng(thr, "V")
+    ));
+    Some(c)
 }
 
 /// The preferred value nearest to `value` (by ratio), from E12 when one lies within
@@ -519,6 +726,8 @@ mod tests {
             curve: vec![],
             curve_low: vec![],
             curve_high: vec![],
+            rated_load_a: None,
+            design: None,
         };
         let checks = vec![check("limit_current", "A", 0.6 / 0.68, &exp.limit_current)];
         assert_eq!(checks[0].verdict, Verdict::Fail);
@@ -556,6 +765,8 @@ mod tests {
             curve: vec![],
             curve_low: vec![],
             curve_high: vec![],
+            rated_load_a: None,
+            design: None,
         };
         let checks = vec![check("limit_current", "A", 1.95, &exp.limit_current)];
         let m = crate::analysis::analyse(&[], &Default::default());
@@ -625,6 +836,8 @@ mod tests {
             curve: vec![],
             curve_low: vec![],
             curve_high: vec![],
+            rated_load_a: None,
+            design: None,
         };
         let measured = 0.71 / 0.68;
         let checks = vec![check("limit_current", "A", measured, &exp.limit_current)];

@@ -67,6 +67,36 @@ impl KeyMetric {
             KeyMetric::ShortCircuitDrift => Threshold::Absolute(5.0),
         }
     }
+    /// The smallest difference worth a flag when nothing better is known (project choice,
+    /// about ten counts of a 4.5-digit bench meter on a 20 V or 2 A range, or the scale of a
+    /// metric's rounding): 1 mV, 0.01 percentage point of regulation, 1 mohm, 1 mA, 0.5
+    /// percentage point of short-circuit drift. Below it a change has no practical meaning
+    /// however many sigmas it is.
+    pub fn default_floor(self) -> f64 {
+        match self {
+            KeyMetric::OutputVoltage => 1e-3,
+            KeyMetric::LoadRegulation => 0.01,
+            KeyMetric::OutputResistance => 1e-3,
+            KeyMetric::LimitCurrent | KeyMetric::ShortCircuitCurrent => 1e-3,
+            KeyMetric::ShortCircuitDrift => 0.5,
+        }
+    }
+
+    /// The practical-significance floor of a metric with spec limits: 5 % of the spec's width
+    /// (the design's tolerance band), and never below [`KeyMetric::default_floor`].
+    pub fn floor_for(self, spec: Option<Limits>) -> f64 {
+        let base = self.default_floor();
+        match spec {
+            Some(l) if (l.max - l.min).is_finite() => base.max(0.05 * (l.max - l.min).abs()),
+            _ => base,
+        }
+    }
+
+    /// Parse a metric name as written in output (`output_resistance`).
+    pub fn parse(s: &str) -> Option<KeyMetric> {
+        KeyMetric::ALL.into_iter().find(|k| k.as_str() == s)
+    }
+
     /// The metric's value in a record's metrics.
     pub fn value(self, m: &Metrics) -> Option<f64> {
         match self {
@@ -140,11 +170,12 @@ pub struct DriftFlag {
     pub message: String,
 }
 
-fn beyond(th: Threshold, base: f64, change: f64) -> bool {
-    match th {
-        Threshold::Relative(f) => base != 0.0 && (change / base).abs() > f,
-        Threshold::Absolute(a) => change.abs() > a,
-    }
+fn beyond(th: Threshold, base: f64, change: f64, floor: f64) -> bool {
+    change.abs() > floor
+        && match th {
+            Threshold::Relative(f) => base != 0.0 && (change / base).abs() > f,
+            Threshold::Absolute(a) => change.abs() > a,
+        }
 }
 
 fn drift_flag(e: &HistoryEntry, k: KeyMetric, basis: DriftBasis, base: f64, v: f64) -> DriftFlag {
@@ -189,6 +220,7 @@ pub fn unit_drift(
             .find(|(m, _)| *m == k)
             .map(|(_, t)| *t)
             .unwrap_or(k.default_threshold());
+        let floor = k.default_floor();
         let mut prev: Option<f64> = None;
         let mut first: Option<f64> = None;
         let mut crossed = false;
@@ -196,13 +228,13 @@ pub fn unit_drift(
             let Some(v) = e.values.get(k) else { continue };
             let mut stepped = false;
             if let Some(p) = prev {
-                if beyond(th, p, v - p) {
+                if beyond(th, p, v - p, floor) {
                     flags.push(drift_flag(e, k, DriftBasis::PreviousRecord, p, v));
                     stepped = true;
                 }
             }
             if let Some(f) = first {
-                let out = beyond(th, f, v - f);
+                let out = beyond(th, f, v - f, floor);
                 if out && !crossed && !stepped {
                     flags.push(drift_flag(e, k, DriftBasis::FirstRecord, f, v));
                 }
@@ -268,11 +300,23 @@ pub fn cpk(mean: f64, sigma: f64, spec: Limits) -> Option<f64> {
 }
 
 /// Outliers (leave-one-out |z| > `z_limit`) and Cpk per metric across units. `specs` gives
-/// spec limits per metric (usually the design's worst-case band).
+/// spec limits per metric (usually the design's worst-case band). An outlier must also lie
+/// farther than its practical-significance floor ([`KeyMetric::floor_for`]) from the others'
+/// mean.
 pub fn population(
     units: &[(String, KeyValues)],
     specs: &[(KeyMetric, Limits)],
     z_limit: f64,
+) -> Population {
+    population_with_floors(units, specs, z_limit, &[])
+}
+
+/// [`population`] with floors set by metric (`floors` overrides the defaults).
+pub fn population_with_floors(
+    units: &[(String, KeyValues)],
+    specs: &[(KeyMetric, Limits)],
+    z_limit: f64,
+    floors: &[(KeyMetric, f64)],
 ) -> Population {
     let mut stats = Vec::new();
     let mut outliers = Vec::new();
@@ -287,6 +331,11 @@ pub fn population(
             continue;
         };
         let spec = specs.iter().find(|(m, _)| *m == k).map(|(_, l)| *l);
+        let floor = floors
+            .iter()
+            .find(|(m, _)| *m == k)
+            .map(|(_, f)| *f)
+            .unwrap_or_else(|| k.floor_for(spec));
         let cpk = match spec {
             Some(s) if xs.len() >= MIN_UNITS_FOR_CPK => cpk(mean, sigma, s),
             _ => None,
@@ -310,7 +359,7 @@ pub fn population(
                 if let Some((m, s)) = mean_sd(&others) {
                     if s > 0.0 {
                         let z = (x - m) / s;
-                        if z.abs() > z_limit {
+                        if z.abs() > z_limit && (x - m).abs() > floor {
                             outliers.push(Outlier {
                                 unit: unit.to_string(),
                                 metric: k,
@@ -361,6 +410,34 @@ mod tests {
         let p = population(&units, &[], DEFAULT_OUTLIER_Z);
         assert_eq!(p.outliers.len(), 1);
         assert_eq!(p.outliers[0].unit, "BAD");
+    }
+
+    #[test]
+    fn a_difference_without_practical_meaning_is_no_outlier() {
+        // Output resistances within a few micro-ohm of each other: one unit 40 uohm off is
+        // many sigmas out but far below the 1 mohm floor; 5 mohm off is flagged.
+        let mk = |v: f64| KeyValues(vec![(KeyMetric::OutputResistance, Some(v))]);
+        let mut units: Vec<(String, KeyValues)> = (0..10)
+            .map(|k| (format!("U{k}"), mk(0.010 + 2e-6 * (k as f64 - 4.5))))
+            .collect();
+        units.push(("TINY".into(), mk(0.010 + 40e-6)));
+        assert!(population(&units, &[], DEFAULT_OUTLIER_Z)
+            .outliers
+            .is_empty());
+        let p = population_with_floors(
+            &units,
+            &[],
+            DEFAULT_OUTLIER_Z,
+            &[(KeyMetric::OutputResistance, 1e-6)],
+        );
+        assert_eq!(p.outliers.len(), 1, "a floor set lower flags it: {p:?}");
+        units.push(("BIG".into(), mk(0.015)));
+        let p = population(&units, &[], DEFAULT_OUTLIER_Z);
+        assert!(p.outliers.iter().any(|o| o.unit == "BIG"), "{p:?}");
+        assert!(!p.outliers.iter().any(|o| o.unit == "TINY"), "{p:?}");
+        // The floor from a spec: 5 % of the band's width.
+        let spec = Limits { min: 1.0, max: 2.0 };
+        assert!((KeyMetric::LimitCurrent.floor_for(Some(spec)) - 0.05).abs() < 1e-12);
     }
 
     #[test]

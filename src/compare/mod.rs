@@ -11,6 +11,15 @@
 mod drift;
 mod finished;
 pub use drift::*;
-pub use finished::{finished, record_verdict};
+pub use finished::{
+    finished, judge, missing_metrics, promised_metrics, record_verdict, Judgement, Missing,
+    Promised, RecordFacts,
+};
 mod design;
 pub use design::*;
+mod diagnose;
+pub use diagnose::{
+    diagnose, diagnosis_lines, Diagnosis, Hypothesis, Observations, Observed, FIT_Z,
+};
+mod units;
+pub use units::{choose_records, Candidate, Chosen, LeftOut, Selection};

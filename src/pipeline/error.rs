@@ -32,6 +32,18 @@ pub enum PipelineError {
     Bench(Box<BenchError>),
     #[error("{message} (bench file {})", bench.display())]
     BenchRoles { message: String, bench: PathBuf },
+    /// The pre-flight reading does not look like the design; the bench is in its safe state.
+    #[error("{message}")]
+    PreFlight { message: String, measured_v: f64 },
+    /// The pre-flight reading could not be taken (the station's failure).
+    #[error("pre-flight: the unloaded output could not be read: {error}")]
+    PreFlightInstrument {
+        #[source]
+        error: ControlError,
+    },
+    /// Interrupted during the pre-flight reading; nothing was stressed.
+    #[error("interrupted during the pre-flight reading: nothing was stressed, no record started")]
+    PreFlightCancelled,
     /// The runner refused to start; the bench was put in its safe state (failures listed).
     #[error("{}", not_started(error))]
     NotStarted {
@@ -60,7 +72,19 @@ impl PipelineError {
     pub fn is_config(&self) -> bool {
         match self {
             PipelineError::Bench(e) => e.is_config(),
+            PipelineError::PreFlight { .. }
+            | PipelineError::PreFlightInstrument { .. }
+            | PipelineError::PreFlightCancelled => false,
             _ => true,
         }
+    }
+
+    /// True when the run stopped before any stress without a station failure: the unit did
+    /// not look like the design, or the operator interrupted the pre-flight (INCOMPLETE).
+    pub fn is_stopped_before_stress(&self) -> bool {
+        matches!(
+            self,
+            PipelineError::PreFlight { .. } | PipelineError::PreFlightCancelled
+        )
     }
 }

@@ -18,13 +18,35 @@ pub struct Finished {
 }
 
 impl Finished {
-    /// The overall verdict, when the derived files were written.
+    /// The overall outcome of the run ([`crate::compare::judge`] through the summary), or
+    /// ERROR when the record could not be closed (run.json's final state not on disk) or the
+    /// summary and report could not be written: a verdict that is not on disk is lost.
     pub fn verdict(&self) -> Option<Verdict> {
-        self.written.as_ref().ok().and_then(|w| w.summary.verdict)
+        if self.report.finish_error.is_some() {
+            return Some(Verdict::Error);
+        }
+        match &self.written {
+            Ok(w) => w.summary.verdict,
+            Err(_) => Some(Verdict::Error),
+        }
+    }
+
+    /// Why the outcome is what it is (the summary's reasons, or the write failure).
+    pub fn reasons(&self) -> Vec<String> {
+        let mut v = Vec::new();
+        if let Some(e) = &self.report.finish_error {
+            v.push(format!("run.json's final state was not written: {e}"));
+        }
+        match &self.written {
+            Ok(w) => v.extend(w.summary.reasons.iter().cloned()),
+            Err(e) => v.push(format!("the summary and report were not written: {e}")),
+        }
+        v
     }
 }
 
-/// Run a prepared plan on an open bench and write the derived files. When the runner refuses
+/// Take the pre-flight reading (see [`super::preflight`]), run a prepared plan on an open
+/// bench and write the derived files. When the runner refuses
 /// to start (missing roles, the record cannot be created), the bench is put in its safe state
 /// and the error is returned together with the safe-state failures.
 pub async fn execute<B: BenchControl, O: Observer>(
@@ -34,6 +56,7 @@ pub async fn execute<B: BenchControl, O: Observer>(
     observer: &mut O,
     cancel: &CancelToken,
 ) -> Result<Finished, PipelineError> {
+    super::preflight(bench, prep, cancel).await?;
     let setup = RunSetup {
         records: &req.records,
         unit: req.unit.clone(),
@@ -63,6 +86,10 @@ pub fn write_derived(report: &RunReport, prep: &Prepared) -> Result<Written, Rep
         analysis,
         earlier,
         png: true,
+        plan_steps: Some(prep.plan.steps.iter().map(|s| s.kind).collect()),
+        plan_limits: Some(crate::report::metric_limits(
+            prep.plan.steps.iter().map(|s| s.limits),
+        )),
     };
     crate::report::write_report_for_design(&report.dir, &prep.design, &prep.expectation, &opts)
 }

@@ -82,6 +82,8 @@ pub struct Prepared {
     pub design_file: InputFile,
     pub bench_file: InputFile,
     pub plan_file: InputFile,
+    /// Whether the unloaded output is checked against the design before the plan runs.
+    pub preflight: super::Preflight,
 }
 
 impl Prepared {
@@ -114,7 +116,9 @@ pub fn prepare(req: &RunRequest) -> Result<Prepared, PipelineError> {
     let plan_text = plan_file.text().ok_or_else(|| PipelineError::NotText {
         path: req.plan.clone(),
     })?;
-    let plan = Plan::parse(plan_text, &plan_file.label(), &targets)?;
+    // Checked against the design's worst case before any port opens.
+    let bounds = crate::plan::DesignBounds::from_design(&e);
+    let plan = Plan::parse_for_design(plan_text, &plan_file.label(), &targets, &bounds)?;
     let bench_text = bench_file.text().ok_or_else(|| {
         PipelineError::from(crate::bench::BenchError::ReadFile {
             path: bench_file.label(),
@@ -142,5 +146,6 @@ pub fn prepare(req: &RunRequest) -> Result<Prepared, PipelineError> {
         design_file,
         bench_file,
         plan_file,
+        preflight: super::Preflight::Check,
     })
 }

@@ -7,7 +7,9 @@
 mod error;
 mod execute;
 mod inputs;
+mod preflight;
 
 pub use error::PipelineError;
 pub use execute::{execute, write_derived, Finished};
 pub use inputs::{prepare, InputFile, Prepared, RunRequest};
+pub use preflight::{judge_preflight, preflight, preflight_band, Preflight, PREFLIGHT_MARGIN};

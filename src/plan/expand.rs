@@ -18,6 +18,25 @@ const DEFAULT_SETTLE_S: f64 = 0.5;
 const DEFAULT_SAMPLES: u32 = 3;
 
 impl Cx<'_> {
+    /// The limits a step sets on its metrics (`max_change`, `max_drift`: percentages;
+    /// `max_rise`: a temperature difference).
+    pub(super) fn step_limits(&self, s: &RawStep) -> Result<super::steps::StepLimits, PlanError> {
+        let pct = |v: &Option<SV>, f: &str| -> Result<Option<f64>, PlanError> {
+            v.as_ref()
+                .map(|v| self.percent(v, f, 1e-6, 100.0).map(|x| x * 100.0))
+                .transpose()
+        };
+        Ok(super::steps::StepLimits {
+            max_change_percent: pct(&s.max_change, "max_change")?,
+            max_drift_percent: pct(&s.max_drift, "max_drift")?,
+            max_rise_c: s
+                .max_rise
+                .as_ref()
+                .map(|v| self.positive(v, Dim::Temperature, "max_rise"))
+                .transpose()?,
+        })
+    }
+
     pub(super) fn expand(&self, raw: RawPlan) -> Result<Plan, PlanError> {
         let name = checks::name_is_a_folder_component(self, &raw.name)?;
         let settle = match &raw.settle {
@@ -88,6 +107,16 @@ impl Cx<'_> {
         let label = match &s.label {
             Some(l) => l.get_ref().clone(),
             None => format!("{} {}", index + 1, kind.as_str()),
+        };
+        let beyond_design = match &s.beyond_design {
+            Some(b) if b.get_ref().trim().is_empty() => {
+                return Err(self.at(
+                    b.span(),
+                    "`beyond_design` must say why this step may go beyond the design                      (it is shown in the record and the report)",
+                ))
+            }
+            Some(b) => Some(b.get_ref().trim().to_string()),
+            None => None,
         };
         let settle = match &s.settle {
             Some(v) => self.duration(v, "settle")?,
@@ -176,9 +205,12 @@ impl Cx<'_> {
             StepKind::ShortCircuit => self.short(s, rs, index, il)?,
             StepKind::KneeSearch => self.knee(s, rs)?,
         };
+        let limits = self.step_limits(s)?;
         Ok(Step {
             kind,
             label,
+            beyond_design,
+            limits,
             settle,
             samples,
             action,

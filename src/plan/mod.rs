@@ -30,6 +30,7 @@
 //! TOML number is taken in the field's base unit (A, V, ohm, W, degC, s).
 
 mod checks;
+mod design_check;
 mod error;
 mod expand;
 mod fields;
@@ -41,11 +42,13 @@ mod targets;
 #[cfg(test)]
 mod tests;
 
+pub use design_check::{DesignBounds, INTERLOCK_MARGIN};
 pub use error::PlanError;
 pub use knee::{KneeConfig, KneeOutcome, KneeRequest, KneeResult, KneeSearch};
 pub use quantity::{parse_quantity, tidy, Dim};
 pub use steps::{
-    recovery_readings, short_readings, Action, Interlocks, LoadSetting, Plan, ShortCircuit, Step,
+    outline, recovery_readings, short_readings, step_kinds, Action, Interlocks, LoadSetting, Plan,
+    ShortCircuit, Step, StepLimits, StepOutline,
 };
 pub use targets::DesignTargets;
 

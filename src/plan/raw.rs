@@ -35,6 +35,10 @@ pub(super) struct RawInterlocks {
 pub(super) struct RawStep {
     pub(super) kind: Spanned<String>,
     pub(super) label: Option<Spanned<String>>,
+    /// Why this step may go beyond what the design allows (a CC load above its lowest
+    /// worst-case limit, past an interlock); shown on the console, in the record's plan
+    /// snapshot and in the report.
+    pub(super) beyond_design: Option<Spanned<String>>,
     pub(super) settle: Option<SV>,
     pub(super) samples: Option<SV>,
     pub(super) mode: Option<Spanned<String>>,
@@ -56,6 +60,12 @@ pub(super) struct RawStep {
     pub(super) recovery_load: Option<SV>,
     pub(super) recovery_time: Option<SV>,
     pub(super) duration: Option<SV>,
+    /// Line sweep: the largest output change over the sweep that passes ("0.1 %").
+    pub(super) max_change: Option<SV>,
+    /// Soak: the largest output drift that passes ("0.2 %").
+    pub(super) max_drift: Option<SV>,
+    /// Soak: the largest temperature rise that passes ("25 degC").
+    pub(super) max_rise: Option<SV>,
 }
 
 impl RawStep {
@@ -85,6 +95,9 @@ impl RawStep {
         add("recovery_load", &self.recovery_load);
         add("recovery_time", &self.recovery_time);
         add("duration", &self.duration);
+        add("max_change", &self.max_change);
+        add("max_drift", &self.max_drift);
+        add("max_rise", &self.max_rise);
         if let Some(m) = &self.mode {
             v.push(("mode", m.span()));
         }
@@ -116,7 +129,7 @@ pub(super) fn allowed_fields(kind: StepKind) -> &'static [&'static str] {
             "recovery_load",
             "recovery_time",
         ],
-        StepKind::LineSweep => &["from", "to", "step", "points", "load"],
-        StepKind::Soak => &["load", "duration", "interval"],
+        StepKind::LineSweep => &["from", "to", "step", "points", "load", "max_change"],
+        StepKind::Soak => &["load", "duration", "interval", "max_drift", "max_rise"],
     }
 }

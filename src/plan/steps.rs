@@ -73,6 +73,11 @@ pub enum Action {
 pub struct Step {
     pub kind: StepKind,
     pub label: String,
+    /// The plan's reason for letting this step go beyond the design (`beyond_design`), which
+    /// lifts the design checks of `Plan::parse_for_design` for it.
+    pub beyond_design: Option<String>,
+    /// Limits the step sets on its own metrics.
+    pub limits: StepLimits,
     pub settle: Duration,
     pub samples: u32,
     pub action: Action,
@@ -206,4 +211,71 @@ impl Plan {
         }
         Ok(())
     }
+}
+
+/// Limits a step sets on its own metrics (line regulation, soak drift and temperature rise).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct StepLimits {
+    /// Largest |line regulation| that passes, percent.
+    pub max_change_percent: Option<f64>,
+    /// Largest |soak drift| that passes, percent.
+    pub max_drift_percent: Option<f64>,
+    /// Largest temperature rise over the soak that passes, degC.
+    pub max_rise_c: Option<f64>,
+}
+
+/// One step of a plan as read without the design: its kind, label, `beyond_design` and the
+/// limits it sets on its metrics.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StepOutline {
+    pub kind: StepKind,
+    pub label: Option<String>,
+    pub beyond_design: Option<String>,
+    pub limits: StepLimits,
+}
+
+/// The steps of plan text, in order, read without the design (what a record's plan
+/// snapshot promised). Errors name the file, line and column.
+pub fn outline(text: &str, file: &str) -> Result<Vec<StepOutline>, PlanError> {
+    let raw: RawPlan =
+        toml::from_str(text).map_err(|e| PlanError::Invalid(config::from_toml(file, text, &e)))?;
+    raw.step
+        .iter()
+        .map(|s| {
+            let s = s.get_ref();
+            let kind = s.kind.get_ref();
+            let kind = StepKind::parse(kind).ok_or_else(|| {
+                PlanError::Invalid(config::at_span(
+                    file,
+                    text,
+                    Some(s.kind.span()),
+                    format!("unknown step kind '{kind}'"),
+                ))
+            })?;
+            // The limits are absolute (a percentage, a temperature difference): no design
+            // value is needed to read them.
+            let none = DesignTargets {
+                vout_v: 0.0,
+                limit_current_a: 0.0,
+                short_circuit_current_a: 0.0,
+                max_load_current_a: 0.0,
+                input_voltage_v: None,
+            };
+            let cx = Cx::new(text, file, &none);
+            Ok(StepOutline {
+                kind,
+                label: s.label.as_ref().map(|l| l.get_ref().clone()),
+                beyond_design: s
+                    .beyond_design
+                    .as_ref()
+                    .map(|b| b.get_ref().trim().to_string()),
+                limits: cx.step_limits(s)?,
+            })
+        })
+        .collect()
+}
+
+/// The kinds of a plan's steps, in order (see [`outline`]).
+pub fn step_kinds(text: &str, file: &str) -> Result<Vec<StepKind>, PlanError> {
+    Ok(outline(text, file)?.into_iter().map(|s| s.kind).collect())
 }

@@ -19,4 +19,4 @@ pub use schema::{
     Outcome, Row, RunInfo, Snapshots, StepKind, BENCH_SNAPSHOT, DESIGN_SNAPSHOT, PLAN_SNAPSHOT,
     READINGS_FILE, READINGS_HEADER, RUN_FILE, SCHEMA_VERSION,
 };
-pub use writer::{row_fields, RecordWriter};
+pub use writer::{row_fields, sync_dir, RecordWriter};

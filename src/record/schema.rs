@@ -285,14 +285,34 @@ impl Row {
     }
 }
 
-/// How a run ended.
+/// How a run ended (run.json's `outcome`). The overall verdict of a record is decided from
+/// it by `compare::judge`: `aborted` is INCOMPLETE, `error` (and `failed`) is ERROR.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Outcome {
+    /// Written at the start; a record still saying so after its writer is gone was cut short.
     Running,
+    /// Every step of the plan ran.
     Completed,
+    /// Stopped before the end of the plan by an interlock or the operator (Ctrl-C, a signal).
     Aborted,
+    /// The station failed: an instrument or its link, the safe state, the disk.
+    Error,
+    /// Older records' word for a station failure (read as [`Outcome::Error`]).
     Failed,
+}
+
+impl Outcome {
+    /// The word written in run.json.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Outcome::Running => "running",
+            Outcome::Completed => "completed",
+            Outcome::Aborted => "aborted",
+            Outcome::Error => "error",
+            Outcome::Failed => "failed",
+        }
+    }
 }
 
 /// Which design a run was made against.

@@ -14,16 +14,41 @@ use std::fs::{self, File, OpenOptions};
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
-/// Write `bytes` to `path` atomically: a temporary file in the same folder, synced, renamed.
+/// Write `bytes` to `path` atomically: a temporary file in the same folder, synced, renamed,
+/// and the folder synced so the new name is on disk too. A failed write leaves the old file
+/// in place (and no temporary file behind).
 fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), RecordError> {
     let tmp = path.with_extension("json.tmp");
-    let mut f = File::create(&tmp).map_err(io_err(FileAction::Create, &tmp))?;
-    f.write_all(bytes)
-        .map_err(io_err(FileAction::Write, &tmp))?;
-    f.sync_all().map_err(io_err(FileAction::Sync, &tmp))?;
-    drop(f);
-    fs::rename(&tmp, path).map_err(io_err(FileAction::Replace, path))?;
+    let written = (|| {
+        let mut f = File::create(&tmp).map_err(io_err(FileAction::Create, &tmp))?;
+        f.write_all(bytes)
+            .map_err(io_err(FileAction::Write, &tmp))?;
+        f.sync_all().map_err(io_err(FileAction::Sync, &tmp))?;
+        drop(f);
+        fs::rename(&tmp, path).map_err(io_err(FileAction::Replace, path))
+    })();
+    if written.is_err() {
+        let _ = fs::remove_file(&tmp);
+    }
+    written?;
+    if let Some(dir) = path.parent() {
+        sync_dir(dir).map_err(io_err(FileAction::Sync, dir))?;
+    }
     Ok(())
+}
+
+/// Sync a folder (its entries: names created or renamed in it) to disk. On systems where a
+/// folder cannot be opened for syncing this does nothing.
+pub fn sync_dir(dir: &Path) -> io::Result<()> {
+    #[cfg(unix)]
+    {
+        File::open(dir)?.sync_all()
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = dir;
+        Ok(())
+    }
 }
 
 /// Advisory lock held on readings.csv while a writer is alive; readers use it to tell a

@@ -31,15 +31,12 @@ table{border-collapse:collapse;margin:8px 0}td,th{border:1px solid #999;padding:
 th{background:#eee}td.num{text-align:right;font-variant-numeric:tabular-nums}\
 .v-pass{background:#dff0d8}.v-marginal{background:#fcf3cf;font-weight:bold}\
 .v-fail{background:#f2d7d5;font-weight:bold;text-decoration:underline}\
+.v-incomplete,.v-error{background:#e5e5e5;font-weight:bold;font-style:italic}\
 .caution{border:2px solid #444;padding:8px 12px;background:#f7f7f7}\
 figure{margin:12px 0}figcaption{font-size:.9em;color:#333}svg{max-width:100%;height:auto}";
 
 fn verdict_cell(v: Verdict) -> String {
-    let word = match v {
-        Verdict::Pass => "PASS",
-        Verdict::Marginal => "MARGINAL",
-        Verdict::Fail => "FAIL",
-    };
+    let word = v.label();
     format!("<td class=\"v-{}\">{word}</td>", v.as_str())
 }
 
@@ -66,13 +63,22 @@ pub fn write_html<W: Write>(
         e(&info.unit),
         e(&info.plan_name)
     )?;
-    let overall = match s.verdict {
+    let mut overall = match s.verdict {
         Some(v) => format!(
             "<table><tr><th>Overall verdict</th>{}</tr></table>",
             verdict_cell(v)
         ),
         None => "<p>No design expectation was given: metrics only, no verdict.</p>".into(),
     };
+    // Why the outcome is not a plain pass, and steps the plan ran beyond the design.
+    for (title, lines) in [("Why", &s.reasons), ("Beyond the design", &s.beyond_design)] {
+        if !lines.is_empty() {
+            let items: String = lines.iter().map(|r| format!("<li>{}</li>", e(r))).collect();
+            overall.push_str(&format!(
+                "<p>{title}:</p><ul class=\"reasons\">{items}</ul>"
+            ));
+        }
+    }
     writeln!(
         w,
         "<h1>Unit {} &mdash; plan {}</h1>\n{overall}",

@@ -6,7 +6,7 @@ use crate::analysis::{self, AnalysisOptions, Metrics};
 use crate::compare::{
     self, Comparison, DesignExpectation, DriftFlag, HistoryEntry, KeyValues, Verdict,
 };
-use crate::record::{self, Outcome, RecordError, RecordState, Row, RunInfo, RunRecord};
+use crate::record::{self, Outcome, RecordError, RecordState, Row, RunInfo, RunRecord, StepKind};
 use serde::Serialize;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -73,9 +73,31 @@ pub struct Summary {
     pub metrics: Metrics,
     pub comparison: Option<Comparison>,
     pub drift: Vec<DriftFlag>,
-    /// Overall verdict ([`compare::record_verdict`]): the comparison's, or fail when the run
-    /// did not finish.
+    /// The metrics the plan's steps promise (all required), and where the steps were read.
+    pub promised: Vec<compare::Promised>,
+    pub promised_from: PromisedFrom,
+    /// Promised metrics the record lacks, with why.
+    pub missing: Vec<compare::Missing>,
+    /// Overall outcome ([`compare::judge`]): pass, marginal, fail, incomplete or error;
+    /// `null` only for a finished record judged against no design.
     pub verdict: Option<Verdict>,
+    /// Why the outcome is not a plain pass.
+    pub reasons: Vec<String>,
+    /// Steps the plan let go beyond the design (`beyond_design`), with why.
+    pub beyond_design: Vec<String>,
+}
+
+/// Where a summary found the plan's steps.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum PromisedFrom {
+    /// Given by the caller (the run that just ended).
+    Plan,
+    /// The record's plan.toml snapshot.
+    PlanSnapshot,
+    /// The step kinds seen in readings.csv (no readable plan snapshot: a step that never
+    /// wrote a row is not known).
+    Readings,
 }
 
 /// Options of a report.
@@ -86,6 +108,12 @@ pub struct ReportOptions {
     pub earlier: Vec<HistoryEntry>,
     /// Also write PNG files beside the SVG plots.
     pub png: bool,
+    /// The kinds of the plan's steps, in order (what the plan promises). `None`: read them
+    /// from the record's plan.toml snapshot ([`write_report`]), else from its rows.
+    pub plan_steps: Option<Vec<StepKind>>,
+    /// Limits the plan sets on metrics the design has no band for (line regulation, soak
+    /// drift and temperature rise). `None`: read them from the plan.toml snapshot.
+    pub plan_limits: Option<compare::MetricLimits>,
 }
 
 /// Build the summary of a record (pure).
@@ -110,10 +138,40 @@ pub fn summarize_record(
     if aopts.nominal_voltage.is_none() {
         aopts.nominal_voltage = exp.map(|e| e.vout.nominal);
     }
+    if aopts.full_load_current.is_none() {
+        aopts.full_load_current = exp.and_then(|e| e.rated_load_a);
+    }
     let metrics = analysis::analyse(rows, &aopts);
-    let comparison = exp.map(|e| compare::compare(&metrics, e));
-    let verdict =
-        compare::record_verdict(info.outcome, state, comparison.as_ref().map(|c| c.verdict));
+    let limits = opts.plan_limits.unwrap_or_default();
+    let comparison = exp.map(|e| {
+        let mut c = compare::compare(&metrics, e);
+        c.checks
+            .extend(compare::plan_limit_checks(&metrics, &limits));
+        c.verdict = c
+            .checks
+            .iter()
+            .map(|ch| ch.verdict)
+            .max()
+            .unwrap_or(Verdict::Pass);
+        c
+    });
+    let (kinds, promised_from) = match &opts.plan_steps {
+        Some(k) => (k.clone(), PromisedFrom::Plan),
+        None => {
+            let mut k: Vec<StepKind> = rows.iter().map(|r| r.step_kind).collect();
+            k.dedup();
+            (k, PromisedFrom::Readings)
+        }
+    };
+    let promised = compare::promised_metrics(&kinds);
+    let missing = compare::missing_metrics(&metrics, &promised);
+    let facts = compare::RecordFacts {
+        outcome: info.outcome,
+        state,
+        reason: info.reason.as_deref(),
+    };
+    let judgement = compare::judge(facts, comparison.as_ref(), &missing);
+    let verdict = judgement.verdict;
     let this = entry_for(&record_name_of(info), info, &metrics, verdict);
     let mut all = opts.earlier.clone();
     all.push(this.clone());
@@ -143,7 +201,12 @@ pub fn summarize_record(
         metrics,
         comparison,
         drift,
+        promised,
+        promised_from,
+        missing,
         verdict,
+        reasons: judgement.reasons,
+        beyond_design: Vec::new(),
     }
 }
 
@@ -152,12 +215,7 @@ fn record_name_of(info: &RunInfo) -> String {
 }
 
 pub(super) fn outcome_str(o: Outcome) -> &'static str {
-    match o {
-        Outcome::Running => "running",
-        Outcome::Completed => "completed",
-        Outcome::Aborted => "aborted",
-        Outcome::Failed => "failed",
-    }
+    o.as_str()
 }
 
 pub(super) fn entry_for(
@@ -189,14 +247,30 @@ pub struct Written {
 }
 
 fn write_file(path: &Path, bytes: &[u8]) -> Result<(), ReportError> {
-    // Write a temporary file and rename it so a reader never sees half a report.
+    // Write a temporary file, sync it and rename it so a reader never sees half a report.
     let tmp = path.with_extension("tmp");
-    std::fs::write(&tmp, bytes)
-        .and_then(|_| std::fs::rename(&tmp, path))
-        .map_err(|source| ReportError::Write {
+    let write = || -> std::io::Result<()> {
+        let mut f = std::fs::File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        drop(f);
+        std::fs::rename(&tmp, path)
+    };
+    write().map_err(|source| {
+        let _ = std::fs::remove_file(&tmp);
+        ReportError::Write {
             path: path.to_path_buf(),
             source,
-        })
+        }
+    })
+}
+
+/// Sync a folder so the names of the files renamed into it are on disk.
+fn sync_folder(dir: &Path) -> Result<(), ReportError> {
+    record::sync_dir(dir).map_err(|source| ReportError::Write {
+        path: dir.to_path_buf(),
+        source,
+    })
 }
 
 /// Analyse a finished record folder and write `summary.json`, `plots/` and `report.html`
@@ -207,7 +281,62 @@ pub fn write_report(
     opts: &ReportOptions,
 ) -> Result<Written, ReportError> {
     let rec = load_record(dir)?;
-    let mut summary = summarize_record(&rec.info, Some(rec.state), &rec.rows, exp, opts);
+    let summary = evaluate_loaded(&rec, dir, exp, opts);
+    write_derived_files(&rec, dir, &summary, exp, opts)
+}
+
+/// The summary of a record folder without writing anything: the record read, the plan's
+/// steps taken from `opts` or the record's plan.toml snapshot, judged by the one rule.
+pub fn evaluate(
+    dir: &Path,
+    exp: Option<&DesignExpectation>,
+    opts: &ReportOptions,
+) -> Result<Summary, ReportError> {
+    let rec = load_record(dir)?;
+    Ok(evaluate_loaded(&rec, dir, exp, opts))
+}
+
+/// [`evaluate`] of a record already read from `dir`.
+pub fn evaluate_loaded(
+    rec: &RunRecord,
+    dir: &Path,
+    exp: Option<&DesignExpectation>,
+    opts: &ReportOptions,
+) -> Summary {
+    let mut opts = opts.clone();
+    let mut from = PromisedFrom::Plan;
+    let snapshot = plan_snapshot(dir);
+    if opts.plan_steps.is_none() {
+        opts.plan_steps = snapshot
+            .as_ref()
+            .map(|s| s.iter().map(|o| o.kind).collect());
+        from = PromisedFrom::PlanSnapshot;
+    }
+    if opts.plan_limits.is_none() {
+        opts.plan_limits = snapshot
+            .as_ref()
+            .map(|s| metric_limits(s.iter().map(|o| o.limits)));
+    }
+    let mut summary = summarize_record(&rec.info, Some(rec.state), &rec.rows, exp, &opts);
+    if summary.promised_from == PromisedFrom::Plan {
+        summary.promised_from = from;
+    }
+    summary.beyond_design = snapshot
+        .iter()
+        .flatten()
+        .enumerate()
+        .filter_map(|(k, o)| {
+            let why = o.beyond_design.as_ref()?;
+            let label = o
+                .label
+                .clone()
+                .unwrap_or_else(|| o.kind.as_str().to_string());
+            Some(format!(
+                "step {} ('{label}') ran beyond the design: {why}",
+                k + 1
+            ))
+        })
+        .collect();
     summary.record_state = state_word(rec.state).to_string();
     // Drift flags name the record by its folder.
     let folder = dir
@@ -217,6 +346,49 @@ pub fn write_report(
     for f in &mut summary.drift {
         f.record = folder.clone();
     }
+    summary
+}
+
+/// The limits a plan's steps set, the first of each kind.
+pub fn metric_limits(
+    steps: impl Iterator<Item = crate::plan::StepLimits>,
+) -> compare::MetricLimits {
+    let mut l = compare::MetricLimits::default();
+    for s in steps {
+        l.line_regulation_percent = l.line_regulation_percent.or(s.max_change_percent);
+        l.soak_drift_percent = l.soak_drift_percent.or(s.max_drift_percent);
+        l.soak_rise_c = l.soak_rise_c.or(s.max_rise_c);
+    }
+    l
+}
+
+/// The steps of a record's plan.toml snapshot, when it reads.
+fn plan_snapshot(dir: &Path) -> Option<Vec<crate::plan::StepOutline>> {
+    let text = std::fs::read_to_string(dir.join(record::PLAN_SNAPSHOT)).ok()?;
+    crate::plan::outline(
+        &text,
+        &dir.join(record::PLAN_SNAPSHOT).display().to_string(),
+    )
+    .ok()
+}
+
+/// Write `summary.json`, `plots/` and `report.html` of the record `rec` into `out`
+/// (the record folder itself, or a re-evaluation folder beside it). Each file is written
+/// to a temporary name, synced and renamed, and the folder synced, so a reader never sees
+/// half a file and a written file survives a power cut.
+pub fn write_derived_files(
+    rec: &RunRecord,
+    out: &Path,
+    summary: &Summary,
+    exp: Option<&DesignExpectation>,
+    opts: &ReportOptions,
+) -> Result<Written, ReportError> {
+    let dir = out;
+    std::fs::create_dir_all(dir).map_err(|source| ReportError::Write {
+        path: dir.to_path_buf(),
+        source,
+    })?;
+    let summary = summary.clone();
     let mut files = Vec::new();
     let mut json = Vec::new();
     write_summary_json(&mut json, &summary).map_err(|source| ReportError::Write {
@@ -258,6 +430,8 @@ pub fn write_report(
     let p = dir.join("report.html");
     write_file(&p, &page)?;
     files.push(p);
+    sync_folder(&plots_dir)?;
+    sync_folder(dir)?;
     Ok(Written { summary, files })
 }
 

@@ -56,12 +56,16 @@ pub enum PortFault {
 
 impl Fault {
     /// Parse a fault spec. Unit faults: `sense=0.56`, `diodes=+1`, `diodes=-1`, `theta_sa=12`,
-    /// `vref=5.3`. Port faults name an instrument (`dmm`, `ammeter`, `eload`, `psu`, `thermo`):
+    /// `vref=5.3`, `fb_top=27000`, `fb_bottom=4700`, `fb_swap`, `fold_top=1500`,
+    /// `fold_bottom=330`, `pass_stage` (the other stage). Port faults name an instrument (`dmm`, `ammeter`, `eload`, `psu`, `thermo`):
     /// `dmm:garbage=5` (a garbage line before every 5th reply), `dmm:drop=3` (every 3rd reply
     /// lost), `eload:slow=800` (every reply 800 ms late), `psu:close-after=20` (port closes
     /// after 20 commands; streaming meter: lines), `thermo:close-at=5` (closes 5 s after start).
     pub fn parse(spec: &str) -> Result<Fault, String> {
         let Some((inst, rest)) = spec.split_once(':') else {
+            if let Some(part) = super::unit::PartFault::parse(spec) {
+                return part.map(|p| Fault::Unit(UnitFault::Part(p)));
+            }
             return UnitFault::parse(spec).map(Fault::Unit);
         };
         let kind = InstrumentKind::parse(inst.trim()).ok_or_else(|| {

@@ -63,8 +63,12 @@ impl SimUnit {
         faults: &[UnitFault],
         mut model: UnitModel,
     ) -> Result<SimUnit, UnitError> {
+        let mut built = design.clone();
         for f in faults {
             match f {
+                UnitFault::Part(p) => p
+                    .apply(&mut built, &mut params)
+                    .map_err(|why| UnitFault::not_applicable(f, &why))?,
                 UnitFault::SenseOhms(r) => params.r_sense = *r,
                 UnitFault::ReferenceVolts(v) => params.vref = *v,
                 UnitFault::ThetaSa(t) => model.default_theta_sa = *t,
@@ -92,7 +96,7 @@ impl SimUnit {
         let ambient = params.ambient_c;
         params.set_ambient(ambient);
         Ok(SimUnit {
-            design: design.clone(),
+            design: built,
             params,
             model,
             thermal: Thermal {

@@ -28,6 +28,7 @@
 
 mod as_built;
 mod model;
+mod parts;
 #[cfg(test)]
 mod tests;
 
@@ -36,3 +37,4 @@ pub use model::{
     first_order_step, thermal_voltage, Controls, LoadSetting, OperatingPoint, SourceSetting,
     Thermal, Truth, UnitError, UnitFault, UnitModel, BOLTZMANN, ELEMENTARY_CHARGE,
 };
+pub use parts::PartFault;

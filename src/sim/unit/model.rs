@@ -86,6 +86,8 @@ pub enum UnitFault {
     ThetaSa(f64),
     /// The reference is this many volts instead of its drawn value.
     ReferenceVolts(f64),
+    /// Another part differs from the design (feedback, foldback divider, pass stage).
+    Part(super::parts::PartFault),
 }
 
 impl UnitFault {
@@ -131,6 +133,7 @@ impl UnitFault {
             UnitFault::DiodeDelta(n) => format!("clamp string has {n:+} diode(s)"),
             UnitFault::ThetaSa(t) => format!("heatsink missing: theta_sa {t} degC/W"),
             UnitFault::ReferenceVolts(v) => format!("reference at {v} V"),
+            UnitFault::Part(p) => p.describe(),
         }
     }
 }

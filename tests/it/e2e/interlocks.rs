@@ -44,7 +44,8 @@ fn max_output_voltage_below_the_regulated_output_trips() {
     let plan = format!(
         "name = \"e2e-ov\"\nsettle = \"50 ms\"\nsamples = 1\n\n[interlocks]\n\
          max_output_voltage = \"{limit} V\"\n\n[[step]]\nkind = \"load_sweep\"\n\
-         from = \"0 A\"\nto = \"max_load\"\npoints = 10\n"
+         from = \"0 A\"\nto = \"max_load\"\npoints = 10\n\
+         beyond_design = \"interlock test: the limit is set to trip\"\n"
     );
     let rows = tripped(&rig, "E2E-0101", &plan, "max_output_voltage");
     // The unit regulates above the limit from the first point: the first reading trips.
@@ -61,7 +62,8 @@ fn max_load_power_trips_partway_up_a_load_sweep() {
     let rig = Rig::start(LAB, SimOptions::default().seed(202));
     let plan = "name = \"e2e-power\"\nsettle = \"50 ms\"\nsamples = 1\n\n[interlocks]\n\
                 max_load_power = \"8 W\"\n\n[[step]]\nkind = \"load_sweep\"\n\
-                from = \"0 A\"\nto = \"max_load\"\npoints = 13\n";
+                from = \"0 A\"\nto = \"max_load\"\npoints = 13\n\
+                beyond_design = \"interlock test: the limit is set to trip\"\n";
     let rows = tripped(&rig, "E2E-0102", plan, "max_load_power");
     // P = V x I (power into a load, by definition); the sweep reaches about 20 V x 1.2 A, so
     // it must stop partway, at the first row above 8 W.
@@ -81,7 +83,8 @@ fn max_temperature_trips_on_a_unit_with_a_poor_heatsink() {
     let rig = Rig::start(LAB, SimOptions::default().seed(203).fault(fault));
     let plan = "name = \"e2e-hot\"\nsettle = \"50 ms\"\nsamples = 1\n\n[interlocks]\n\
                 max_temperature = \"40 degC\"\n\n[[step]]\nkind = \"soak\"\n\
-                load = \"max_load\"\nduration = \"60 s\"\ninterval = \"100 ms\"\n";
+                load = \"max_load\"\nduration = \"60 s\"\ninterval = \"100 ms\"\n\
+                beyond_design = \"interlock test: full rated load on a poor heatsink\"\n";
     let rows = tripped(&rig, "E2E-0103", plan, "max_temperature");
     use regulus::measure::Quantity::Temperature;
     let t: Vec<f64> = rows.iter().map(|r| r.value(Temperature).unwrap()).collect();

@@ -86,6 +86,8 @@ fn search(design_name: &str, seed: u64, fault: Option<&str>) -> Found {
         operator: None,
         note: None,
         yes: true,
+        json: false,
+        no_preflight: false,
     };
     let prep = prepare(&args).unwrap();
     let cfg = BenchConfig::load(&bench_path).unwrap();

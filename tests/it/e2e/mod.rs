@@ -3,3 +3,4 @@
 mod interlocks;
 mod knee;
 mod run;
+mod verdicts;

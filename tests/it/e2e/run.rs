@@ -25,7 +25,7 @@ max_short_dwell = "1 s"
 [[step]]
 kind = "load_sweep"
 from = "0 A"
-to = "max_load"
+to = "95 % of max_load"
 points = 5
 
 [[step]]
@@ -64,7 +64,7 @@ samples = 1
 [[step]]
 kind = "load_sweep"
 from = "0 A"
-to = "max_load"
+to = "95 % of max_load"
 points = 400
 "#;
 
@@ -175,19 +175,25 @@ fn kill_9_mid_run_leaves_readable_rows_and_an_incomplete_record() {
 }
 
 #[test]
-fn meter_port_closing_mid_run_aborts_with_exit_3_and_the_load_off() {
+fn meter_port_closing_mid_run_is_a_station_error_with_exit_4_and_the_load_off() {
     let _g = serial();
     let fault = Fault::parse("dmm:close-after=14").unwrap();
     let rig = Rig::start(LAB, SimOptions::default().seed(103).fault(fault));
     let out = rig.run("E2E-0003", LONG);
-    assert_eq!(out.status.code(), Some(3), "{}", show(&out));
+    // A meter that stops answering is the station's failure, not the unit's: ERROR, exit 4.
+    assert_eq!(out.status.code(), Some(4), "{}", show(&out));
+    assert!(
+        String::from_utf8_lossy(&out.stdout).contains("verdict: ERROR"),
+        "{}",
+        show(&out)
+    );
     assert!(rig
         .sim
         .is_closed(regulus::sim::instruments::InstrumentKind::QueryMeter));
     let dir = rig.run_dir("E2E-0003");
     let plan = rig.dir.path().join("plan.toml");
     let rec = check_record(&dir, &rig.design_path, &rig.bench, &plan);
-    assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted));
+    assert_eq!(rec.state, RecordState::Finished(Outcome::Error));
     let reason = rec.info.reason.clone().unwrap_or_default();
     assert!(reason.contains("instrument failure"), "{reason}");
     assert!(reason.contains("dmm"), "{reason}");
@@ -201,18 +207,18 @@ fn meter_port_closing_mid_run_aborts_with_exit_3_and_the_load_off() {
 }
 
 #[test]
-fn load_port_closing_mid_run_aborts_and_switches_the_source_off() {
+fn load_port_closing_mid_run_is_an_error_and_switches_the_source_off() {
     let _g = serial();
     let fault = Fault::parse("eload:close-after=20").unwrap();
     let rig = Rig::start(LAB, SimOptions::default().seed(104).fault(fault));
     let out = rig.run("E2E-0004", LONG);
-    assert_eq!(out.status.code(), Some(3), "{}", show(&out));
+    assert_eq!(out.status.code(), Some(4), "{}", show(&out));
     assert!(rig
         .sim
         .is_closed(regulus::sim::instruments::InstrumentKind::Load));
     let dir = rig.run_dir("E2E-0004");
     let rec = read_run(&dir).unwrap();
-    assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted));
+    assert_eq!(rec.state, RecordState::Finished(Outcome::Error));
     let reason = rec.info.reason.clone().unwrap_or_default();
     assert!(reason.contains("instrument failure"), "{reason}");
     assert!(reason.contains("eload"), "{reason}");
@@ -241,6 +247,10 @@ fn sigint_mid_plan_reaches_the_safe_state_with_exit_3() {
     let (code, stdout, stderr) = child.finish();
     assert_eq!(code, Some(3), "{stdout}\n{stderr}");
     assert!(stderr.contains("interrupt"), "{stderr}");
+    // Stopped by the operator: INCOMPLETE with the reason, not FAIL.
+    assert!(stdout.contains("verdict: INCOMPLETE"), "{stdout}");
+    assert!(stdout.contains("interrupted by the operator"), "{stdout}");
+    assert!(!stdout.contains("FAIL"), "{stdout}");
     let rec = read_run(&dir).unwrap();
     assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted));
     assert_eq!(

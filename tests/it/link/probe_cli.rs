@@ -99,7 +99,7 @@ fn probe_of_a_bad_bench_file_exits_2_with_its_position() {
 }
 
 #[test]
-fn probe_with_a_dead_instrument_exits_3_and_says_what_to_check() {
+fn probe_with_a_dead_instrument_exits_4_and_says_what_to_check() {
     let _g = serial();
     let port = {
         let l = std::net::TcpListener::bind("127.0.0.1:0").unwrap();
@@ -118,7 +118,8 @@ fn probe_with_a_dead_instrument_exits_3_and_says_what_to_check() {
         .output()
         .unwrap();
     let stdout = String::from_utf8_lossy(&out.stdout);
-    assert_eq!(out.status.code(), Some(3), "{stdout}");
+    // A dead instrument is a station error: exit 4.
+    assert_eq!(out.status.code(), Some(4), "{stdout}");
     assert!(
         stdout.contains("connection refused") && stdout.contains("psu"),
         "{stdout}"

@@ -224,7 +224,7 @@ fn compare_fails_and_names_a_wrong_sense_resistor() {
     let out = regulus(&args, tmp.path());
     let stdout = String::from_utf8_lossy(&out.stdout);
     assert_eq!(out.status.code(), Some(1), "{stdout}");
-    assert!(stdout.contains("FAIL      SYN-BAD"), "{stdout}");
+    assert!(stdout.contains("FAIL       SYN-BAD"), "{stdout}");
     assert!(
         stdout.contains("0.68 ohm sense resistor fitted instead of 0.47 ohm"),
         "{stdout}"
@@ -275,7 +275,9 @@ fn a_record_left_running_by_a_dead_process_reads_as_incomplete() {
         &["report", "--no-design", recs[1].to_str().unwrap()],
         tmp.path(),
     );
-    assert_eq!(out.status.code(), Some(0));
+    // A record that never finished is INCOMPLETE (exit 3), even with metrics only.
+    assert_eq!(out.status.code(), Some(3));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("verdict: INCOMPLETE"));
     let summary: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(recs[1].join("summary.json")).unwrap())
             .unwrap();
@@ -292,8 +294,10 @@ fn a_record_left_running_by_a_dead_process_reads_as_incomplete() {
 
 #[test]
 fn a_record_cut_short_cannot_pass_against_its_design() {
-    // ARCHITECTURE.md: a run that did not finish cannot pass (compare::record_verdict). The
-    // same good record passes while finished and fails once run.json says it never finished.
+    // ARCHITECTURE.md: a run that did not finish cannot pass (compare::judge). The same good
+    // record passes while finished and is INCOMPLETE (exit 3) once run.json says it never
+    // finished. Judged against a design file given with --design, the re-evaluation goes
+    // beside the record's own files, which stay as they were.
     let tmp = tempfile::tempdir().unwrap();
     let recs = population_records(tmp.path(), 1, false);
     let design = design_path();
@@ -303,21 +307,32 @@ fn a_record_cut_short_cannot_pass_against_its_design() {
             tmp.path(),
         )
     };
+    let own = Path::new(&recs[0]).join("summary.json");
+    let _ = std::fs::remove_file(&own);
     let finished = report(&recs[0]);
     let stdout = String::from_utf8_lossy(&finished.stdout);
     assert_eq!(finished.status.code(), Some(0), "{stdout}");
     assert!(stdout.contains("verdict: PASS"), "{stdout}");
+    let again = Path::new(&recs[0]).join(format!(
+        "against-{}",
+        design.file_stem().unwrap().to_string_lossy()
+    ));
+    assert!(stdout.contains(&again.display().to_string()), "{stdout}");
+    assert!(stdout.contains("unchanged"), "{stdout}");
+    assert!(again.join("summary.json").is_file());
+    assert!(again.join("report.html").is_file());
+    assert!(!own.exists(), "the record's own summary was written");
     let run = Path::new(&recs[0]).join("run.json");
     let text = std::fs::read_to_string(&run).unwrap();
     std::fs::write(&run, text.replace("\"completed\"", "\"running\"")).unwrap();
     let cut = report(&recs[0]);
     let stdout = String::from_utf8_lossy(&cut.stdout);
-    assert_eq!(cut.status.code(), Some(1), "{stdout}");
-    assert!(stdout.contains("verdict: FAIL"), "{stdout}");
-    let summary: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(Path::new(&recs[0]).join("summary.json")).unwrap(),
-    )
-    .unwrap();
+    assert_eq!(cut.status.code(), Some(3), "{stdout}");
+    assert!(stdout.contains("verdict: INCOMPLETE"), "{stdout}");
+    assert!(stdout.contains("never finished"), "{stdout}");
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(again.join("summary.json")).unwrap())
+            .unwrap();
     assert_eq!(summary["record_state"], "incomplete");
-    assert_eq!(summary["verdict"], "fail");
+    assert_eq!(summary["verdict"], "incomplete");
 }

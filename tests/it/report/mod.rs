@@ -6,3 +6,4 @@ mod html;
 mod outputs;
 mod robust;
 mod sim;
+mod verdicts;

@@ -51,6 +51,8 @@ fn expectation() -> DesignExpectation {
         curve: vec![],
         curve_low: vec![],
         curve_high: vec![],
+        rated_load_a: None,
+        design: None,
     }
 }
 

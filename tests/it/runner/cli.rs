@@ -20,6 +20,8 @@ fn args(tmp: &std::path::Path, plan: &str) -> Args {
         operator: Some("line 3".into()),
         note: Some("first article".into()),
         yes: true,
+        json: false,
+        no_preflight: false,
     }
 }
 

@@ -248,13 +248,19 @@ async fn expect_abort(
     let p = plan(text);
     let mut obs = Probe::default();
     let r = go(&mut bench, &p, &mut obs, &CancelToken::new()).await;
-    assert_eq!(r.outcome, Outcome::Aborted);
+    // An instrument failure is the station's (error); an interlock stops the run (aborted).
+    let want = if reason_has == "instrument failure" {
+        Outcome::Error
+    } else {
+        Outcome::Aborted
+    };
+    assert_eq!(r.outcome, want);
     let reason = r.reason.clone().unwrap_or_default();
     assert!(reason.contains(reason_has), "reason: {reason}");
     assert_eq!(obs.stopping.len(), 1);
     assert_safe_state_last(&bench);
     let rec = read_run(&r.dir).unwrap();
-    assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted));
+    assert_eq!(rec.state, RecordState::Finished(want));
     assert_eq!(rec.info.reason.as_deref(), Some(reason.as_str()));
     (bench, r)
 }
@@ -411,7 +417,8 @@ async fn dead_load_still_lets_the_source_switch_off() {
     let p = plan(SWEEP);
     let mut obs = Probe::default();
     let r = go(&mut bench, &p, &mut obs, &CancelToken::new()).await;
-    assert_eq!(r.outcome, Outcome::Aborted);
+    // A dead instrument is a station error, not a stopped run.
+    assert_eq!(r.outcome, Outcome::Error);
     // The runner's own load-off and the load's safe-state sequence both fail; only the dead
     // load fails: the source still switches off.
     assert!(!r.safe_state_errors.is_empty());

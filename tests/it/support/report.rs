@@ -154,6 +154,8 @@ pub fn expectation() -> DesignExpectation {
         curve: vec![],
         curve_low: vec![],
         curve_high: vec![],
+        rated_load_a: None,
+        design: None,
     }
 }
 

@@ -1,0 +1,624 @@
+//! Diagnosis by fitting the design model: every single-part hypothesis the design allows (a
+//! sense resistor at a neighbouring preferred value, one clamp junction more or fewer, the
+//! other pass stage, the output setting off through the reference or a feedback resistor,
+//! the feedback pair swapped, the foldback divider off, extra junction heating) predicts the
+//! output voltage, the limit knee and the short-circuit current through
+//! `design::model::evaluate`; each is scored against every measurement with its uncertainty
+//! and the spread the remaining tolerances leave; only hypotheses that fit are kept, ranked
+//! by score. Pure.
+
+use super::DesignExpectation;
+use crate::design::eseries::{next_up, Series};
+use crate::design::model::{evaluate, Point};
+use crate::design::{Clamp, Design, Params, Stage};
+use serde::{Deserialize, Serialize};
+
+/// One measured value with its standard uncertainty.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Observed {
+    pub value: f64,
+    pub u: f64,
+}
+
+/// The measurements a diagnosis is fitted to (any may be missing).
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct Observations {
+    pub vout: Option<Observed>,
+    pub limit: Option<Observed>,
+    pub short: Option<Observed>,
+    /// Estimated pass junction temperature at the knee (case reading plus P theta_jc).
+    pub pass_junction_c: Option<f64>,
+    /// When the limit was not reached: the highest current at which the output still
+    /// regulated (the limit lies above it).
+    pub limit_at_least: Option<Observed>,
+}
+
+/// A hypothesis that fits, with its score and what it predicts.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Hypothesis {
+    /// The part, for people ("a 0.68 ohm sense resistor fitted instead of 0.39 ohm").
+    pub part: String,
+    /// Sum of squared normalised residuals, plus one per fitted free value (lower is better).
+    pub score: f64,
+    /// Largest |residual| / uncertainty over the measurements.
+    pub worst_z: f64,
+    /// Predicted output voltage, limit and short-circuit current.
+    pub predicted: [f64; 3],
+}
+
+/// Largest normalised residual a fitting hypothesis may leave on any measurement (3 sigma:
+/// common practice).
+pub const FIT_Z: f64 = 3.0;
+
+/// What the diagnosis found.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct Diagnosis {
+    /// True when the design as drawn (no part wrong) fits every measurement.
+    pub nominal_fits: bool,
+    /// Fitting hypotheses that explain the measurements better than the design as drawn,
+    /// best first.
+    pub fits: Vec<Hypothesis>,
+}
+
+/// The spread the remaining tolerances leave on each metric, in the order vout, limit,
+/// short: relative (Monte Carlo sigma over nominal) and absolute (the Monte Carlo sigma; a
+/// clamp's threshold spreads by the junctions' tolerances whatever the hypothesis).
+fn tolerance_spread(exp: &DesignExpectation) -> [(f64, f64); 3] {
+    let rel = |b: &super::ExpectedBand| {
+        let r = if b.nominal != 0.0 {
+            (b.monte_carlo.sigma / b.nominal).abs()
+        } else {
+            0.0
+        };
+        (r, b.monte_carlo.sigma.abs())
+    };
+    [
+        (rel(&exp.vout).0, 0.0),
+        rel(&exp.limit_current),
+        exp.short_circuit_current
+            .as_ref()
+            .map(rel)
+            .unwrap_or((0.0, 0.0)),
+    ]
+}
+
+/// Score added to a sense resistor outside the E12 series when the design's own part is in
+/// it (project choice: the common series is the likelier part to be picked by mistake).
+const OFF_SERIES_PENALTY: f64 = 1.0;
+
+/// Most the pass junction may run above its estimate from the case reading for heating to
+/// explain a limit (project choice: theta_jc and the dissipation at the knee are known to
+/// about this).
+const HEATING_SLACK_C: f64 = 25.0;
+
+fn predict(d: &Design, p: &Params) -> [f64; 3] {
+    let pt: Point = evaluate(d, p);
+    [pt.vout_set, pt.limit_current, pt.short_circuit_current]
+}
+
+struct Scorer {
+    obs: [Option<Observed>; 3],
+    spread: [(f64, f64); 3],
+    limit_at_least: Option<Observed>,
+}
+
+impl Scorer {
+    /// (score, worst z) of a prediction.
+    fn score(&self, pred: [f64; 3], free: usize) -> (f64, f64) {
+        let mut chi2 = 0.0;
+        let mut worst: f64 = 0.0;
+        for ((obs, (rel, abs)), p) in self.obs.iter().zip(self.spread).zip(pred) {
+            if let Some(o) = obs {
+                let tol = (rel * p).abs().max(abs);
+                let s = (o.u.powi(2) + tol.powi(2)).sqrt();
+                let z = if s > 0.0 { (o.value - p) / s } else { 0.0 };
+                chi2 += z * z;
+                worst = worst.max(z.abs());
+            }
+        }
+        // A one-sided observation: only a predicted limit below the bound is a residual.
+        if let Some(b) = self.limit_at_least {
+            let (rel, abs) = self.spread[1];
+            let s = (b.u.powi(2) + ((rel * pred[1]).abs().max(abs)).powi(2)).sqrt();
+            if pred[1] < b.value && s > 0.0 {
+                let z = (b.value - pred[1]) / s;
+                chi2 += z * z;
+                worst = worst.max(z);
+            }
+        }
+        (chi2 + free as f64, worst)
+    }
+}
+
+/// Values in `[lo, hi]` of a preferred-value series (IEC 60063 tables in `design::eseries`).
+fn preferred_between(lo: f64, hi: f64, series: Series) -> Vec<f64> {
+    let mut v = Vec::new();
+    let mut c = next_up(lo, series);
+    while let Some(x) = c.filter(|x| *x <= hi) {
+        v.push(x);
+        c = next_up(x * (1.0 + 1e-6), series);
+    }
+    v
+}
+
+/// The best value of one free parameter in `[lo, hi]` (a scan, then golden-section search).
+fn fit_free(lo: f64, hi: f64, f: impl Fn(f64) -> f64) -> f64 {
+    const N: usize = 60;
+    let mut best = (f64::INFINITY, lo);
+    for k in 0..=N {
+        let x = lo + (hi - lo) * k as f64 / N as f64;
+        let s = f(x);
+        if s < best.0 {
+            best = (s, x);
+        }
+    }
+    let step = (hi - lo) / N as f64;
+    let (mut a, mut b) = ((best.1 - step).max(lo), (best.1 + step).min(hi));
+    let g = 0.618_033_988_749_895;
+    for _ in 0..40 {
+        let c = b - g * (b - a);
+        let e = a + g * (b - a);
+        if f(c) < f(e) {
+            b = e;
+        } else {
+            a = c;
+        }
+    }
+    0.5 * (a + b)
+}
+
+/// A resistance for people: `0.68 ohm` below 100 ohm (as sense resistors are marked),
+/// engineering prefixes above (`30.0 kohm`).
+fn ohms(r: f64) -> String {
+    if r.abs() < 100.0 {
+        let s = format!("{r:.3}");
+        format!("{} ohm", s.trim_end_matches('0').trim_end_matches('.'))
+    } else {
+        crate::quantity::eng(r, "ohm")
+    }
+}
+
+/// Fit every single-part hypothesis of `d` to the observations.
+pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diagnosis {
+    let spread = tolerance_spread(exp);
+    let scorer = Scorer {
+        obs: [obs.vout, obs.limit, obs.short],
+        spread,
+        limit_at_least: obs.limit_at_least,
+    };
+    let mut base = Params::nominal(d);
+    if let Some(t) = obs.pass_junction_c {
+        base.pass_junction_c = t;
+    }
+    let (nominal_score, nominal_z) = scorer.score(predict(d, &base), 0);
+    let mut out = Vec::new();
+    let mut push = |part: String, d2: &Design, p: &Params, free: usize, prior: f64| {
+        let pred = predict(d2, p);
+        let (score, worst_z) = scorer.score(pred, free);
+        let score = score + prior;
+        if worst_z <= FIT_Z && score < nominal_score {
+            out.push(Hypothesis {
+                part,
+                score,
+                worst_z,
+                predicted: pred,
+            });
+        }
+    };
+
+    // Sense resistor at each neighbouring preferred value (E24 within a factor of two).
+    let r0 = d.limit.sense.ohms;
+    for r in preferred_between(r0 * 0.5, r0 * 2.0, Series::E24) {
+        if (r / r0 - 1.0).abs() < 0.01 {
+            continue;
+        }
+        let mut p = base.clone();
+        p.r_sense = r;
+        let in_e12 = |x: f64| preferred_between(x * 0.999, x * 1.001, Series::E12).len() == 1;
+        let prior = if in_e12(r0) && !in_e12(r) {
+            OFF_SERIES_PENALTY
+        } else {
+            0.0
+        };
+        push(
+            format!(
+                "a {} sense resistor fitted instead of {}",
+                ohms(r),
+                ohms(r0)
+            ),
+            d,
+            &p,
+            0,
+            prior,
+        );
+    }
+    // One clamp junction more or fewer; the other pass stage (diode-string clamp).
+    if d.limit.clamp == Clamp::DiodeString {
+        for delta in [1i64, -1] {
+            let n = base.diodes as i64 + delta;
+            if n < 1 {
+                continue;
+            }
+            let mut p = base.clone();
+            p.diodes = n as u32;
+            let word = if delta > 0 { "more" } else { "fewer" };
+            push(
+                format!(
+                    "one clamp diode {word}: {n} diodes in the string instead of {}",
+                    base.diodes
+                ),
+                d,
+                &p,
+                0,
+                0.0,
+            );
+        }
+    }
+    {
+        let mut other = d.clone();
+        other.pass.stage = match d.pass.stage {
+            Stage::Single => Stage::Darlington,
+            Stage::Darlington => Stage::Single,
+        };
+        let word = |s: Stage| match s {
+            Stage::Single => "a single pass transistor",
+            Stage::Darlington => "a Darlington pass stage",
+        };
+        if predict(&other, &base) != predict(d, &base) {
+            push(
+                format!(
+                    "{} fitted instead of {}",
+                    word(other.pass.stage),
+                    word(d.pass.stage)
+                ),
+                &other,
+                &base,
+                0,
+                0.0,
+            );
+        }
+    }
+    // The feedback pair swapped.
+    {
+        let mut p = base.clone();
+        std::mem::swap(&mut p.fb_top, &mut p.fb_bottom);
+        push(
+            format!(
+                "the feedback resistors swapped ({} in the upper place, {} in the lower)",
+                ohms(base.fb_bottom),
+                ohms(base.fb_top)
+            ),
+            d,
+            &p,
+            0,
+            0.0,
+        );
+    }
+    // The output setting off: the reference, or either feedback resistor (the measurements
+    // cannot tell these apart, so they are one hypothesis with the value each would need).
+    if obs.vout.is_some() {
+        let f = |x: f64| {
+            let mut p = base.clone();
+            p.vref = base.vref * x;
+            scorer.score(predict(d, &p), 1).0
+        };
+        let x = fit_free(0.8, 1.2, f);
+        let mut p = base.clone();
+        p.vref = base.vref * x;
+        let v_nom = predict(d, &base)[0];
+        let v_fit = predict(d, &p)[0];
+        // The same output from the divider: V = V_ref (1 + Rt / Rb).
+        let gain = v_fit / base.vref - 1.0;
+        let (rt, rb) = if gain > 0.0 {
+            (base.fb_bottom * gain, base.fb_top / gain)
+        } else {
+            (f64::NAN, f64::NAN)
+        };
+        if (x - 1.0).abs() > 1e-3 {
+            push(
+                format!(
+                    "the output setting {:+.1} % off: a reference of {:.3} V (design {:.3} V), or \
+                     an upper feedback resistor of {} (design {}), or a lower one of {} (design {})",
+                    (v_fit / v_nom - 1.0) * 100.0,
+                    base.vref * x,
+                    base.vref,
+                    ohms(rt),
+                    ohms(base.fb_top),
+                    ohms(rb),
+                    ohms(base.fb_bottom)
+                ),
+                d,
+                &p,
+                1,
+                0.0,
+            );
+        }
+    }
+    // The foldback divider ratio off (either element).
+    if d.limit.clamp == Clamp::Foldback {
+        let f = |x: f64| {
+            let mut p = base.clone();
+            p.fold_bottom = base.fold_bottom * x;
+            scorer.score(predict(d, &p), 1).0
+        };
+        let x = fit_free(0.5, 2.0, f);
+        if (x - 1.0).abs() > 0.01 {
+            let mut p = base.clone();
+            p.fold_bottom = base.fold_bottom * x;
+            // The same ratio k = Rb / (Rt + Rb) from the upper element: Rt' = Rt / x.
+            push(
+                format!(
+                    "the foldback divider off: a lower resistor of {} (design {}) or an upper \
+                     one of {} (design {})",
+                    ohms(base.fold_bottom * x),
+                    ohms(base.fold_bottom),
+                    ohms(base.fold_top / x),
+                    ohms(base.fold_top)
+                ),
+                d,
+                &p,
+                1,
+                0.0,
+            );
+        }
+    }
+    // Junction heating beyond what the case reading explains: only with a temperature
+    // reading, and only where the fitted temperature lies within HEATING_SLACK_C of it (the
+    // sign and the size must fit).
+    if let Some(t_est) = obs.pass_junction_c {
+        let t0 = t_est.max(base.ambient_c);
+        let t_max = (t0 + HEATING_SLACK_C).min(d.pass.tj_max_c.max(t0 + 1.0));
+        let hot = |t: f64| {
+            let mut p = base.clone();
+            p.pass_junction_c = t;
+            p.clamp_junction_c = base.ambient_c + (t - t0) * 0.5;
+            p
+        };
+        let t = fit_free(t0, t_max, |t| scorer.score(predict(d, &hot(t)), 1).0);
+        if t > t0 + 5.0 && t < t_max - 0.5 {
+            push(
+                format!(
+                    "junction heating: the limit reads as with the pass junction near {t:.0} degC \
+                     ({:.0} degC above the estimate from the case reading)",
+                    t - t0
+                ),
+                d,
+                &hot(t),
+                1,
+                0.0,
+            );
+        }
+    }
+    out.sort_by(|a, b| a.score.total_cmp(&b.score));
+    // Parts whose predictions cannot be told apart by these measurements (one clamp diode
+    // more and a single pass transistor both raise the threshold by one junction) are one
+    // hypothesis naming each.
+    let mut merged: Vec<Hypothesis> = Vec::new();
+    for h in out {
+        let same = merged.iter_mut().find(|m| {
+            m.predicted
+                .iter()
+                .zip(h.predicted.iter())
+                .all(|(a, b)| (a - b).abs() <= 1e-6 * a.abs().max(b.abs()).max(1e-9))
+        });
+        match same {
+            Some(m) => {
+                m.part = format!("{}, or {}", m.part, h.part);
+                m.score = m.score.min(h.score);
+            }
+            None => merged.push(h),
+        }
+    }
+    let out = merged;
+    Diagnosis {
+        nominal_fits: nominal_z <= FIT_Z,
+        fits: out,
+    }
+}
+
+/// Lines for people: the ranked fitting hypotheses, or that none fits.
+pub fn diagnosis_lines(diag: &Diagnosis) -> Vec<String> {
+    if diag.nominal_fits {
+        return Vec::new();
+    }
+    if diag.fits.is_empty() {
+        return vec!["no single-part explanation fits the measurements".to_string()];
+    }
+    diag.fits
+        .iter()
+        .map(|h| {
+            format!(
+                "{} (score {:.1}, worst residual {:.1} sigma)",
+                h.part, h.score, h.worst_z
+            )
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rng::Rng;
+
+    fn sample(name: &str) -> (Design, DesignExpectation) {
+        let text = match name {
+            "lab" => include_str!("../../samples/teaching-lab-0-20v.toml"),
+            _ => include_str!("../../samples/fixed-12v-3a-foldback.toml"),
+        };
+        let d = Design::parse(text, name).unwrap();
+        let e = crate::design::expect_with(&d, 2000, 7);
+        let x = DesignExpectation::from_design(&d, &e);
+        (d, x)
+    }
+
+    /// Measurement uncertainties of a bench reading (project choice, about a 4.5-digit
+    /// meter and the knee's fit): 2 mV on the output, 0.5 % on the currents.
+    fn observe(pred: [f64; 3], rng: &mut Rng) -> Observations {
+        let mut o = |v: f64, u: f64| Observed {
+            value: v + u * rng.normal(),
+            u,
+        };
+        Observations {
+            vout: Some(o(pred[0], 2e-3)),
+            limit: Some(o(pred[1], 0.005 * pred[1])),
+            short: Some(o(pred[2], 0.005 * pred[2])),
+            pass_junction_c: None,
+            limit_at_least: None,
+        }
+    }
+
+    type Fault = (&'static str, &'static str, fn(&mut Design, &mut Params));
+
+    #[test]
+    fn the_wrong_part_ranks_first_and_a_good_unit_names_nothing() {
+        // A matrix of simulated units (the design model with every element drawn within its
+        // tolerance from a seed, one part changed) on both samples: the hypothesis naming
+        // the changed part must rank first in at least 9 of 10 cases, and a unit built
+        // right must get no part named.
+        let faults: Vec<(&str, Fault)> = vec![
+            (
+                "lab",
+                ("0.68 ohm sense", "0.68 ohm sense", |_, p| p.r_sense = 0.68),
+            ),
+            (
+                "lab",
+                ("0.33 ohm sense", "0.33 ohm sense", |_, p| p.r_sense = 0.33),
+            ),
+            (
+                "lab",
+                ("one diode more", "one clamp diode more", |_, p| {
+                    p.diodes += 1
+                }),
+            ),
+            (
+                "lab",
+                ("one diode fewer", "one clamp diode fewer", |_, p| {
+                    p.diodes -= 1
+                }),
+            ),
+            (
+                "lab",
+                ("reference 4 % high", "output setting", |_, p| {
+                    p.vref *= 1.04
+                }),
+            ),
+            (
+                "lab",
+                ("feedback swapped", "swapped", |_, p| {
+                    std::mem::swap(&mut p.fb_top, &mut p.fb_bottom)
+                }),
+            ),
+            (
+                "lab",
+                ("single pass stage", "single pass transistor", |d, _| {
+                    d.pass.stage = Stage::Single
+                }),
+            ),
+            (
+                "lab",
+                ("upper feedback 33k", "output setting", |_, p| {
+                    p.fb_top = 33000.0
+                }),
+            ),
+            (
+                "fx",
+                ("0.39 ohm sense", "0.39 ohm sense", |_, p| p.r_sense = 0.39),
+            ),
+            (
+                "fx",
+                ("0.27 ohm sense", "0.27 ohm sense", |_, p| p.r_sense = 0.27),
+            ),
+            (
+                "fx",
+                ("reference 5 % low", "output setting", |_, p| p.vref *= 0.95),
+            ),
+            (
+                "fx",
+                ("feedback swapped", "swapped", |_, p| {
+                    std::mem::swap(&mut p.fb_top, &mut p.fb_bottom)
+                }),
+            ),
+            (
+                "fx",
+                ("foldback lower 15k", "foldback divider", |_, p| {
+                    p.fold_bottom = 15000.0
+                }),
+            ),
+            (
+                "fx",
+                ("foldback upper 560", "foldback divider", |_, p| {
+                    p.fold_top = 560.0
+                }),
+            ),
+        ];
+        let mut cases = 0;
+        let mut right = 0;
+        let mut misses = Vec::new();
+        for (name, (what, expect, apply)) in &faults {
+            let (d, x) = sample(name);
+            for seed in 1..=5u64 {
+                let mut rng = Rng::new(seed * 7919);
+                let mut built = d.clone();
+                let mut p = Params::draw(&d, &mut rng);
+                p.set_ambient(d.environment.ambient_c);
+                apply(&mut built, &mut p);
+                let obs = observe(predict(&built, &p), &mut rng);
+                let diag = diagnose(&d, &x, &obs);
+                cases += 1;
+                match diag.fits.first() {
+                    Some(h) if h.part.contains(expect) => right += 1,
+                    other => misses.push(format!("{name} {what} seed {seed}: {other:?}")),
+                }
+            }
+        }
+        eprintln!("diagnosis matrix: {right} of {cases} right");
+        assert!(
+            right * 10 >= cases * 9,
+            "{right} of {cases} right; misses: {misses:#?}"
+        );
+        // Built right: nothing named.
+        for name in ["lab", "fx"] {
+            let (d, x) = sample(name);
+            for seed in 1..=10u64 {
+                let mut rng = Rng::new(seed * 104_729);
+                let mut p = Params::draw(&d, &mut rng);
+                p.set_ambient(d.environment.ambient_c);
+                let obs = observe(predict(&d, &p), &mut rng);
+                let diag = diagnose(&d, &x, &obs);
+                assert!(
+                    diagnosis_lines(&diag).is_empty(),
+                    "{name} seed {seed}: {diag:?}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn nothing_that_fits_is_said_so() {
+        // The output at half the design and the limit at three times: no single part does
+        // both.
+        let (d, x) = sample("lab");
+        let pred = predict(&d, &Params::nominal(&d));
+        let obs = Observations {
+            vout: Some(Observed {
+                value: pred[0] * 0.5,
+                u: 1e-3,
+            }),
+            limit: Some(Observed {
+                value: pred[1] * 3.0,
+                u: 0.01,
+            }),
+            short: Some(Observed {
+                value: pred[2] * 0.2,
+                u: 0.01,
+            }),
+            pass_junction_c: None,
+            limit_at_least: None,
+        };
+        let diag = diagnose(&d, &x, &obs);
+        assert_eq!(
+            diagnosis_lines(&diag),
+            vec!["no single-part explanation fits the measurements".to_string()]
+        );
+    }
+}
