@@ -181,6 +181,10 @@ pub struct Pass {
     /// Heatsink; absent when not chosen yet (the model then reports the largest allowed).
     #[serde(default)]
     pub theta_sa: Option<f64>,
+    /// Lowest current gain of the whole pass stage (h_FE; a Darlington's is the product of
+    /// both), at the limit current: the drive the amplifier must give is I / gain. Optional.
+    #[serde(default)]
+    pub current_gain: Option<f64>,
 }
 
 fn default_junction() -> f64 {
@@ -248,6 +252,30 @@ pub struct Limit {
     pub divider_top: Option<Resistor>,
     #[serde(default)]
     pub divider_bottom: Option<Resistor>,
+    /// Where the clamp's junctions sit thermally: in free air at ambient (default) or on the
+    /// pass device's heatsink (then at the sink's temperature).
+    #[serde(default)]
+    pub clamp_mount: ClampMount,
+}
+
+/// Thermal coupling of the clamp's junctions (diodes, limiter transistor).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum ClampMount {
+    /// In free air at the ambient temperature (their own dissipation is small).
+    #[default]
+    Ambient,
+    /// On the pass device's heatsink: at T_a + P theta_sa.
+    Heatsink,
+}
+
+impl ClampMount {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ClampMount::Ambient => "ambient",
+            ClampMount::Heatsink => "heatsink",
+        }
+    }
 }
 
 /// The load the design must serve.
@@ -268,15 +296,36 @@ pub struct Load {
 pub struct Aux {
     pub volts: f64,
     pub current_a: f64,
-    /// Share (0-0.9) of the aux transistor's drop taken by a series collector resistor.
+    /// Share (0-0.9) of the aux transistor's nominal drop taken by a series collector resistor.
     #[serde(default)]
     pub collector_share: f64,
+    /// The collector resistor fitted, ohms (instead of `collector_share`; `regulus size`
+    /// writes a preferred value here).
+    #[serde(default)]
+    pub collector_ohms: Option<f64>,
     pub transistor_rating_w: f64,
     #[serde(default)]
     pub collector_resistor_rating_w: Option<f64>,
     /// Volts the error amplifier's output stays below its supply (output swing limit).
     #[serde(default = "default_swing_loss")]
     pub amplifier_swing_loss_v: f64,
+    /// Collector-emitter voltage below which the aux transistor saturates and the rail sags
+    /// (about 0.2 V for a small-signal transistor, from memory).
+    #[serde(default = "default_aux_vce_sat")]
+    pub vce_sat_v: f64,
+}
+
+fn default_aux_vce_sat() -> f64 {
+    0.2
+}
+
+/// The error amplifier's output stage.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Amplifier {
+    /// The most current the amplifier's output sources (into the pass stage's base, and into
+    /// the clamp once it conducts), amperes.
+    pub output_current_a: f64,
 }
 
 fn default_swing_loss() -> f64 {
@@ -386,6 +435,8 @@ pub struct Design {
     pub load: Load,
     #[serde(default)]
     pub aux: Option<Aux>,
+    #[serde(default)]
+    pub amplifier: Option<Amplifier>,
     #[serde(default)]
     pub environment: Environment,
     #[serde(default)]

@@ -16,6 +16,6 @@ pub mod sizing;
 pub mod tolerance;
 
 pub use expect::{expect, expect_with, Check, Expectation, PartStress, Verdict};
-pub use file::{Clamp, Design, DesignError, InputKind, Stage};
+pub use file::{Clamp, ClampMount, Design, DesignError, InputKind, Stage};
 pub use model::{evaluate, Params, Point};
 pub use tolerance::{Band, Interval, McStats};

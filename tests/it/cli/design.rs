@@ -147,6 +147,16 @@ fn bad_files_name_file_line_and_column_and_exit_2() {
             "missing field",
         ),
         ("syntax.toml", "[design\nname = 1".to_string(), "invalid"),
+        (
+            "minus_inf_ambient.toml",
+            teaching().replace("ambient_min_c = 15", "ambient_min_c = -inf"),
+            "write, for example",
+        ),
+        (
+            "huge_reference.toml",
+            teaching().replace("volts = 5.1", "volts = -1e308"),
+            "reference voltage must be a number from",
+        ),
     ];
     for (name, text, want) in cases {
         let (code, err) = broken(dir.path(), name, &text);

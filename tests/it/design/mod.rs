@@ -1,3 +1,4 @@
 //! The design model against published formulas and worked examples.
 
 mod model;
+mod validation;
