@@ -5,59 +5,13 @@
 //! Pure: a [`Design`] in, an [`Expectation`] out.
 
 use super::file::{Clamp, Design, Resistor};
-use super::model::{
-    evaluate, is_adjustable, limit_current_at, pass_dissipation, sense_voltage, vi_curve, Params,
-    PassStress,
-};
+use super::heating::Condition;
+pub use super::judge::{Check, PartStress, Verdict};
+use super::model::{evaluate, is_adjustable, sense_voltage, vi_curve, Params, PassStress};
+use super::stress::{aux_and_drive, DriveExpect, DriveInputs, HeatCollect, SelfHeated};
 use super::tolerance::{for_each_corner, for_each_sample, stats, Band, Interval};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
-
-/// Verdict of one check.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Verdict {
-    Ok,
-    Marginal,
-    Fail,
-}
-
-impl Verdict {
-    pub fn as_str(self) -> &'static str {
-        match self {
-            Verdict::Ok => "ok",
-            Verdict::Marginal => "marginal",
-            Verdict::Fail => "fail",
-        }
-    }
-}
-
-/// One design check: a value against a limit, with the margin (positive = inside).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct Check {
-    pub name: String,
-    pub verdict: Verdict,
-    pub value: f64,
-    pub limit: f64,
-    pub margin: f64,
-    pub unit: String,
-    pub detail: String,
-}
-
-/// Dissipation of one part.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct PartStress {
-    /// Worst-case dissipation in watts.
-    pub watts: f64,
-    /// The part's rating, when the design gives one.
-    pub rating_watts: Option<f64>,
-    /// Rating times the derating fraction: what the part may run at.
-    pub allowed_watts: Option<f64>,
-    /// Smallest standard resistor power rating that keeps within the derating rule.
-    pub suggested_rating_watts: Option<f64>,
-    /// The operating condition that gives this dissipation.
-    pub condition: String,
-}
 
 /// Output voltage range and the evaluated setting.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -93,9 +47,11 @@ pub struct ThermalExpect {
     pub theta_total: Option<f64>,
     /// Largest sink-to-ambient thermal resistance that keeps T_j at T_j max minus the margin.
     pub max_theta_sa: f64,
-    /// Limit current with the pass device at its worst-case junction temperature (the clamp's
-    /// drift with self-heating; a diode string's limit rises as the pass junctions heat).
+    /// Settled knee current of the nominal unit, clamp and thermal relations solved together
+    /// (a diode string's limit rises as the pass junctions heat).
     pub hot_limit_current: Option<f64>,
+    /// The self-heated operating points (short, knee, hardest point) and their assumptions.
+    pub self_heated: SelfHeated,
 }
 
 /// Everything the design model expects of a unit built to this design.
@@ -116,6 +72,8 @@ pub struct Expectation {
     /// Worst-case pass-device junction temperature (null without a heatsink value).
     pub junction_temp_c: Option<f64>,
     pub thermal: ThermalExpect,
+    /// The auxiliary rail at the lowest input and the pass stage's drive.
+    pub drive: DriveExpect,
     pub checks: Vec<Check>,
     /// Nominal expected V-I curve, (amperes, volts) pairs.
     pub curve: Vec<(f64, f64)>,
@@ -179,7 +137,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
     let nominal_params = Params::nominal(d);
     let nom = evaluate(d, &nominal_params);
 
-    // Worst case over all corners.
+    // Worst case over all corners, with the self-heated points solved per corner.
     let mut wc_vmin = Interval::point(nom.vout_min);
     let mut wc_vmax = Interval::point(nom.vout_max);
     let mut wc_vset = Interval::point(nom.vout_set);
@@ -189,12 +147,11 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
     let mut vin_max = nom.vin_no_load;
     let mut vin_min = nom.vin_trough;
     let mut ripple = nom.ripple_v;
-    let mut pass_w = pass_dissipation(d, &nominal_params, &nom);
-    let mut sense_w =
-        nom.limit_current.max(nom.short_circuit_current).powi(2) * nominal_params.r_sense;
     let mut headroom = f64::INFINITY;
     let mut corner_low: Option<(f64, Params)> = None;
     let mut corner_high: Option<(f64, Params)> = None;
+    let mut heat = HeatCollect::new(d);
+    heat.include(d, &nominal_params);
     let max_load = d.load.max_current_a;
     for_each_corner(d, |p| {
         let pt = evaluate(d, p);
@@ -207,11 +164,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         vin_max = vin_max.max(pt.vin_no_load);
         vin_min = vin_min.min(pt.vin_trough);
         ripple = ripple.max(pt.ripple_v);
-        let pw = pass_dissipation(d, p, &pt);
-        if pw.0 > pass_w.0 {
-            pass_w = pw;
-        }
-        sense_w = sense_w.max(pt.limit_current.max(pt.short_circuit_current).powi(2) * p.r_sense);
+        heat.include(d, p);
         headroom =
             headroom.min(pt.vin_trough - pt.vout_max - max_load.min(pt.limit_current) * p.r_sense);
         if corner_low
@@ -227,6 +180,10 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
             corner_high = Some((pt.limit_current, p.clone()));
         }
     });
+    let (pass_pt, sense_pt) = heat.pass_and_sense();
+    let self_heated = heat.finish(d, &nominal_params);
+    let pass_pt = pass_pt.unwrap_or(self_heated.worst);
+    let sense_pt = sense_pt.unwrap_or(self_heated.short_nominal);
 
     // Monte Carlo.
     let mut c = Collect::default();
@@ -253,7 +210,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
     let short_circuit_current = band(nom.short_circuit_current, wc_sc, &mut c.sc);
     let sense_voltage_band = band(nom.sense_v, wc_sense, &mut c.sense);
 
-    // Dissipation.
+    // Dissipation, at the settled (self-heated) points.
     let rules = &d.rules;
     let mut dissipation = BTreeMap::new();
     let resistor_stress = |r: &Resistor, watts: f64, condition: String| PartStress {
@@ -267,25 +224,30 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         "sense_resistor".to_string(),
         resistor_stress(
             &d.limit.sense,
-            sense_w,
-            "at the highest worst-case limit or short-circuit current".to_string(),
+            sense_pt.sense_watts,
+            format!(
+                "{:.3} A settled ({}) at {:.0} degC ambient, clamp and heating solved together",
+                sense_pt.current_a,
+                condition_words(sense_pt.condition),
+                sense_pt.ambient_c
+            ),
         ),
     );
     dissipation.insert(
         "pass_device".to_string(),
         PartStress {
-            watts: pass_w.0,
+            watts: pass_pt.pass_watts,
             rating_watts: Some(d.pass.power_rating_w),
             allowed_watts: Some(d.pass.power_rating_w * rules.semiconductor_derating),
             suggested_rating_watts: None,
-            condition: match pass_w.1 {
+            condition: match pass_pt.stress {
                 PassStress::Limit => format!(
-                    "on the limit line at {:.3} A with the input at its highest ({:.2} V)",
-                    pass_w.2, vin_max
+                    "on the limit line at {:.3} A settled, input {:.2} V, {:.0} degC ambient",
+                    pass_pt.current_a, pass_pt.input_v, pass_pt.ambient_c
                 ),
                 PassStress::FullLoadLowOutput => format!(
-                    "full load {:.3} A at the lowest output with the input at its highest ({:.2} V)",
-                    pass_w.2, vin_max
+                    "full load {:.3} A at the lowest output, input {:.2} V, {:.0} degC ambient",
+                    pass_pt.current_a, pass_pt.input_v, pass_pt.ambient_c
                 ),
             },
         },
@@ -312,13 +274,23 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
             ),
         );
     }
-    let mut drive_headroom = None;
-    if let Some(a) = &d.aux {
-        let drop_nom = (nom.vin_no_load - a.volts).max(0.0);
-        let drop_max = (vin_max - a.volts).max(0.0);
-        let r_c = a.collector_share * drop_nom / a.current_a;
+    let drive = aux_and_drive(
+        d,
+        &DriveInputs {
+            vin_nominal: nom.vin_no_load,
+            vin_min,
+            vout_max: wc_vmax.max,
+            rated_current: wc_lim.max.min(max_load.max(0.0)),
+            limit_current_min: wc_lim.min,
+            limit_current_max: self_heated
+                .short_current
+                .max
+                .max(self_heated.knee_current.max),
+        },
+    );
+    if let (Some(a), Some(r_c)) = (&d.aux, drive.collector_ohms) {
         let w_r = a.current_a * a.current_a * r_c;
-        let w_t = ((drop_max - a.current_a * r_c) * a.current_a).max(0.0);
+        let w_t = ((vin_max - a.volts - a.current_a * r_c) * a.current_a).max(0.0);
         dissipation.insert(
             "aux_transistor".to_string(),
             PartStress {
@@ -332,7 +304,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
                 ),
             },
         );
-        if a.collector_share > 0.0 {
+        if r_c > 0.0 {
             dissipation.insert(
                 "aux_collector_resistor".to_string(),
                 PartStress {
@@ -342,140 +314,42 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
                         .collector_resistor_rating_w
                         .map(|w| w * rules.resistor_derating),
                     suggested_rating_watts: suggest_rating(w_r, rules.resistor_derating),
-                    condition: format!(
-                        "{:.0} ohm taking {:.0} % of the nominal drop",
-                        r_c,
-                        a.collector_share * 100.0
-                    ),
+                    condition: match a.collector_ohms {
+                        Some(_) => format!("{r_c:.0} ohm fitted, full aux current"),
+                        None => format!(
+                            "{:.0} ohm taking {:.0} % of the nominal drop",
+                            r_c,
+                            a.collector_share * 100.0
+                        ),
+                    },
                 },
             );
         }
-        // The amplifier must drive the pass stage's base above the highest output plus the
-        // sense drop plus the pass junctions.
-        let need = wc_vmax.max
-            + wc_lim.max.min(max_load.max(0.0)) * d.limit.sense.ohms
-            + d.pass.stage.junctions() as f64 * (d.pass.vbe_v + d.pass.vbe_spread_v);
-        drive_headroom = Some(a.volts - a.amplifier_swing_loss_v - need);
     }
 
-    // Thermal.
+    // Thermal, at the settled points.
     let p = &d.pass;
-    let ta = d.environment.ambient_max_c;
-    let theta_fixed = p.theta_jc + p.theta_cs;
-    let tj_target = p.tj_max_c - rules.tj_margin_c;
-    let max_theta_sa = if pass_w.0 > 0.0 {
-        (tj_target - ta) / pass_w.0 - theta_fixed
-    } else {
-        f64::INFINITY
+    let theta_total = p.theta_sa.map(|s| p.theta_jc + p.theta_cs + s);
+    let junction_temp_c = theta_total.map(|_| self_heated.worst.pass_junction_c);
+    let thermal = ThermalExpect {
+        theta_total,
+        max_theta_sa: self_heated.max_theta_sa,
+        hot_limit_current: Some(self_heated.knee_nominal.current_a),
+        self_heated,
     };
-    let theta_total = p.theta_sa.map(|s| theta_fixed + s);
-    let junction_temp_c = theta_total.map(|th| ta + pass_w.0 * th);
-    let hot_limit_current = junction_temp_c.map(|tj| {
-        let mut hp = nominal_params.clone();
-        hp.pass_junction_c = tj;
-        limit_current_at(d, &hp, nom.vout_set)
-    });
 
-    // Checks.
-    let mut checks = Vec::new();
-    {
-        let margin = wc_lim.min - max_load;
-        let verdict = if wc_lim.min >= max_load {
-            Verdict::Ok
-        } else if nom.limit_current >= max_load {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: "limit_above_rated_load".into(),
-            verdict,
-            value: wc_lim.min,
-            limit: max_load,
-            margin,
-            unit: "A".into(),
-            detail: "the lowest worst-case limit must stay above the rated load current".into(),
-        });
-    }
-    for (name, s) in &dissipation {
-        let (Some(rating), Some(allowed)) = (s.rating_watts, s.allowed_watts) else {
-            continue;
-        };
-        let verdict = if s.watts <= allowed {
-            Verdict::Ok
-        } else if s.watts <= rating {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: format!("dissipation_{name}"),
-            verdict,
-            value: s.watts,
-            limit: allowed,
-            margin: allowed - s.watts,
-            unit: "W".into(),
-            detail: format!("{name} within its derated rating ({} W rated)", rating),
-        });
-    }
-    {
-        let need = p.vce_min_v;
-        let verdict = if headroom >= need + rules.headroom_margin_v {
-            Verdict::Ok
-        } else if headroom >= need {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: "headroom".into(),
-            verdict,
-            value: headroom,
-            limit: need,
-            margin: headroom - need,
-            unit: "V".into(),
-            detail: "lowest input minus highest output minus sense drop must leave the pass device's minimum V_CE".into(),
-        });
-    }
-    if let Some(h) = drive_headroom {
-        let verdict = if h >= rules.headroom_margin_v {
-            Verdict::Ok
-        } else if h >= 0.0 {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: "drive_headroom".into(),
-            verdict,
-            value: h,
-            limit: 0.0,
-            margin: h,
-            unit: "V".into(),
-            detail: "aux rail minus amplifier swing loss must reach the highest output plus sense drop plus pass junctions".into(),
-        });
-    }
-    if let Some(tj) = junction_temp_c {
-        let verdict = if tj <= tj_target {
-            Verdict::Ok
-        } else if tj <= p.tj_max_c {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: "junction_temperature".into(),
-            verdict,
-            value: tj,
-            limit: tj_target,
-            margin: tj_target - tj,
-            unit: "degC".into(),
-            detail: format!(
-                "pass device T_j at the highest ambient ({ta} degC) within T_j max {} degC less a {} degC margin",
-                p.tj_max_c, rules.tj_margin_c
-            ),
-        });
-    }
+    let checks = super::judge::checks(
+        d,
+        &super::judge::Judged {
+            limit_min: wc_lim.min,
+            limit_nominal: nom.limit_current,
+            dissipation: &dissipation,
+            headroom,
+            drive: &drive,
+            junction_temp_c,
+            self_heated: &thermal.self_heated,
+        },
+    );
 
     let curve = vi_curve(d, &nominal_params);
     let curve_low = corner_low
@@ -499,7 +373,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         short_circuit_current,
         foldback_ratio,
         input: InputExpect {
-            nominal_v: evaluate(d, &nominal_params).vin_no_load,
+            nominal_v: nom.vin_no_load,
             max_v: vin_max,
             min_v: vin_min,
             ripple_v: ripple,
@@ -507,17 +381,23 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         dissipation,
         headroom_volts: headroom,
         junction_temp_c,
-        thermal: ThermalExpect {
-            theta_total,
-            max_theta_sa,
-            hot_limit_current,
-        },
+        thermal,
+        drive,
         checks,
         curve,
         curve_low,
         curve_high,
         monte_carlo_samples: samples,
         seed,
+    }
+}
+
+/// A condition in words.
+pub fn condition_words(c: Condition) -> &'static str {
+    match c {
+        Condition::Short => "sustained short",
+        Condition::Knee => "at the knee",
+        Condition::Worst => "the pass device's hardest point",
     }
 }
 

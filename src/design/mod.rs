@@ -9,10 +9,13 @@ mod check;
 pub mod eseries;
 pub mod expect;
 pub mod file;
+pub mod heating;
+mod judge;
 pub mod model;
 pub mod render;
 pub mod rules;
 pub mod sizing;
+pub mod stress;
 pub mod tolerance;
 
 pub use expect::{expect, expect_with, Check, Expectation, PartStress, Verdict};

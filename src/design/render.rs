@@ -3,6 +3,7 @@
 
 use super::expect::{Expectation, Verdict};
 use super::file::{Clamp, Design};
+use super::heating::Solved;
 use super::tolerance::Band;
 use crate::quantity::{eng, sig3};
 use std::io::{self, Write};
@@ -77,16 +78,6 @@ pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> 
             sig3(e.foldback_ratio)
         )?;
     }
-    if let Some(hot) = e.thermal.hot_limit_current {
-        if (hot - e.limit_current.nominal).abs() > 1e-6 {
-            writeln!(
-                w,
-                "  {:<24}{:>10}   (pass device at its worst-case junction temperature)",
-                "limit knee, hot",
-                eng(hot, "A")
-            )?;
-        }
-    }
     writeln!(w)?;
     writeln!(
         w,
@@ -127,7 +118,7 @@ pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> 
             w,
             "thermal: pass device T_j {} at {} ambient through {} total; largest heatsink for T_j <= {}: {}",
             eng(tj, "degC"),
-            eng(d.environment.ambient_max_c, "degC"),
+            eng(e.thermal.self_heated.worst.ambient_c, "degC"),
             eng(th, "degC/W"),
             eng(d.pass.tj_max_c - d.rules.tj_margin_c, "degC"),
             sink,
@@ -139,6 +130,7 @@ pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> 
             sink,
         )?,
     }
+    self_heated(w, e)?;
     writeln!(w)?;
     writeln!(w, "checks")?;
     for c in &e.checks {
@@ -180,4 +172,52 @@ fn signed_eng(v: f64, unit: &str) -> String {
     } else {
         s
     }
+}
+
+fn solved_row(w: &mut impl Write, label: &str, s: &Solved) -> io::Result<()> {
+    let state = if !s.settled {
+        "  (does not settle: runaway)"
+    } else if !s.below_tj_max {
+        "  (above T_j max)"
+    } else {
+        ""
+    };
+    writeln!(
+        w,
+        "  {:<34}{:>9} {:>9}   T_j {:>9}   at {} ambient, input {}{}",
+        label,
+        eng(s.current_a, "A"),
+        eng(s.pass_watts, "W"),
+        eng(s.pass_junction_c, "degC"),
+        eng(s.ambient_c, "degC"),
+        eng(s.input_v, "V"),
+        state
+    )
+}
+
+/// The self-heated operating points and the assumptions behind them.
+fn self_heated(w: &mut impl Write, e: &Expectation) -> io::Result<()> {
+    let sh = &e.thermal.self_heated;
+    writeln!(w)?;
+    writeln!(
+        w,
+        "self-heated (clamp and thermal relations solved together, per corner):"
+    )?;
+    solved_row(w, "sustained short, nominal unit", &sh.short_nominal)?;
+    solved_row(w, "sustained short, hottest corner", &sh.short_worst)?;
+    solved_row(w, "limit knee, nominal unit", &sh.knee_nominal)?;
+    solved_row(w, "limit knee, hottest corner", &sh.knee_worst)?;
+    writeln!(
+        w,
+        "  settled limit over the corners: knee {} .. {}, short {} .. {}",
+        eng(sh.knee_current.min, "A"),
+        eng(sh.knee_current.max, "A"),
+        eng(sh.short_current.min, "A"),
+        eng(sh.short_current.max, "A"),
+    )?;
+    writeln!(w, "  assuming:")?;
+    for a in &sh.assumptions {
+        writeln!(w, "    - {a}")?;
+    }
+    Ok(())
 }

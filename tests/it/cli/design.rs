@@ -26,14 +26,21 @@ fn json_has_the_documented_keys_in_si_units() {
             .arg(sample(name))
             .output()
             .unwrap();
+        // The teaching-lab sample fails its checks (self-heated short above T_j max, aux rail
+        // dropout at the lowest input): exit 1; the foldback sample passes: exit 0.
+        let want = if name.starts_with("teaching") { 1 } else { 0 };
         assert_eq!(
             out.status.code(),
-            Some(0),
+            Some(want),
             "{}",
             String::from_utf8_lossy(&out.stderr)
         );
         let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
         for key in [
+            "thermal.self_heated.short_nominal.pass_junction_c",
+            "thermal.self_heated.short_worst.current_a",
+            "thermal.self_heated.knee_current.max",
+            "thermal.max_theta_sa",
             "vout.min",
             "vout.max",
             "limit_current.nominal",

@@ -1,4 +1,5 @@
 //! The design model against published formulas and worked examples.
 
+mod heating;
 mod model;
 mod validation;
