@@ -9,7 +9,10 @@ use super::heating::Condition;
 pub use super::judge::{Check, PartStress, Verdict};
 use super::model::{evaluate, is_adjustable, sense_voltage, vi_curve, Params, PassStress};
 use super::stress::{aux_and_drive, DriveExpect, DriveInputs, HeatCollect, SelfHeated};
-use super::tolerance::{for_each_corner, for_each_sample, stats, Band, Interval};
+use super::tolerance::{
+    for_each_corner, for_each_corner_in, for_each_sample, for_each_sample_in, stats, Band,
+    Envelope, Interval,
+};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 
@@ -54,6 +57,56 @@ pub struct ThermalExpect {
     pub self_heated: SelfHeated,
 }
 
+/// Bands of the quantities a bench measures, over part tolerances only, at the design's
+/// nominal ambient and input: what one unit as built may show on a bench at room temperature.
+/// The bench's judgement uses these; [`Expectation`]'s own bands are the operating envelope
+/// (ambient range and line tolerance too).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AsBuiltBands {
+    pub ambient_c: f64,
+    pub vout: Band,
+    pub sense_voltage: Band,
+    pub limit_current: Band,
+    pub short_circuit_current: Band,
+}
+
+/// As-built bands: worst case over the part corners and Monte Carlo over part draws.
+pub fn as_built_bands(d: &Design, samples: usize, seed: u64) -> AsBuiltBands {
+    let nom = evaluate(d, &Params::nominal(d));
+    let mut wc = [
+        Interval::point(nom.vout_set),
+        Interval::point(nom.sense_v),
+        Interval::point(nom.limit_current),
+        Interval::point(nom.short_circuit_current),
+    ];
+    for_each_corner_in(d, Envelope::AsBuilt, |p| {
+        let pt = evaluate(d, p);
+        for (w, v) in wc.iter_mut().zip([
+            pt.vout_set,
+            pt.sense_v,
+            pt.limit_current,
+            pt.short_circuit_current,
+        ]) {
+            w.include(v);
+        }
+    });
+    let mut c = Collect::default();
+    for_each_sample_in(d, Envelope::AsBuilt, samples, seed, |p| {
+        let pt = evaluate(d, p);
+        c.vout_set.push(pt.vout_set);
+        c.sense.push(pt.sense_v);
+        c.limit.push(pt.limit_current);
+        c.sc.push(pt.short_circuit_current);
+    });
+    AsBuiltBands {
+        ambient_c: d.environment.ambient_c,
+        vout: band(nom.vout_set, wc[0], &mut c.vout_set),
+        sense_voltage: band(nom.sense_v, wc[1], &mut c.sense),
+        limit_current: band(nom.limit_current, wc[2], &mut c.limit),
+        short_circuit_current: band(nom.short_circuit_current, wc[3], &mut c.sc),
+    }
+}
+
 /// Everything the design model expects of a unit built to this design.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Expectation {
@@ -72,6 +125,9 @@ pub struct Expectation {
     /// Worst-case pass-device junction temperature (null without a heatsink value).
     pub junction_temp_c: Option<f64>,
     pub thermal: ThermalExpect,
+    /// Bands over part tolerances only, at nominal ambient and input (judge bench units by
+    /// these); the bands above are the operating envelope.
+    pub as_built: AsBuiltBands,
     /// The auxiliary rail at the lowest input and the pass stage's drive.
     pub drive: DriveExpect,
     pub checks: Vec<Check>,
@@ -382,6 +438,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         headroom_volts: headroom,
         junction_temp_c,
         thermal,
+        as_built: as_built_bands(d, samples, seed.wrapping_add(1)),
         drive,
         checks,
         curve,

@@ -18,7 +18,9 @@ pub mod sizing;
 pub mod stress;
 pub mod tolerance;
 
-pub use expect::{expect, expect_with, Check, Expectation, PartStress, Verdict};
+pub use expect::{
+    as_built_bands, expect, expect_with, AsBuiltBands, Check, Expectation, PartStress, Verdict,
+};
 pub use file::{Clamp, ClampMount, Design, DesignError, InputKind, Stage};
 pub use model::{evaluate, Params, Point};
-pub use tolerance::{Band, Interval, McStats};
+pub use tolerance::{Band, Envelope, Interval, McStats};

@@ -1,5 +1,6 @@
 //! The design model against published formulas and worked examples.
 
+mod bands;
 mod heating;
 mod model;
 mod validation;
