@@ -282,7 +282,7 @@ pub fn set_output(d: &mut Design, vout: f64) -> Result<OutputChange, SizeError> 
     }
     let (v1, _) = output_range(d, d.reference.volts, 0.0, d.feedback.bottom.ohms);
     let top = d.feedback.bottom.ohms * (vout / v1 - 1.0);
-    if !(top > 0.0) {
+    if !top.is_finite() || top <= 0.0 {
         return Err(SizeError(format!(
             "{vout} V is at or below the {v1} V the reference gives at unity gain: a non-inverting amplifier cannot reach it"
         )));
