@@ -5,10 +5,13 @@
 //! Pure: a [`Design`] in, an [`Expectation`] out.
 
 use super::file::{Clamp, Design, Resistor};
-use super::heating::Condition;
+use super::heating::{Condition, Solved};
 pub use super::judge::{Check, PartStress, Verdict};
 use super::model::{evaluate, is_adjustable, sense_voltage, vi_curve, Params, PassStress};
-use super::stress::{aux_and_drive, DriveExpect, DriveInputs, HeatCollect, SelfHeated};
+use super::soa::{self, Candidate, SoaPoint};
+use super::stress::{
+    aux_and_drive, feedback_stress, DriveExpect, DriveInputs, HeatCollect, SelfHeated,
+};
 use super::tolerance::{
     for_each_corner, for_each_corner_in, for_each_sample, for_each_sample_in, stats, Band,
     Envelope, Interval,
@@ -125,6 +128,9 @@ pub struct Expectation {
     /// Worst-case pass-device junction temperature (null without a heatsink value).
     pub junction_temp_c: Option<f64>,
     pub thermal: ThermalExpect,
+    /// The pass device's operating points against its derated DC safe operating area (null
+    /// without `[pass.soa]` in the design).
+    pub soa: Option<Vec<SoaPoint>>,
     /// Bands over part tolerances only, at nominal ambient and input (judge bench units by
     /// these); the bands above are the operating envelope.
     pub as_built: AsBuiltBands,
@@ -289,46 +295,67 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
             ),
         ),
     );
+    // The power rating holds with the case at 25 degC; it derates linearly to zero at T_j max.
+    let pass_case_c = soa::case_temperature(d, pass_pt.ambient_c, pass_pt.pass_watts);
+    let pass_rating = d.pass.power_rating_w * soa::case_factor(d, pass_case_c);
     dissipation.insert(
         "pass_device".to_string(),
         PartStress {
             watts: pass_pt.pass_watts,
-            rating_watts: Some(d.pass.power_rating_w),
-            allowed_watts: Some(d.pass.power_rating_w * rules.semiconductor_derating),
+            rating_watts: Some(pass_rating),
+            allowed_watts: Some(pass_rating * rules.semiconductor_derating),
             suggested_rating_watts: None,
-            condition: match pass_pt.stress {
-                PassStress::Limit => format!(
-                    "on the limit line at {:.3} A settled, input {:.2} V, {:.0} degC ambient",
-                    pass_pt.current_a, pass_pt.input_v, pass_pt.ambient_c
-                ),
-                PassStress::FullLoadLowOutput => format!(
-                    "full load {:.3} A at the lowest output, input {:.2} V, {:.0} degC ambient",
-                    pass_pt.current_a, pass_pt.input_v, pass_pt.ambient_c
-                ),
-            },
+            condition: format!(
+                "{}; rating {:.0} W derated to {:.1} W at its {:.0} degC case",
+                match pass_pt.stress {
+                    PassStress::Limit => format!(
+                        "on the limit line at {:.3} A settled, input {:.2} V, {:.0} degC ambient",
+                        pass_pt.current_a, pass_pt.input_v, pass_pt.ambient_c
+                    ),
+                    PassStress::FullLoadLowOutput => format!(
+                        "full load {:.3} A at the lowest output, input {:.2} V, {:.0} degC ambient",
+                        pass_pt.current_a, pass_pt.input_v, pass_pt.ambient_c
+                    ),
+                },
+                d.pass.power_rating_w,
+                pass_rating,
+                pass_case_c
+            ),
         },
     );
+    let soa_points = soa::soa_points(
+        d,
+        &soa_candidates(d, &self_heated, &pass_pt, vin_max, wc_vmin.min),
+    );
     {
-        let t = &d.feedback.top;
-        let b = &d.feedback.bottom;
-        let i_fb = wc_vmax.max
-            / (t.ohms * (1.0 - t.tolerance_pct / 100.0) + b.ohms * (1.0 - b.tolerance_pct / 100.0));
-        dissipation.insert(
-            "feedback_top".to_string(),
-            resistor_stress(
-                t,
-                i_fb * i_fb * t.ohms * (1.0 + t.tolerance_pct / 100.0),
-                "at the highest output".to_string(),
-            ),
-        );
-        dissipation.insert(
-            "feedback_bottom".to_string(),
-            resistor_stress(
-                b,
-                i_fb * i_fb * b.ohms * (1.0 + b.tolerance_pct / 100.0),
-                "at the highest output".to_string(),
-            ),
-        );
+        let (st, sb) = feedback_stress(d);
+        for (name, r, s) in [
+            ("feedback_top", &d.feedback.top, st),
+            ("feedback_bottom", &d.feedback.bottom, sb),
+        ] {
+            let mut ps = resistor_stress(
+                r,
+                s.watts,
+                if r.pot {
+                    format!(
+                        "{:.0} ohm of the potentiometer's track in use ({:.0} % of it) at {:.2} V out",
+                        s.ohms_in_use,
+                        s.track_share * 100.0,
+                        s.output_v
+                    )
+                } else {
+                    format!("at {:.2} V out (highest corner)", s.output_v)
+                },
+            );
+            if r.pot {
+                // The rating spreads over the whole track: the part in use carries its share.
+                ps.rating_watts = r.rating_w.map(|w| w * s.track_share);
+                ps.allowed_watts = ps.rating_watts.map(|w| w * rules.resistor_derating);
+                ps.suggested_rating_watts =
+                    suggest_rating(s.watts / s.track_share.max(1e-12), rules.resistor_derating);
+            }
+            dissipation.insert(name.to_string(), ps);
+        }
     }
     let drive = aux_and_drive(
         d,
@@ -404,6 +431,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
             drive: &drive,
             junction_temp_c,
             self_heated: &thermal.self_heated,
+            soa: soa_points.as_deref(),
         },
     );
 
@@ -438,6 +466,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         headroom_volts: headroom,
         junction_temp_c,
         thermal,
+        soa: soa_points,
         as_built: as_built_bands(d, samples, seed.wrapping_add(1)),
         drive,
         checks,
@@ -447,6 +476,68 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         monte_carlo_samples: samples,
         seed,
     }
+}
+
+/// The operating points checked against the SOA: the settled shorts (nominal unit and hottest
+/// corner), the hardest point, full load at the lowest output from the highest input, and for
+/// foldback the nominal unit's limit line at high line.
+fn soa_candidates(
+    d: &Design,
+    sh: &SelfHeated,
+    hardest: &Solved,
+    vin_max: f64,
+    vout_min: f64,
+) -> Vec<Candidate> {
+    let vce = |s: &Solved| {
+        if s.current_a > 0.0 {
+            s.pass_watts / s.current_a
+        } else {
+            0.0
+        }
+    };
+    let mut out = vec![
+        (
+            "settled short, nominal unit".to_string(),
+            vce(&sh.short_nominal),
+            sh.short_nominal.current_a,
+            sh.short_nominal.ambient_c,
+        ),
+        (
+            "settled short, hottest corner".to_string(),
+            vce(&sh.short_worst),
+            sh.short_worst.current_a,
+            sh.short_worst.ambient_c,
+        ),
+        (
+            "the hardest point".to_string(),
+            vce(hardest),
+            hardest.current_a,
+            hardest.ambient_c,
+        ),
+    ];
+    let rated = d.load.max_current_a;
+    out.push((
+        "full load at the lowest output, highest input".to_string(),
+        vin_max - vout_min - rated * d.limit.sense.ohms,
+        rated,
+        d.environment.ambient_max_c,
+    ));
+    if d.limit.clamp == Clamp::Foldback {
+        let mut p = Params::nominal(d);
+        p.line = 1.0 + d.input.line_tolerance_pct / 100.0;
+        let pt = evaluate(d, &p);
+        for k in 0..=16 {
+            let v = pt.vout_set * k as f64 / 16.0;
+            let i = super::model::limit_current_at(d, &p, v).max(0.0);
+            out.push((
+                format!("foldback line at {v:.2} V, high line"),
+                pt.vin_no_load - v - i * p.r_sense,
+                i,
+                d.environment.ambient_max_c,
+            ));
+        }
+    }
+    out
 }
 
 /// A condition in words.

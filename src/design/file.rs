@@ -185,6 +185,18 @@ pub struct Pass {
     /// both), at the limit current: the drive the amplifier must give is I / gain. Optional.
     #[serde(default)]
     pub current_gain: Option<f64>,
+    /// The device's DC safe operating area, as the datasheet draws it (case at 25 degC).
+    #[serde(default)]
+    pub soa: Option<Soa>,
+}
+
+/// A datasheet-style DC safe operating area: points (V_CE volts, I_C amperes) along the DC
+/// line, V_CE rising, joined straight on log-log axes (the thermal limit and the steeper
+/// second-breakdown segment); beyond the last point the device may not be used.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Soa {
+    pub points: Vec<[f64; 2]>,
 }
 
 fn default_junction() -> f64 {

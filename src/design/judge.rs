@@ -3,6 +3,7 @@
 //! Pure: the values the expectation computed in, [`Check`]s out.
 
 use super::file::Design;
+use super::soa::SoaPoint;
 use super::stress::{DriveExpect, SelfHeated};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -63,6 +64,7 @@ pub struct Judged<'a> {
     pub drive: &'a DriveExpect,
     pub junction_temp_c: Option<f64>,
     pub self_heated: &'a SelfHeated,
+    pub soa: Option<&'a [SoaPoint]>,
 }
 
 fn check(
@@ -89,6 +91,7 @@ fn limit_margin(name: &str, value: f64, limit: f64) -> f64 {
     if name.starts_with("dissipation_")
         || name == "junction_temperature"
         || name == "thermal_runaway"
+        || name == "safe_operating_area"
     {
         limit - value
     } else {
@@ -207,6 +210,33 @@ pub fn checks(d: &Design, j: &Judged) -> Vec<Check> {
                 j.drive.clamp_sink_a.unwrap_or(0.0)
             ),
         ));
+    }
+    if let Some(points) = j.soa {
+        // The point using the largest share of what the derated SOA line allows.
+        let worst = points.iter().max_by(|a, b| {
+            let r = |p: &SoaPoint| p.current_a / p.allowed_a.max(1e-12);
+            r(a).total_cmp(&r(b))
+        });
+        if let Some(w) = worst {
+            let verdict = if w.current_a <= w.allowed_a * rules.semiconductor_derating {
+                Verdict::Ok
+            } else if w.current_a <= w.allowed_a {
+                Verdict::Marginal
+            } else {
+                Verdict::Fail
+            };
+            out.push(check(
+                "safe_operating_area",
+                verdict,
+                w.current_a,
+                w.allowed_a,
+                "A",
+                format!(
+                    "{}: {:.3} A at V_CE {:.1} V against the DC SOA line derated to its {:.0} degC case",
+                    w.condition, w.current_a, w.vce, w.case_c
+                ),
+            ));
+        }
     }
     let p = &d.pass;
     let tj_target = p.tj_max_c - rules.tj_margin_c;

@@ -16,6 +16,7 @@ pub mod model;
 pub mod render;
 pub mod rules;
 pub mod sizing;
+pub mod soa;
 pub mod stress;
 pub mod tolerance;
 

@@ -341,6 +341,30 @@ pub fn pass(d: &Design) -> Checked {
         &["pass", "tj_max_c"],
         "T_j max",
     )?;
+    if let Some(soa) = &p.soa {
+        let path = ["pass", "soa", "points"];
+        if soa.points.len() < 2 {
+            return err(
+                &path,
+                "the SOA needs at least two points [V_CE, I_C] along its DC line, e.g. `points = [[10, 11.5], [40, 2.9], [100, 0.3]]`",
+            );
+        }
+        for pt in &soa.points {
+            in_range(pt[0], ranges::SOA_V, &path, "an SOA point's V_CE")?;
+            in_range(pt[1], ranges::SOA_A, &path, "an SOA point's current")?;
+        }
+        for w in soa.points.windows(2) {
+            if w[1][0] <= w[0][0] || w[1][1] > w[0][1] {
+                return err(
+                    &path,
+                    format!(
+                        "SOA points must go up in V_CE and not up in current ([{}, {}] then [{}, {}]): list them left to right along the DC line",
+                        w[0][0], w[0][1], w[1][0], w[1][1]
+                    ),
+                );
+            }
+        }
+    }
     if let Some(g) = p.current_gain {
         in_range(
             g,

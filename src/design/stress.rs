@@ -237,3 +237,81 @@ pub fn aux_and_drive(d: &Design, x: &DriveInputs) -> DriveExpect {
         },
     }
 }
+
+/// Dissipation of one feedback element at its worst corner and setting.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FeedbackStress {
+    pub watts: f64,
+    /// Resistance in circuit at that point (for a potentiometer: the part of the track in use).
+    pub ohms_in_use: f64,
+    /// Share of a potentiometer's track in use (1 for a fixed resistor): its rating spreads
+    /// over the whole track, so the part in use may carry only that share of it.
+    pub track_share: f64,
+    pub output_v: f64,
+}
+
+/// Dissipation in the feedback divider's top and bottom elements, over the tolerance corners
+/// of the reference and both elements and over the ends of any potentiometer's travel, with
+/// the wiper (if any) at its top. The divider carries I = V_ref,eff / R_bottom,set (the
+/// amplifier holds the bottom at the reference), so P = I^2 R_set in each element (Ohm's law);
+/// for a potentiometer the worst point is the one that loads its track most per ohm in use.
+pub fn feedback_stress(d: &Design) -> (FeedbackStress, FeedbackStress) {
+    use super::file::ReferenceAdjust;
+    let r = &d.reference;
+    let t = &d.feedback.top;
+    let b = &d.feedback.bottom;
+    let w = match r.adjust {
+        ReferenceAdjust::Fixed => 1.0,
+        ReferenceAdjust::Wiper => r.wiper_max_pct / 100.0,
+    };
+    let corners = |v: f64, pct: f64| [v * (1.0 - pct / 100.0), v * (1.0 + pct / 100.0)];
+    let settings = |pot: bool, min: f64, full: f64, nominal_full: f64| -> Vec<f64> {
+        if pot {
+            vec![min * full / nominal_full, full]
+        } else {
+            vec![full]
+        }
+    };
+    let empty = FeedbackStress {
+        watts: 0.0,
+        ohms_in_use: 0.0,
+        track_share: 1.0,
+        output_v: 0.0,
+    };
+    let (mut top, mut bottom) = (empty, empty);
+    let density = |s: &FeedbackStress| s.watts / s.track_share.max(1e-12);
+    for vref in corners(r.volts, r.tolerance_pct) {
+        for rt in corners(t.ohms, t.tolerance_pct) {
+            for rb in corners(b.ohms, b.tolerance_pct) {
+                for rt_set in settings(t.pot, t.min_ohms, rt, t.ohms) {
+                    for rb_set in settings(b.pot, b.min_ohms, rb, b.ohms) {
+                        if rb_set <= 0.0 {
+                            continue;
+                        }
+                        let i = vref * w / rb_set;
+                        let vout = vref * w * (1.0 + rt_set / rb_set);
+                        let st = FeedbackStress {
+                            watts: i * i * rt_set,
+                            ohms_in_use: rt_set,
+                            track_share: if t.pot { rt_set / rt } else { 1.0 },
+                            output_v: vout,
+                        };
+                        let sb = FeedbackStress {
+                            watts: i * i * rb_set,
+                            ohms_in_use: rb_set,
+                            track_share: if b.pot { rb_set / rb } else { 1.0 },
+                            output_v: vout,
+                        };
+                        if density(&st) > density(&top) {
+                            top = st;
+                        }
+                        if density(&sb) > density(&bottom) {
+                            bottom = sb;
+                        }
+                    }
+                }
+            }
+        }
+    }
+    (top, bottom)
+}

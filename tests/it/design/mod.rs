@@ -3,4 +3,5 @@
 mod bands;
 mod heating;
 mod model;
+mod stress;
 mod validation;

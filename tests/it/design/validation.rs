@@ -19,6 +19,11 @@ fn numbers(text: &str) -> Vec<(String, std::ops::Range<usize>)> {
             toml_edit::Value::Float(_) | toml_edit::Value::Integer(_) => {
                 out.push((path, v.span().expect("parsed values have spans")))
             }
+            toml_edit::Value::Array(a) => {
+                for (i, v) in a.iter().enumerate() {
+                    walk_value(v, format!("{path}[{i}]"), out);
+                }
+            }
             toml_edit::Value::InlineTable(t) => {
                 for (k, v) in t.iter() {
                     walk_value(v, format!("{path}.{k}"), out);
@@ -97,7 +102,7 @@ fn every_number_of_the_teaching_sample_is_validated() {
     let (mut refused, mut accepted) = (0, 0);
     for (key, span) in &found {
         let line = line_of(&text, span.start);
-        let leaf = key.rsplit('.').next().unwrap();
+        let leaf = key.rsplit('.').next().unwrap().split('[').next().unwrap();
         for sub in SUBSTITUTES {
             let mut t = text.clone();
             t.replace_range(span.clone(), sub);
