@@ -188,6 +188,30 @@ pub struct Pass {
     /// The device's DC safe operating area, as the datasheet draws it (case at 25 degC).
     #[serde(default)]
     pub soa: Option<Soa>,
+    /// Heat capacities (or time constants) of the thermal path, for how long a short may last.
+    #[serde(default)]
+    pub thermal_mass: Option<ThermalMass>,
+}
+
+/// The thermal path's heat capacities: the junction (die and header, charged through
+/// theta_jc), the case (through theta_cs) and the heatsink (through theta_sa). Each stage is
+/// given either as a heat capacity in J/degC or as its time constant tau = theta x C in
+/// seconds.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ThermalMass {
+    #[serde(default)]
+    pub junction_j_per_c: Option<f64>,
+    #[serde(default)]
+    pub junction_tau_s: Option<f64>,
+    #[serde(default)]
+    pub case_j_per_c: Option<f64>,
+    #[serde(default)]
+    pub case_tau_s: Option<f64>,
+    #[serde(default)]
+    pub sink_j_per_c: Option<f64>,
+    #[serde(default)]
+    pub sink_tau_s: Option<f64>,
 }
 
 /// A datasheet-style DC safe operating area: points (V_CE volts, I_C amperes) along the DC

@@ -6,6 +6,7 @@
 //! which reads the design file. This file only declares and re-exports.
 
 mod check;
+pub mod dwell;
 pub mod edit;
 pub mod eseries;
 pub mod expect;

@@ -85,8 +85,8 @@ pub mod ranges {
     pub const SOA_V: Range = above(0.0, 10_000.0, "V", "40");
     pub const SOA_A: Range = above(0.0, 10_000.0, "A", "2.5");
     pub const DERATE_C: Range = incl(-60.0, 300.0, "degC", "25");
-    pub const TAU_S: Range = above(0.0, 1e5, "s", "60");
-    pub const HEAT_J_PER_C: Range = above(0.0, 1e7, "J/degC", "20");
+    pub const TAU_S: Range = incl(1e-4, 1e5, "s", "0.5");
+    pub const HEAT_J_PER_C: Range = incl(1e-6, 1e7, "J/degC", "20");
     pub const DWELL_S: Range = above(0.0, 1e6, "s", "5");
 }
 
@@ -111,6 +111,15 @@ pub fn in_range(v: f64, r: Range, path: &[&'static str], what: &str) -> Checked 
         ),
     )
 }
+
+/// A thermal stage's keys and values: (capacity key, tau key, capacity, tau, its theta).
+type Stage = (
+    &'static str,
+    &'static str,
+    Option<f64>,
+    Option<f64>,
+    Option<f64>,
+);
 
 fn at(base: &[&'static str], key: &'static str) -> Vec<&'static str> {
     let mut p = base.to_vec();
@@ -363,6 +372,75 @@ pub fn pass(d: &Design) -> Checked {
                     ),
                 );
             }
+        }
+    }
+    if let Some(m) = &p.thermal_mass {
+        let stages: [Stage; 3] = [
+            (
+                "junction_j_per_c",
+                "junction_tau_s",
+                m.junction_j_per_c,
+                m.junction_tau_s,
+                Some(p.theta_jc),
+            ),
+            (
+                "case_j_per_c",
+                "case_tau_s",
+                m.case_j_per_c,
+                m.case_tau_s,
+                Some(p.theta_cs),
+            ),
+            (
+                "sink_j_per_c",
+                "sink_tau_s",
+                m.sink_j_per_c,
+                m.sink_tau_s,
+                p.theta_sa,
+            ),
+        ];
+        for (ck, tk, c, tau, theta) in stages {
+            match (c, tau) {
+                (Some(c), None) => in_range(
+                    c,
+                    ranges::HEAT_J_PER_C,
+                    &["pass", "thermal_mass", ck],
+                    "a heat capacity",
+                )?,
+                (None, Some(t)) => {
+                    in_range(
+                        t,
+                        ranges::TAU_S,
+                        &["pass", "thermal_mass", tk],
+                        "a time constant",
+                    )?;
+                    if theta.is_none_or(|th| th <= 0.0) {
+                        return err(
+                            &["pass", "thermal_mass", tk],
+                            format!("a time constant needs this stage's thermal resistance above zero: give `{ck}` (J/degC) instead, or set the theta"),
+                        );
+                    }
+                }
+                (Some(_), Some(_)) => {
+                    return err(
+                        &["pass", "thermal_mass", tk],
+                        format!("give either `{ck}` or `{tk}` for this stage, not both"),
+                    )
+                }
+                (None, None) => {
+                    return err(
+                        &["pass", "thermal_mass"],
+                        format!(
+                        "each stage needs `{ck}` (J/degC) or `{tk}` (seconds), e.g. `{ck} = 20`"
+                    ),
+                    )
+                }
+            }
+        }
+        if p.theta_sa.is_none() {
+            return err(
+                &["pass", "thermal_mass"],
+                "the thermal masses need the heatsink chosen: set theta_sa",
+            );
         }
     }
     if let Some(g) = p.current_gain {

@@ -7,6 +7,7 @@
 //! the aux transistor's V_CE = V_in - I_aux R_c - V_aux (collector resistor drop, Ohm's law);
 //! below its saturation voltage the rail sags to V_in - I_aux R_c - V_CE(sat).
 
+use super::dwell::{self, Dwell};
 use super::file::Design;
 use super::heating::{self, Condition, Solved};
 use super::model::Params;
@@ -33,12 +34,17 @@ pub struct SelfHeated {
     pub max_theta_sa: f64,
     /// What the solve assumes, in words.
     pub assumptions: Vec<String>,
+    /// The pass junction over a sustained short from the rated-load steady state, nominal
+    /// unit and the corner with the hottest settled short (null without thermal masses).
+    pub short_dwell_nominal: Option<Dwell>,
+    pub short_dwell_worst: Option<Dwell>,
 }
 
 /// Gathers the self-heated points corner by corner.
 pub struct HeatCollect {
     tj_target: f64,
     short_worst: Option<Solved>,
+    short_worst_params: Option<Params>,
     knee_worst: Option<Solved>,
     worst: Option<Solved>,
     hottest_watts: Option<Solved>,
@@ -66,6 +72,7 @@ impl HeatCollect {
         HeatCollect {
             tj_target: d.pass.tj_max_c - d.rules.tj_margin_c,
             short_worst: None,
+            short_worst_params: None,
             knee_worst: None,
             worst: None,
             hottest_watts: None,
@@ -86,6 +93,7 @@ impl HeatCollect {
         widen(&mut self.knee_current, knee.current_a);
         if hotter(&self.short_worst, &short) {
             self.short_worst = Some(short);
+            self.short_worst_params = Some(p.clone());
         }
         if hotter(&self.knee_worst, &knee) {
             self.knee_worst = Some(knee);
@@ -145,6 +153,11 @@ impl HeatCollect {
                 Condition::Worst,
                 self.tj_target,
             )),
+            short_dwell_nominal: dwell::short_dwell(d, nominal),
+            short_dwell_worst: dwell::short_dwell(
+                d,
+                self.short_worst_params.as_ref().unwrap_or(nominal),
+            ),
             short_nominal,
             knee_nominal,
             assumptions: heating::assumptions(d),

@@ -115,6 +115,7 @@ pub fn prepare(req: &RunRequest) -> Result<Prepared, PipelineError> {
         path: req.plan.clone(),
     })?;
     let plan = Plan::parse(plan_text, &plan_file.label(), &targets)?;
+    crate::plan::check_short_dwell(&plan, plan_text, &plan_file.label(), &e)?;
     let bench_text = bench_file.text().ok_or_else(|| {
         PipelineError::from(crate::bench::BenchError::ReadFile {
             path: bench_file.label(),

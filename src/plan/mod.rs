@@ -30,6 +30,7 @@
 //! TOML number is taken in the field's base unit (A, V, ohm, W, degC, s).
 
 mod checks;
+mod dwell;
 mod error;
 mod expand;
 mod fields;
@@ -41,6 +42,7 @@ mod targets;
 #[cfg(test)]
 mod tests;
 
+pub use dwell::check_short_dwell;
 pub use error::PlanError;
 pub use knee::{KneeConfig, KneeOutcome, KneeRequest, KneeResult, KneeSearch};
 pub use quantity::{parse_quantity, tidy, Dim};

@@ -1,6 +1,7 @@
 //! The design model against published formulas and worked examples.
 
 mod bands;
+mod dwell;
 mod heating;
 mod model;
 mod stress;

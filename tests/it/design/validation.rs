@@ -128,7 +128,12 @@ fn every_number_of_the_teaching_sample_is_validated() {
                     let mut nulls = Vec::new();
                     let mut max_abs = 0.0f64;
                     scan(&json_of(&d), "", &mut nulls, &mut max_abs);
-                    let new: Vec<_> = nulls.iter().filter(|n| !base_nulls.contains(n)).collect();
+                    // A longest short dwell of null means "no limit" (the short settles below
+                    // T_j max): a meaningful value, not a non-finite number.
+                    let new: Vec<_> = nulls
+                        .iter()
+                        .filter(|n| !base_nulls.contains(n) && !n.ends_with(".longest_s"))
+                        .collect();
                     assert!(
                         new.is_empty(),
                         "{key} = {sub}: accepted, but the expectation has non-finite values at {new:?}"
