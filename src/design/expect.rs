@@ -5,7 +5,7 @@
 //! Pure: a [`Design`] in, an [`Expectation`] out.
 
 use super::file::{Clamp, Design, Resistor};
-use super::heating::{Condition, Solved};
+use super::heating::{running_short_current, Condition, Solved};
 pub use super::judge::{Check, PartStress, Verdict};
 use super::model::{evaluate, is_adjustable, sense_voltage, vi_curve, Params, PassStress};
 use super::soa::{self, Candidate, SoaPoint};
@@ -92,6 +92,7 @@ pub fn as_built_bands(d: &Design, samples: usize, seed: u64) -> AsBuiltBands {
         ]) {
             w.include(v);
         }
+        wc[3].include(running_short_current(d, p));
     });
     let mut c = Collect::default();
     for_each_sample_in(d, Envelope::AsBuilt, samples, seed, |p| {
@@ -100,6 +101,7 @@ pub fn as_built_bands(d: &Design, samples: usize, seed: u64) -> AsBuiltBands {
         c.sense.push(pt.sense_v);
         c.limit.push(pt.limit_current);
         c.sc.push(pt.short_circuit_current);
+        c.sc.push(running_short_current(d, p));
     });
     AsBuiltBands {
         ambient_c: d.environment.ambient_c,
@@ -118,6 +120,9 @@ pub struct Expectation {
     pub vout: VoutExpect,
     pub sense_voltage: Band,
     pub limit_current: Band,
+    /// Into a short applied to a cold unit or to a running one (pass junction at its
+    /// rated-load steady state, as a bench finds it after the earlier steps): worst case and
+    /// Monte Carlo span both states (two values per drawn unit); the nominal is the cold value.
     pub short_circuit_current: Band,
     /// I_sc / I_knee, nominal (1.0 for a sharp clamp).
     pub foldback_ratio: f64,
@@ -223,6 +228,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         wc_sense.include(pt.sense_v);
         wc_lim.include(pt.limit_current);
         wc_sc.include(pt.short_circuit_current);
+        wc_sc.include(running_short_current(d, p));
         vin_max = vin_max.max(pt.vin_no_load);
         vin_min = vin_min.min(pt.vin_trough);
         ripple = ripple.max(pt.ripple_v);
@@ -257,6 +263,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         c.sense.push(pt.sense_v);
         c.limit.push(pt.limit_current);
         c.sc.push(pt.short_circuit_current);
+        c.sc.push(running_short_current(d, p));
     });
 
     let vout = VoutExpect {

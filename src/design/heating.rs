@@ -125,6 +125,17 @@ fn point(d: &Design, p: &Params, c: Condition, watts: f64, settled: bool) -> Sol
     }
 }
 
+/// Short-circuit current of a running unit: the pass junction (and a heatsink-mounted clamp)
+/// at the rated-load steady state at the evaluated output, T_j = T_a + P_0 theta, when the
+/// short is applied. A bench applies its short to a unit that has been running, so a reading
+/// lies between this and the cold value.
+pub fn running_short_current(d: &Design, p: &Params) -> f64 {
+    let pt = evaluate(d, p);
+    let i0 = d.load.max_current_a.min(pt.limit_current.max(0.0));
+    let p0 = ((pt.vin_no_load - pt.vout_set - i0 * p.r_sense) * i0).max(0.0);
+    limit_current_at(d, &heated(d, p, p0), 0.0)
+}
+
 /// Solve clamp and thermal relations together for one unit (`p` with its junctions at
 /// ambient) under one condition.
 pub fn solve(d: &Design, p: &Params, condition: Condition) -> Solved {

@@ -70,6 +70,19 @@ pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> 
     band_row(w, "clamp threshold", &e.sense_voltage, "V")?;
     band_row(w, "limit knee", &e.limit_current, "A")?;
     band_row(w, "short-circuit current", &e.short_circuit_current, "A")?;
+    writeln!(
+        w,
+        "  as built (part tolerances only, at {} and the nominal input; the bench judges by these):",
+        eng(e.as_built.ambient_c, "degC")
+    )?;
+    band_row(w, "  output", &e.as_built.vout, "V")?;
+    band_row(w, "  limit knee", &e.as_built.limit_current, "A")?;
+    band_row(
+        w,
+        "  short-circuit current",
+        &e.as_built.short_circuit_current,
+        "A",
+    )?;
     if d.limit.clamp == Clamp::Foldback {
         writeln!(
             w,
@@ -218,6 +231,89 @@ fn self_heated(w: &mut impl Write, e: &Expectation) -> io::Result<()> {
     writeln!(w, "  assuming:")?;
     for a in &sh.assumptions {
         writeln!(w, "    - {a}")?;
+    }
+    for (label, dw) in [
+        ("nominal unit", &sh.short_dwell_nominal),
+        ("hottest corner", &sh.short_dwell_worst),
+    ] {
+        let Some(dw) = dw else { continue };
+        let last = dw.curve.last().map(|p| p.1).unwrap_or(dw.start_junction_c);
+        let verdict = match dw.longest_s {
+            Some(t) => format!(
+                "T_j max {} after {} of short",
+                eng(dw.limit_c, "degC"),
+                eng(t, "s")
+            ),
+            None => format!(
+                "no limit (the short settles at {}, below T_j max)",
+                eng(last, "degC")
+            ),
+        };
+        writeln!(
+            w,
+            "  short dwell, {label}: {verdict}; from the rated-load steady state (T_j {}, case {}, sink {})",
+            eng(dw.start_junction_c, "degC"),
+            eng(dw.start_case_c, "degC"),
+            eng(dw.start_sink_c, "degC")
+        )?;
+        let marks: Vec<String> = [1.0, 10.0, 60.0, 600.0]
+            .iter()
+            .filter_map(|t| dw.curve.iter().find(|p| p.0 >= *t))
+            .map(|p| {
+                format!(
+                    "{}: T_j {} case {}",
+                    eng(p.0, "s"),
+                    eng(p.1, "degC"),
+                    eng(p.2, "degC")
+                )
+            })
+            .collect();
+        if !marks.is_empty() {
+            writeln!(w, "    {}", marks.join("; "))?;
+        }
+    }
+    if let Some(points) = &e.soa {
+        writeln!(
+            w,
+            "  safe operating area (DC line derated with case temperature):"
+        )?;
+        for p in points.iter().take(6) {
+            writeln!(
+                w,
+                "    {:<44}{:>9} at V_CE {:>8}, case {:>9}: allowed {}",
+                p.condition,
+                eng(p.current_a, "A"),
+                eng(p.vce, "V"),
+                eng(p.case_c, "degC"),
+                eng(p.allowed_a, "A")
+            )?;
+        }
+    }
+    let dr = &e.drive;
+    if let (Some(vce), Some(rail)) = (dr.aux_vce_at_lowest_input_v, dr.aux_rail_at_lowest_input_v) {
+        writeln!(
+            w,
+            "  aux rail at the lowest input: transistor V_CE {} after the {} collector resistor; rail {}",
+            eng(vce, "V"),
+            eng(dr.collector_ohms.unwrap_or(0.0), "ohm"),
+            eng(rail, "V")
+        )?;
+    }
+    if let (Some(rated), Some(lim)) = (dr.base_drive_at_rated_a, dr.base_drive_at_limit_a) {
+        writeln!(
+            w,
+            "  pass stage drive: {} at rated load, {} at the highest settled limit{}",
+            eng(rated, "A"),
+            eng(lim, "A"),
+            match (dr.amplifier_output_a, dr.clamp_sink_a) {
+                (Some(a), Some(c)) => format!(
+                    "; the amplifier gives {}, the clamp sinks up to {}",
+                    eng(a, "A"),
+                    eng(c, "A")
+                ),
+                _ => String::new(),
+            }
+        )?;
     }
     Ok(())
 }

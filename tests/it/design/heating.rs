@@ -232,3 +232,30 @@ fn teaching_lab_aux_rail_drops_out_at_the_lowest_input() {
     assert_eq!(h.verdict, Verdict::Fail);
     assert!((h.value - -0.83).abs() < 0.01, "{}", h.value);
 }
+
+#[test]
+fn short_circuit_band_spans_a_cold_and_a_running_unit() {
+    // A bench shorts a unit that has been running: its pass junctions sit at the rated-load
+    // steady state, T_j = T_a + P_0 theta with P_0 = (V_in - V_out - I R_s) I (thermal Ohm's
+    // law; series-pass dissipation), and the string's threshold has risen by m |tc| (T_j - 25)
+    // (junction law). Nominal unit: 1.2 A at 20.4 V from 35.37 V.
+    let d = lab();
+    let e = expect_with(&d, 2000, 1);
+    let vin = 26.0 * 2f64.sqrt() - 1.4;
+    let p0 = (vin - 20.4 - 1.2 * 0.39) * 1.2;
+    let tj = 25.0 + p0 * 1.25;
+    let running = (0.65 + 2.0 * 0.002 * (tj - 25.0)) / 0.39;
+    let b = e.short_circuit_current;
+    assert!(
+        near(b.nominal, 0.65 / 0.39, 1e-12),
+        "the nominal stays the cold value"
+    );
+    assert!(b.worst_case.contains(running) && b.worst_case.max > running);
+    assert!(
+        b.monte_carlo.p_high > running,
+        "{} vs {running}",
+        b.monte_carlo.p_high
+    );
+    // The knee band is unchanged: junctions at ambient.
+    assert!(e.limit_current.worst_case.max < b.worst_case.max);
+}
