@@ -8,6 +8,7 @@ use super::file::{Clamp, Design, Resistor};
 use super::heating::{running_short_current, Condition, Solved};
 pub use super::judge::{Check, PartStress, Verdict};
 use super::model::{evaluate, is_adjustable, sense_voltage, vi_curve, Params, PassStress};
+use super::rectifier::RectifierExpect;
 use super::soa::{self, Candidate, SoaPoint};
 use super::stress::{
     aux_and_drive, feedback_stress, DriveExpect, DriveInputs, HeatCollect, SelfHeated,
@@ -44,6 +45,8 @@ pub struct InputExpect {
     pub min_v: f64,
     /// Largest peak-to-peak ripple at full load (I / (2 f C)).
     pub ripple_v: f64,
+    /// Full wave: transformer, bridge and reservoir at rated load (null for a DC input).
+    pub rectifier: Option<RectifierExpect>,
 }
 
 /// Pass-device thermal result.
@@ -428,6 +431,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         self_heated,
     };
 
+    let rectifier = super::rectifier::rectifier(d);
     let checks = super::judge::checks(
         d,
         &super::judge::Judged {
@@ -439,6 +443,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
             junction_temp_c,
             self_heated: &thermal.self_heated,
             soa: soa_points.as_deref(),
+            rectifier: rectifier.as_ref(),
         },
     );
 
@@ -468,6 +473,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
             max_v: vin_max,
             min_v: vin_min,
             ripple_v: ripple,
+            rectifier: rectifier.clone(),
         },
         dissipation,
         headroom_volts: headroom,

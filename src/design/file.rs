@@ -79,6 +79,18 @@ pub struct Input {
     /// Full wave: reservoir capacitor tolerance, +- percent (electrolytics: 20 % is common practice).
     #[serde(default = "default_cap_tolerance")]
     pub reservoir_tolerance_pct: f64,
+    /// Full wave: transformer regulation, percent: the no-load secondary is `secondary_vrms`
+    /// (at rated load) times 1 + regulation / 100. Unset: both taken as `secondary_vrms`.
+    #[serde(default)]
+    pub regulation_pct: Option<f64>,
+    /// Full wave: the reservoir's rated ripple current (RMS amperes).
+    #[serde(default)]
+    pub reservoir_ripple_rating_a: Option<f64>,
+    /// Full wave: the bridge's average forward current rating and its surge rating (I_FSM).
+    #[serde(default)]
+    pub rectifier_rating_a: Option<f64>,
+    #[serde(default)]
+    pub rectifier_surge_rating_a: Option<f64>,
 }
 
 fn default_line_tolerance() -> f64 {

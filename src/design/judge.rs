@@ -3,6 +3,7 @@
 //! Pure: the values the expectation computed in, [`Check`]s out.
 
 use super::file::Design;
+use super::rectifier::RectifierExpect;
 use super::soa::SoaPoint;
 use super::stress::{DriveExpect, SelfHeated};
 use serde::{Deserialize, Serialize};
@@ -65,6 +66,7 @@ pub struct Judged<'a> {
     pub junction_temp_c: Option<f64>,
     pub self_heated: &'a SelfHeated,
     pub soa: Option<&'a [SoaPoint]>,
+    pub rectifier: Option<&'a RectifierExpect>,
 }
 
 fn check(
@@ -92,6 +94,9 @@ fn limit_margin(name: &str, value: f64, limit: f64) -> f64 {
         || name == "junction_temperature"
         || name == "thermal_runaway"
         || name == "safe_operating_area"
+        || name == "reservoir_ripple_current"
+        || name == "rectifier_current"
+        || name == "rectifier_surge"
     {
         limit - value
     } else {
@@ -210,6 +215,60 @@ pub fn checks(d: &Design, j: &Judged) -> Vec<Check> {
                 j.drive.clamp_sink_a.unwrap_or(0.0)
             ),
         ));
+    }
+    if let Some(r) = j.rectifier {
+        let inp = &d.input;
+        if let Some(rating) = inp.reservoir_ripple_rating_a {
+            out.push(check(
+                "reservoir_ripple_current",
+                if r.ripple_current_a <= rating {
+                    Verdict::Ok
+                } else {
+                    Verdict::Fail
+                },
+                r.ripple_current_a,
+                rating,
+                "A",
+                format!(
+                    "the reservoir's RMS ripple current at rated load (high line, largest capacitance; {:.0} degree conduction, {:.2} A peaks) within its rating",
+                    r.conduction_angle_deg, r.peak_current_a
+                ),
+            ));
+        }
+        if let Some(rating) = inp.rectifier_rating_a {
+            let v = r.average_current_a;
+            out.push(check(
+                "rectifier_current",
+                if v <= rating * rules.semiconductor_derating {
+                    Verdict::Ok
+                } else if v <= rating {
+                    Verdict::Marginal
+                } else {
+                    Verdict::Fail
+                },
+                v,
+                rating * rules.semiconductor_derating,
+                "A",
+                format!(
+                    "the bridge's average current within its derated rating ({rating} A rated; it dissipates {:.2} W)",
+                    r.dissipation_w
+                ),
+            ));
+        }
+        if let (Some(rating), Some(surge)) = (inp.rectifier_surge_rating_a, r.surge_current_a) {
+            out.push(check(
+                "rectifier_surge",
+                if surge <= rating {
+                    Verdict::Ok
+                } else {
+                    Verdict::Fail
+                },
+                surge,
+                rating,
+                "A",
+                "switch-on surge into the empty reservoir (no-load peak over the winding resistance from the stated regulation) within the bridge's I_FSM".into(),
+            ));
+        }
     }
     if let Some(points) = j.soa {
         // The point using the largest share of what the derated SOA line allows.

@@ -14,6 +14,7 @@ pub mod file;
 pub mod heating;
 mod judge;
 pub mod model;
+pub mod rectifier;
 pub mod render;
 pub mod rules;
 pub mod sizing;

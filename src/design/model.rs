@@ -389,7 +389,12 @@ pub fn evaluate(d: &Design, p: &Params) -> Point {
     let (vin_no_load, ripple_v) = match d.input.kind {
         InputKind::Dc => (d.input.volts.unwrap_or(0.0) * p.line, 0.0),
         InputKind::FullWave => {
-            let peak = d.input.secondary_vrms.unwrap_or(0.0) * std::f64::consts::SQRT_2 * p.line
+            // With a stated regulation the no-load secondary is higher than the rated-load one.
+            let reg = d.input.regulation_pct.unwrap_or(0.0) / 100.0;
+            let peak = d.input.secondary_vrms.unwrap_or(0.0)
+                * (1.0 + reg)
+                * std::f64::consts::SQRT_2
+                * p.line
                 - d.input.rectifier_drop_v;
             let ripple = if p.reservoir_f > 0.0 {
                 d.load.max_current_a / (2.0 * d.input.mains_hz * p.reservoir_f)
@@ -399,6 +404,17 @@ pub fn evaluate(d: &Design, p: &Params) -> Point {
             (peak, ripple)
         }
     };
+    // The trough at full load starts from the rated-load (not the no-load) peak.
+    let full_load_peak = match d.input.kind {
+        InputKind::FullWave => {
+            vin_no_load
+                - d.input.secondary_vrms.unwrap_or(0.0) * d.input.regulation_pct.unwrap_or(0.0)
+                    / 100.0
+                    * std::f64::consts::SQRT_2
+                    * p.line
+        }
+        InputKind::Dc => vin_no_load,
+    };
     Point {
         vout_min,
         vout_max,
@@ -407,7 +423,7 @@ pub fn evaluate(d: &Design, p: &Params) -> Point {
         limit_current,
         short_circuit_current,
         vin_no_load,
-        vin_trough: vin_no_load - ripple_v,
+        vin_trough: full_load_peak - ripple_v,
         ripple_v,
     }
 }

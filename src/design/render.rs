@@ -100,6 +100,22 @@ pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> 
         eng(e.input.min_v, "V"),
         eng(e.input.ripple_v, "V"),
     )?;
+    if let Some(r) = &e.input.rectifier {
+        writeln!(
+            w,
+            "input stage: secondary {} no load, {} at rated load; bridge {} peaks over {:.0} degrees, {} average, {} dissipated; reservoir ripple {} RMS{}",
+            eng(r.secondary_no_load_vrms, "V"),
+            eng(r.secondary_full_load_vrms, "V"),
+            eng(r.peak_current_a, "A"),
+            r.conduction_angle_deg,
+            eng(r.average_current_a, "A"),
+            eng(r.dissipation_w, "W"),
+            eng(r.ripple_current_a, "A"),
+            r.surge_current_a
+                .map(|s| format!("; switch-on surge {}", eng(s, "A")))
+                .unwrap_or_default()
+        )?;
+    }
     writeln!(w)?;
     writeln!(
         w,

@@ -256,6 +256,38 @@ pub fn input(d: &Design) -> Checked {
                 &["input", "reservoir_tolerance_pct"],
                 "reservoir tolerance",
             )?;
+            if let Some(r) = inp.regulation_pct {
+                in_range(
+                    r,
+                    ranges::REGULATION_PCT,
+                    &["input", "regulation_pct"],
+                    "transformer regulation",
+                )?;
+            }
+            for (v, key, r, what) in [
+                (
+                    inp.reservoir_ripple_rating_a,
+                    "reservoir_ripple_rating_a",
+                    ranges::RIPPLE_RATING_A,
+                    "the reservoir's ripple current rating",
+                ),
+                (
+                    inp.rectifier_rating_a,
+                    "rectifier_rating_a",
+                    ranges::RIPPLE_RATING_A,
+                    "the rectifier's current rating",
+                ),
+                (
+                    inp.rectifier_surge_rating_a,
+                    "rectifier_surge_rating_a",
+                    ranges::SURGE_A,
+                    "the rectifier's surge rating",
+                ),
+            ] {
+                if let Some(v) = v {
+                    in_range(v, r, &["input", key], what)?;
+                }
+            }
         }
     }
     Ok(())

@@ -4,5 +4,6 @@ mod bands;
 mod dwell;
 mod heating;
 mod model;
+mod rectifier;
 mod stress;
 mod validation;
