@@ -136,15 +136,31 @@ fn step(a: &M3, c: &[f64; 3], h: f64) -> (M3, [f64; 3]) {
     (phi, solve3(*a, rhs))
 }
 
-/// The pass junction over a sustained short for unit `p`, or None without thermal masses.
-pub fn short_dwell(d: &Design, p: &Params) -> Option<Dwell> {
-    let (c, r) = network(d)?;
+/// The system matrix of the network (temperatures above ambient).
+fn system(c: &[f64; 3], r: &[f64; 3]) -> M3 {
     let g = [1.0 / r[0], 1.0 / r[1], 1.0 / r[2]];
-    let a: M3 = [
+    [
         [-g[0] / c[0], g[0] / c[0], 0.0],
         [g[0] / c[1], -(g[0] + g[1]) / c[1], g[1] / c[1]],
         [0.0, g[1] / c[2], -(g[1] + g[2]) / c[2]],
-    ];
+    ]
+}
+
+/// One exact step of `dt` seconds of the network (capacities `c`, resistances `r`) with
+/// `watts` held into the junction: temperatures above ambient (junction, case, sink) in and
+/// out. Used by the simulated unit, so that it heats as the design model says.
+pub fn network_step(c: &[f64; 3], r: &[f64; 3], th: [f64; 3], watts: f64, dt: f64) -> [f64; 3] {
+    if dt.is_nan() || dt <= 0.0 {
+        return th;
+    }
+    let (phi, gamma) = step(&system(c, r), c, dt);
+    std::array::from_fn(|i| (0..3).map(|k| phi[i][k] * th[k]).sum::<f64>() + gamma[i] * watts)
+}
+
+/// The pass junction over a sustained short for unit `p`, or None without thermal masses.
+pub fn short_dwell(d: &Design, p: &Params) -> Option<Dwell> {
+    let (c, r) = network(d)?;
+    let a = system(&c, &r);
     let ta = p.ambient_c;
     // Rated-load steady state at the evaluated output.
     let pt = evaluate(d, p);

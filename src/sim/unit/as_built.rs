@@ -98,6 +98,8 @@ impl SimUnit {
             thermal: Thermal {
                 pass_junction_c: ambient,
                 clamp_junction_c: ambient,
+                case_c: ambient,
+                sink_c: ambient,
             },
             faults: faults.to_vec(),
             latched: false,
@@ -149,6 +151,15 @@ impl SimUnit {
         p.theta_jc + p.theta_cs + sa
     }
 
+    /// The three-stage thermal network when the design gives thermal masses.
+    pub(super) fn network(&self) -> Option<([f64; 3], [f64; 3])> {
+        if self.model.heat == HeatModel::Lumped {
+            return None;
+        }
+        let p = &self.design.pass;
+        pass_network(&self.design, self.pass_theta() - p.theta_jc - p.theta_cs)
+    }
+
     pub(super) fn vce_sat(&self) -> f64 {
         self.model.vce_sat.unwrap_or(match self.design.pass.stage {
             Stage::Single => 0.2,
@@ -184,7 +195,13 @@ impl SimUnit {
     }
 
     pub(super) fn knee_scale(&self, p: &Params) -> f64 {
-        self.model.emission * thermal_voltage(p.clamp_junction_c) / p.r_sense
+        let width = match self.model.knee {
+            KneeModel::OneJunction => self.model.emission * thermal_voltage(p.clamp_junction_c),
+            KneeModel::PerJunction => {
+                knee_width_v(&self.design, self.model.emission, p.clamp_junction_c)
+            }
+        };
+        width / p.r_sense
     }
 
     /// The unit's output characteristic for given element values and input feed.
@@ -302,6 +319,9 @@ impl SimUnit {
     /// Pass device case temperature: the junction's rise scaled by the case-to-ambient share of
     /// the thermal path (junction and heatsink lumped into one time constant).
     pub fn case_temperature(&self) -> f64 {
+        if self.network().is_some() {
+            return self.thermal.case_c;
+        }
         let p = &self.design.pass;
         let theta = self.pass_theta();
         let share = if theta > 0.0 {
@@ -334,13 +354,17 @@ impl SimUnit {
     /// One thermal step of `dt` seconds at the dissipation of `op`.
     pub fn heat(&mut self, op: OperatingPoint, dt: f64) {
         let ta = self.params.ambient_c;
-        let target = ta + op.pass_w * self.pass_theta();
-        self.thermal.pass_junction_c = first_order_step(
-            self.thermal.pass_junction_c,
-            target,
-            self.model.pass_tau_s,
-            dt,
-        );
+        if let Some(net) = self.network() {
+            step_network(&net, &mut self.thermal, ta, op.pass_w, dt);
+        } else {
+            let target = ta + op.pass_w * self.pass_theta();
+            self.thermal.pass_junction_c = first_order_step(
+                self.thermal.pass_junction_c,
+                target,
+                self.model.pass_tau_s,
+                dt,
+            );
+        }
         let p = self.hot_params();
         let clamp_v = match self.design.limit.clamp {
             Clamp::DiodeString => p.diodes as f64 * p.diode_vf,
