@@ -158,3 +158,17 @@ fn amplifier_must_drive_the_stage_at_the_limit() {
     let e3 = expect_with(&d2, 100, 1);
     assert_eq!(check(&e3, "drive_current").verdict, Verdict::Marginal);
 }
+
+#[test]
+fn a_limit_below_the_rated_load_fails() {
+    // Diode string (n V_F - m V_BE) / R_s at its lowest corner (textbook clamp law): diodes
+    // 30 mV low, pass junctions 30 mV high, sense +5 %, all junctions at 40 degC, each 2 mV/degC
+    // lower (junction law): (3 x 0.59 - 2 x 0.65) / (0.39 x 1.05) = 1.148 A, below the rated
+    // 1.2 A: a unit at that corner cannot deliver its rating.
+    let d = lab();
+    let e = expect_with(&d, 200, 1);
+    let low = (3.0 * (0.62 - 0.03) - 2.0 * (0.68 - 0.03)) / (0.39 * 1.05);
+    let c = check(&e, "limit_above_rated_load");
+    assert!((c.value - low).abs() < 1e-9, "{} vs {low}", c.value);
+    assert_eq!(c.verdict, Verdict::Fail);
+}
