@@ -27,7 +27,12 @@ pub struct SimUnit {
 pub(super) enum InputFeed {
     /// The design's input: mean `peak - I/(4 f C)`, trough `peak - I/(2 f C)` (the trough
     /// sets dropout, the mean sets dissipation).
-    Design { peak: f64, ripple_per_a: f64 },
+    Design {
+        peak: f64,
+        ripple_per_a: f64,
+        /// Transformer sag, volts per ampere (from the design's regulation; 0 without one).
+        sag_per_a: f64,
+    },
     /// A programmable source at this voltage (0 when its output is off).
     Source(f64),
 }
@@ -35,7 +40,11 @@ pub(super) enum InputFeed {
 impl InputFeed {
     pub(super) fn mean(self, i: f64) -> f64 {
         match self {
-            InputFeed::Design { peak, ripple_per_a } => peak - 0.5 * ripple_per_a * i,
+            InputFeed::Design {
+                peak,
+                ripple_per_a,
+                sag_per_a,
+            } => peak - (sag_per_a + 0.5 * ripple_per_a) * i,
             InputFeed::Source(v) => v,
         }
     }
@@ -186,6 +195,7 @@ impl SimUnit {
         InputFeed::Design {
             peak: pt.vin_no_load,
             ripple_per_a,
+            sag_per_a: transformer_sag_per_a(&self.design, self.params.line),
         }
     }
 
@@ -208,7 +218,11 @@ impl SimUnit {
     pub(super) fn curve<'a>(&'a self, p: &'a Params, feed: InputFeed) -> Curve<'a> {
         let pt = evaluate(&self.design, p);
         let (peak, per_a) = match feed {
-            InputFeed::Design { peak, ripple_per_a } => (peak, ripple_per_a),
+            InputFeed::Design {
+                peak,
+                ripple_per_a,
+                sag_per_a,
+            } => (peak, ripple_per_a + sag_per_a),
             InputFeed::Source(vs) => (vs, 0.0),
         };
         // Line sensitivity, referred to the unit's own input.

@@ -7,6 +7,9 @@
 //!
 //! The model (behavioural, documented so that tests can check it against formulas):
 //! - Regulation: `V = V_set - R_out I` (V_set from `design::evaluate`, i.e. V_ref (1 + Rt/Rb)).
+//! - Input: on its own full-wave input the unit sees the no-load peak less the transformer's
+//!   sag (regulation over the rated current) and the reservoir's ripple, trough
+//!   `peak - I (sag + 1/(2 f C))`, mean `peak - I (sag + 1/(4 f C))`.
 //! - Dropout: `V <= V_in(I) - I R_s - V_CE(sat)` and `V <= V_aux - swing - m V_BE - I R_s`.
 //! - Knee: the clamp takes drive current as `exp((I R_s - V_th(V)) / (n N kT/q))` (Shockley's
 //!   law; with `KneeModel::PerJunction` n is the junctions in series that set the threshold,
@@ -37,7 +40,7 @@ mod tests;
 
 pub use as_built::SimUnit;
 pub use model::{
-    first_order_step, knee_width_v, pass_network, step_network, thermal_voltage, Controls,
-    HeatModel, KneeModel, LoadSetting, OperatingPoint, SourceSetting, Thermal, Truth, UnitError,
-    UnitFault, UnitModel, BOLTZMANN, ELEMENTARY_CHARGE,
+    first_order_step, knee_width_v, pass_network, step_network, thermal_voltage,
+    transformer_sag_per_a, Controls, HeatModel, KneeModel, LoadSetting, OperatingPoint,
+    SourceSetting, Thermal, Truth, UnitError, UnitFault, UnitModel, BOLTZMANN, ELEMENTARY_CHARGE,
 };

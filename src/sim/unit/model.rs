@@ -243,6 +243,20 @@ pub fn step_network(
     t.sink_c = ambient_c + n[2];
 }
 
+/// Transformer sag of a full-wave input, volts of rectified peak per ampere of load: the
+/// secondary falls from its no-load to its rated-load value, (V_nl - V_fl) sqrt(2) x line,
+/// over the rated current (a linear winding resistance; common practice). 0 without a stated
+/// regulation or for a DC input.
+pub fn transformer_sag_per_a(d: &Design, line: f64) -> f64 {
+    let inp = &d.input;
+    match (inp.kind, inp.secondary_vrms, inp.regulation_pct) {
+        (crate::design::InputKind::FullWave, Some(v), Some(r)) if d.load.max_current_a > 0.0 => {
+            v * r / 100.0 * std::f64::consts::SQRT_2 * line / d.load.max_current_a
+        }
+        _ => 0.0,
+    }
+}
+
 /// Width of the clamp's soft knee in volts across the sense resistor: N kT/q per junction
 /// whose drop sets the threshold (a string of n diodes: n N kT/q, Shockley's law for junctions
 /// in series; a limiter transistor: N kT/q).

@@ -514,3 +514,27 @@ fn the_case_lags_the_junction_and_the_heatsink_takes_minutes() {
     );
     assert!((u.case_temperature() - (ta + w * 0.55)).abs() < 0.01 * w * 0.55);
 }
+
+#[test]
+fn own_input_sags_to_the_rated_secondary_at_rated_load() {
+    // A transformer with 8 % regulation: 26 V RMS at the rated 1.2 A, 28.08 V with no load.
+    // Fed from its own input the unit sees the no-load peak with nothing drawn, and at rated
+    // load the rated-load peak less half the reservoir's ripple I / (2 f C) (textbook
+    // capacitor-input rectifier; the mean of a sawtooth ripple is half its height).
+    let text = include_str!("../../../samples/teaching-lab-0-20v.toml").replace(
+        "reservoir_tolerance_pct = 20\n",
+        "reservoir_tolerance_pct = 20\nregulation_pct = 8\n",
+    );
+    let d = Design::parse(&text, "lab-reg").unwrap();
+    let u = unit(&d, &[]);
+    let line = u.params().line;
+    let feed = u.feed(&Controls::default());
+    let c = u.params().reservoir_f;
+    let ripple = 1.2 / (2.0 * 50.0 * c);
+    let rated_peak = 26.0 * 2f64.sqrt() * line - 1.4;
+    let no_load_peak = 26.0 * 1.08 * 2f64.sqrt() * line - 1.4;
+    assert!((feed.mean(0.0) - no_load_peak).abs() < 1e-9);
+    assert!((feed.mean(1.2) - (rated_peak - 0.5 * ripple)).abs() < 1e-9);
+    // Without a stated regulation there is no sag.
+    assert_eq!(transformer_sag_per_a(&lab(), 1.0), 0.0);
+}
