@@ -1,5 +1,8 @@
 //! Design model speed: one corner evaluation (target well under a microsecond) and the full
-//! expectation with 100,000 Monte Carlo samples serialised to JSON (target under 0.5 s).
+//! expectation serialised to JSON, as `regulus design --json` computes it: 100,000 Monte Carlo
+//! samples over the operating envelope and 100,000 as built, the clamp and thermal relations
+//! solved together at every corner, the short-dwell network, SOA and input stage (target under
+//! 0.5 s).
 
 use criterion::{criterion_group, criterion_main, Criterion};
 use regulus::design::{evaluate, expect_with, Design, Params};

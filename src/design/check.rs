@@ -12,7 +12,7 @@ use std::path::Path;
 type Rule = fn(&Design) -> Checked;
 
 /// Every rule, in the order they are reported.
-const RULES: [(&str, Rule); 10] = [
+const RULES: [(&str, Rule); 11] = [
     ("input", rules::input),
     ("reference", rules::reference),
     ("feedback", rules::feedback),
@@ -21,6 +21,7 @@ const RULES: [(&str, Rule); 10] = [
     ("load", rules::load),
     ("output_range", output_range),
     ("aux", rules::aux),
+    ("amplifier", rules::amplifier),
     ("environment", rules::environment),
     ("rules", rules::rules),
 ];

@@ -5,59 +5,20 @@
 //! Pure: a [`Design`] in, an [`Expectation`] out.
 
 use super::file::{Clamp, Design, Resistor};
-use super::model::{
-    evaluate, is_adjustable, limit_current_at, pass_dissipation, sense_voltage, vi_curve, Params,
-    PassStress,
+use super::heating::{running_short_current, Condition, Solved};
+pub use super::judge::{Check, PartStress, Verdict};
+use super::model::{evaluate, is_adjustable, sense_voltage, vi_curve, Params, PassStress};
+use super::rectifier::RectifierExpect;
+use super::soa::{self, Candidate, SoaPoint};
+use super::stress::{
+    aux_and_drive, feedback_stress, DriveExpect, DriveInputs, HeatCollect, SelfHeated,
 };
-use super::tolerance::{for_each_corner, for_each_sample, stats, Band, Interval};
+use super::tolerance::{
+    for_each_corner, for_each_corner_in, for_each_sample, for_each_sample_in, stats, Band,
+    Envelope, Interval,
+};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
-
-/// Verdict of one check.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Verdict {
-    Ok,
-    Marginal,
-    Fail,
-}
-
-impl Verdict {
-    pub fn as_str(self) -> &'static str {
-        match self {
-            Verdict::Ok => "ok",
-            Verdict::Marginal => "marginal",
-            Verdict::Fail => "fail",
-        }
-    }
-}
-
-/// One design check: a value against a limit, with the margin (positive = inside).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct Check {
-    pub name: String,
-    pub verdict: Verdict,
-    pub value: f64,
-    pub limit: f64,
-    pub margin: f64,
-    pub unit: String,
-    pub detail: String,
-}
-
-/// Dissipation of one part.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct PartStress {
-    /// Worst-case dissipation in watts.
-    pub watts: f64,
-    /// The part's rating, when the design gives one.
-    pub rating_watts: Option<f64>,
-    /// Rating times the derating fraction: what the part may run at.
-    pub allowed_watts: Option<f64>,
-    /// Smallest standard resistor power rating that keeps within the derating rule.
-    pub suggested_rating_watts: Option<f64>,
-    /// The operating condition that gives this dissipation.
-    pub condition: String,
-}
 
 /// Output voltage range and the evaluated setting.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -84,6 +45,8 @@ pub struct InputExpect {
     pub min_v: f64,
     /// Largest peak-to-peak ripple at full load (I / (2 f C)).
     pub ripple_v: f64,
+    /// Full wave: transformer, bridge and reservoir at rated load (null for a DC input).
+    pub rectifier: Option<RectifierExpect>,
 }
 
 /// Pass-device thermal result.
@@ -93,9 +56,63 @@ pub struct ThermalExpect {
     pub theta_total: Option<f64>,
     /// Largest sink-to-ambient thermal resistance that keeps T_j at T_j max minus the margin.
     pub max_theta_sa: f64,
-    /// Limit current with the pass device at its worst-case junction temperature (the clamp's
-    /// drift with self-heating; a diode string's limit rises as the pass junctions heat).
+    /// Settled knee current of the nominal unit, clamp and thermal relations solved together
+    /// (a diode string's limit rises as the pass junctions heat).
     pub hot_limit_current: Option<f64>,
+    /// The self-heated operating points (short, knee, hardest point) and their assumptions.
+    pub self_heated: SelfHeated,
+}
+
+/// Bands of the quantities a bench measures, over part tolerances only, at the design's
+/// nominal ambient and input: what one unit as built may show on a bench at room temperature.
+/// The bench's judgement uses these; [`Expectation`]'s own bands are the operating envelope
+/// (ambient range and line tolerance too).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AsBuiltBands {
+    pub ambient_c: f64,
+    pub vout: Band,
+    pub sense_voltage: Band,
+    pub limit_current: Band,
+    pub short_circuit_current: Band,
+}
+
+/// As-built bands: worst case over the part corners and Monte Carlo over part draws.
+pub fn as_built_bands(d: &Design, samples: usize, seed: u64) -> AsBuiltBands {
+    let nom = evaluate(d, &Params::nominal(d));
+    let mut wc = [
+        Interval::point(nom.vout_set),
+        Interval::point(nom.sense_v),
+        Interval::point(nom.limit_current),
+        Interval::point(nom.short_circuit_current),
+    ];
+    for_each_corner_in(d, Envelope::AsBuilt, |p| {
+        let pt = evaluate(d, p);
+        for (w, v) in wc.iter_mut().zip([
+            pt.vout_set,
+            pt.sense_v,
+            pt.limit_current,
+            pt.short_circuit_current,
+        ]) {
+            w.include(v);
+        }
+        wc[3].include(running_short_current(d, p));
+    });
+    let mut c = Collect::default();
+    for_each_sample_in(d, Envelope::AsBuilt, samples, seed, |p| {
+        let pt = evaluate(d, p);
+        c.vout_set.push(pt.vout_set);
+        c.sense.push(pt.sense_v);
+        c.limit.push(pt.limit_current);
+        c.sc.push(pt.short_circuit_current);
+        c.sc.push(running_short_current(d, p));
+    });
+    AsBuiltBands {
+        ambient_c: d.environment.ambient_c,
+        vout: band(nom.vout_set, wc[0], &mut c.vout_set),
+        sense_voltage: band(nom.sense_v, wc[1], &mut c.sense),
+        limit_current: band(nom.limit_current, wc[2], &mut c.limit),
+        short_circuit_current: band(nom.short_circuit_current, wc[3], &mut c.sc),
+    }
 }
 
 /// Everything the design model expects of a unit built to this design.
@@ -106,6 +123,9 @@ pub struct Expectation {
     pub vout: VoutExpect,
     pub sense_voltage: Band,
     pub limit_current: Band,
+    /// Into a short applied to a cold unit or to a running one (pass junction at its
+    /// rated-load steady state, as a bench finds it after the earlier steps): worst case and
+    /// Monte Carlo span both states (two values per drawn unit); the nominal is the cold value.
     pub short_circuit_current: Band,
     /// I_sc / I_knee, nominal (1.0 for a sharp clamp).
     pub foldback_ratio: f64,
@@ -116,6 +136,14 @@ pub struct Expectation {
     /// Worst-case pass-device junction temperature (null without a heatsink value).
     pub junction_temp_c: Option<f64>,
     pub thermal: ThermalExpect,
+    /// The pass device's operating points against its derated DC safe operating area (null
+    /// without `[pass.soa]` in the design).
+    pub soa: Option<Vec<SoaPoint>>,
+    /// Bands over part tolerances only, at nominal ambient and input (judge bench units by
+    /// these); the bands above are the operating envelope.
+    pub as_built: AsBuiltBands,
+    /// The auxiliary rail at the lowest input and the pass stage's drive.
+    pub drive: DriveExpect,
     pub checks: Vec<Check>,
     /// Nominal expected V-I curve, (amperes, volts) pairs.
     pub curve: Vec<(f64, f64)>,
@@ -179,7 +207,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
     let nominal_params = Params::nominal(d);
     let nom = evaluate(d, &nominal_params);
 
-    // Worst case over all corners.
+    // Worst case over all corners, with the self-heated points solved per corner.
     let mut wc_vmin = Interval::point(nom.vout_min);
     let mut wc_vmax = Interval::point(nom.vout_max);
     let mut wc_vset = Interval::point(nom.vout_set);
@@ -189,12 +217,11 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
     let mut vin_max = nom.vin_no_load;
     let mut vin_min = nom.vin_trough;
     let mut ripple = nom.ripple_v;
-    let mut pass_w = pass_dissipation(d, &nominal_params, &nom);
-    let mut sense_w =
-        nom.limit_current.max(nom.short_circuit_current).powi(2) * nominal_params.r_sense;
     let mut headroom = f64::INFINITY;
     let mut corner_low: Option<(f64, Params)> = None;
     let mut corner_high: Option<(f64, Params)> = None;
+    let mut heat = HeatCollect::new(d);
+    heat.include(d, &nominal_params);
     let max_load = d.load.max_current_a;
     for_each_corner(d, |p| {
         let pt = evaluate(d, p);
@@ -204,14 +231,11 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         wc_sense.include(pt.sense_v);
         wc_lim.include(pt.limit_current);
         wc_sc.include(pt.short_circuit_current);
+        wc_sc.include(running_short_current(d, p));
         vin_max = vin_max.max(pt.vin_no_load);
         vin_min = vin_min.min(pt.vin_trough);
         ripple = ripple.max(pt.ripple_v);
-        let pw = pass_dissipation(d, p, &pt);
-        if pw.0 > pass_w.0 {
-            pass_w = pw;
-        }
-        sense_w = sense_w.max(pt.limit_current.max(pt.short_circuit_current).powi(2) * p.r_sense);
+        heat.include(d, p);
         headroom =
             headroom.min(pt.vin_trough - pt.vout_max - max_load.min(pt.limit_current) * p.r_sense);
         if corner_low
@@ -227,6 +251,10 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
             corner_high = Some((pt.limit_current, p.clone()));
         }
     });
+    let (pass_pt, sense_pt) = heat.pass_and_sense();
+    let self_heated = heat.finish(d, &nominal_params);
+    let pass_pt = pass_pt.unwrap_or(self_heated.worst);
+    let sense_pt = sense_pt.unwrap_or(self_heated.short_nominal);
 
     // Monte Carlo.
     let mut c = Collect::default();
@@ -238,6 +266,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         c.sense.push(pt.sense_v);
         c.limit.push(pt.limit_current);
         c.sc.push(pt.short_circuit_current);
+        c.sc.push(running_short_current(d, p));
     });
 
     let vout = VoutExpect {
@@ -253,7 +282,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
     let short_circuit_current = band(nom.short_circuit_current, wc_sc, &mut c.sc);
     let sense_voltage_band = band(nom.sense_v, wc_sense, &mut c.sense);
 
-    // Dissipation.
+    // Dissipation, at the settled (self-heated) points.
     let rules = &d.rules;
     let mut dissipation = BTreeMap::new();
     let resistor_stress = |r: &Resistor, watts: f64, condition: String| PartStress {
@@ -267,58 +296,94 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         "sense_resistor".to_string(),
         resistor_stress(
             &d.limit.sense,
-            sense_w,
-            "at the highest worst-case limit or short-circuit current".to_string(),
+            sense_pt.sense_watts,
+            format!(
+                "{:.3} A settled ({}) at {:.0} degC ambient, clamp and heating solved together",
+                sense_pt.current_a,
+                condition_words(sense_pt.condition),
+                sense_pt.ambient_c
+            ),
         ),
     );
+    // The power rating holds with the case at 25 degC; it derates linearly to zero at T_j max.
+    let pass_case_c = soa::case_temperature(d, pass_pt.ambient_c, pass_pt.pass_watts);
+    let pass_rating = d.pass.power_rating_w * soa::case_factor(d, pass_case_c);
     dissipation.insert(
         "pass_device".to_string(),
         PartStress {
-            watts: pass_w.0,
-            rating_watts: Some(d.pass.power_rating_w),
-            allowed_watts: Some(d.pass.power_rating_w * rules.semiconductor_derating),
+            watts: pass_pt.pass_watts,
+            rating_watts: Some(pass_rating),
+            allowed_watts: Some(pass_rating * rules.semiconductor_derating),
             suggested_rating_watts: None,
-            condition: match pass_w.1 {
-                PassStress::Limit => format!(
-                    "on the limit line at {:.3} A with the input at its highest ({:.2} V)",
-                    pass_w.2, vin_max
-                ),
-                PassStress::FullLoadLowOutput => format!(
-                    "full load {:.3} A at the lowest output with the input at its highest ({:.2} V)",
-                    pass_w.2, vin_max
-                ),
-            },
+            condition: format!(
+                "{}; rating {:.0} W derated to {:.1} W at its {:.0} degC case",
+                match pass_pt.stress {
+                    PassStress::Limit => format!(
+                        "on the limit line at {:.3} A settled, input {:.2} V, {:.0} degC ambient",
+                        pass_pt.current_a, pass_pt.input_v, pass_pt.ambient_c
+                    ),
+                    PassStress::FullLoadLowOutput => format!(
+                        "full load {:.3} A at the lowest output, input {:.2} V, {:.0} degC ambient",
+                        pass_pt.current_a, pass_pt.input_v, pass_pt.ambient_c
+                    ),
+                },
+                d.pass.power_rating_w,
+                pass_rating,
+                pass_case_c
+            ),
         },
     );
+    let soa_points = soa::soa_points(
+        d,
+        &soa_candidates(d, &self_heated, &pass_pt, vin_max, wc_vmin.min),
+    );
     {
-        let t = &d.feedback.top;
-        let b = &d.feedback.bottom;
-        let i_fb = wc_vmax.max
-            / (t.ohms * (1.0 - t.tolerance_pct / 100.0) + b.ohms * (1.0 - b.tolerance_pct / 100.0));
-        dissipation.insert(
-            "feedback_top".to_string(),
-            resistor_stress(
-                t,
-                i_fb * i_fb * t.ohms * (1.0 + t.tolerance_pct / 100.0),
-                "at the highest output".to_string(),
-            ),
-        );
-        dissipation.insert(
-            "feedback_bottom".to_string(),
-            resistor_stress(
-                b,
-                i_fb * i_fb * b.ohms * (1.0 + b.tolerance_pct / 100.0),
-                "at the highest output".to_string(),
-            ),
-        );
+        let (st, sb) = feedback_stress(d);
+        for (name, r, s) in [
+            ("feedback_top", &d.feedback.top, st),
+            ("feedback_bottom", &d.feedback.bottom, sb),
+        ] {
+            let mut ps = resistor_stress(
+                r,
+                s.watts,
+                if r.pot {
+                    format!(
+                        "{:.0} ohm of the potentiometer's track in use ({:.0} % of it) at {:.2} V out",
+                        s.ohms_in_use,
+                        s.track_share * 100.0,
+                        s.output_v
+                    )
+                } else {
+                    format!("at {:.2} V out (highest corner)", s.output_v)
+                },
+            );
+            if r.pot {
+                // The rating spreads over the whole track: the part in use carries its share.
+                ps.rating_watts = r.rating_w.map(|w| w * s.track_share);
+                ps.allowed_watts = ps.rating_watts.map(|w| w * rules.resistor_derating);
+                ps.suggested_rating_watts =
+                    suggest_rating(s.watts / s.track_share.max(1e-12), rules.resistor_derating);
+            }
+            dissipation.insert(name.to_string(), ps);
+        }
     }
-    let mut drive_headroom = None;
-    if let Some(a) = &d.aux {
-        let drop_nom = (nom.vin_no_load - a.volts).max(0.0);
-        let drop_max = (vin_max - a.volts).max(0.0);
-        let r_c = a.collector_share * drop_nom / a.current_a;
+    let drive = aux_and_drive(
+        d,
+        &DriveInputs {
+            vin_nominal: nom.vin_no_load,
+            vin_min,
+            vout_max: wc_vmax.max,
+            rated_current: wc_lim.max.min(max_load.max(0.0)),
+            limit_current_min: wc_lim.min,
+            limit_current_max: self_heated
+                .short_current
+                .max
+                .max(self_heated.knee_current.max),
+        },
+    );
+    if let (Some(a), Some(r_c)) = (&d.aux, drive.collector_ohms) {
         let w_r = a.current_a * a.current_a * r_c;
-        let w_t = ((drop_max - a.current_a * r_c) * a.current_a).max(0.0);
+        let w_t = ((vin_max - a.volts - a.current_a * r_c) * a.current_a).max(0.0);
         dissipation.insert(
             "aux_transistor".to_string(),
             PartStress {
@@ -332,7 +397,7 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
                 ),
             },
         );
-        if a.collector_share > 0.0 {
+        if r_c > 0.0 {
             dissipation.insert(
                 "aux_collector_resistor".to_string(),
                 PartStress {
@@ -342,140 +407,45 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
                         .collector_resistor_rating_w
                         .map(|w| w * rules.resistor_derating),
                     suggested_rating_watts: suggest_rating(w_r, rules.resistor_derating),
-                    condition: format!(
-                        "{:.0} ohm taking {:.0} % of the nominal drop",
-                        r_c,
-                        a.collector_share * 100.0
-                    ),
+                    condition: match a.collector_ohms {
+                        Some(_) => format!("{r_c:.0} ohm fitted, full aux current"),
+                        None => format!(
+                            "{:.0} ohm taking {:.0} % of the nominal drop",
+                            r_c,
+                            a.collector_share * 100.0
+                        ),
+                    },
                 },
             );
         }
-        // The amplifier must drive the pass stage's base above the highest output plus the
-        // sense drop plus the pass junctions.
-        let need = wc_vmax.max
-            + wc_lim.max.min(max_load.max(0.0)) * d.limit.sense.ohms
-            + d.pass.stage.junctions() as f64 * (d.pass.vbe_v + d.pass.vbe_spread_v);
-        drive_headroom = Some(a.volts - a.amplifier_swing_loss_v - need);
     }
 
-    // Thermal.
+    // Thermal, at the settled points.
     let p = &d.pass;
-    let ta = d.environment.ambient_max_c;
-    let theta_fixed = p.theta_jc + p.theta_cs;
-    let tj_target = p.tj_max_c - rules.tj_margin_c;
-    let max_theta_sa = if pass_w.0 > 0.0 {
-        (tj_target - ta) / pass_w.0 - theta_fixed
-    } else {
-        f64::INFINITY
+    let theta_total = p.theta_sa.map(|s| p.theta_jc + p.theta_cs + s);
+    let junction_temp_c = theta_total.map(|_| self_heated.worst.pass_junction_c);
+    let thermal = ThermalExpect {
+        theta_total,
+        max_theta_sa: self_heated.max_theta_sa,
+        hot_limit_current: Some(self_heated.knee_nominal.current_a),
+        self_heated,
     };
-    let theta_total = p.theta_sa.map(|s| theta_fixed + s);
-    let junction_temp_c = theta_total.map(|th| ta + pass_w.0 * th);
-    let hot_limit_current = junction_temp_c.map(|tj| {
-        let mut hp = nominal_params.clone();
-        hp.pass_junction_c = tj;
-        limit_current_at(d, &hp, nom.vout_set)
-    });
 
-    // Checks.
-    let mut checks = Vec::new();
-    {
-        let margin = wc_lim.min - max_load;
-        let verdict = if wc_lim.min >= max_load {
-            Verdict::Ok
-        } else if nom.limit_current >= max_load {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: "limit_above_rated_load".into(),
-            verdict,
-            value: wc_lim.min,
-            limit: max_load,
-            margin,
-            unit: "A".into(),
-            detail: "the lowest worst-case limit must stay above the rated load current".into(),
-        });
-    }
-    for (name, s) in &dissipation {
-        let (Some(rating), Some(allowed)) = (s.rating_watts, s.allowed_watts) else {
-            continue;
-        };
-        let verdict = if s.watts <= allowed {
-            Verdict::Ok
-        } else if s.watts <= rating {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: format!("dissipation_{name}"),
-            verdict,
-            value: s.watts,
-            limit: allowed,
-            margin: allowed - s.watts,
-            unit: "W".into(),
-            detail: format!("{name} within its derated rating ({} W rated)", rating),
-        });
-    }
-    {
-        let need = p.vce_min_v;
-        let verdict = if headroom >= need + rules.headroom_margin_v {
-            Verdict::Ok
-        } else if headroom >= need {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: "headroom".into(),
-            verdict,
-            value: headroom,
-            limit: need,
-            margin: headroom - need,
-            unit: "V".into(),
-            detail: "lowest input minus highest output minus sense drop must leave the pass device's minimum V_CE".into(),
-        });
-    }
-    if let Some(h) = drive_headroom {
-        let verdict = if h >= rules.headroom_margin_v {
-            Verdict::Ok
-        } else if h >= 0.0 {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: "drive_headroom".into(),
-            verdict,
-            value: h,
-            limit: 0.0,
-            margin: h,
-            unit: "V".into(),
-            detail: "aux rail minus amplifier swing loss must reach the highest output plus sense drop plus pass junctions".into(),
-        });
-    }
-    if let Some(tj) = junction_temp_c {
-        let verdict = if tj <= tj_target {
-            Verdict::Ok
-        } else if tj <= p.tj_max_c {
-            Verdict::Marginal
-        } else {
-            Verdict::Fail
-        };
-        checks.push(Check {
-            name: "junction_temperature".into(),
-            verdict,
-            value: tj,
-            limit: tj_target,
-            margin: tj_target - tj,
-            unit: "degC".into(),
-            detail: format!(
-                "pass device T_j at the highest ambient ({ta} degC) within T_j max {} degC less a {} degC margin",
-                p.tj_max_c, rules.tj_margin_c
-            ),
-        });
-    }
+    let rectifier = super::rectifier::rectifier(d);
+    let checks = super::judge::checks(
+        d,
+        &super::judge::Judged {
+            limit_min: wc_lim.min,
+            limit_nominal: nom.limit_current,
+            dissipation: &dissipation,
+            headroom,
+            drive: &drive,
+            junction_temp_c,
+            self_heated: &thermal.self_heated,
+            soa: soa_points.as_deref(),
+            rectifier: rectifier.as_ref(),
+        },
+    );
 
     let curve = vi_curve(d, &nominal_params);
     let curve_low = corner_low
@@ -499,25 +469,96 @@ pub fn expect_with(d: &Design, samples: usize, seed: u64) -> Expectation {
         short_circuit_current,
         foldback_ratio,
         input: InputExpect {
-            nominal_v: evaluate(d, &nominal_params).vin_no_load,
+            nominal_v: nom.vin_no_load,
             max_v: vin_max,
             min_v: vin_min,
             ripple_v: ripple,
+            rectifier: rectifier.clone(),
         },
         dissipation,
         headroom_volts: headroom,
         junction_temp_c,
-        thermal: ThermalExpect {
-            theta_total,
-            max_theta_sa,
-            hot_limit_current,
-        },
+        thermal,
+        soa: soa_points,
+        as_built: as_built_bands(d, samples, seed.wrapping_add(1)),
+        drive,
         checks,
         curve,
         curve_low,
         curve_high,
         monte_carlo_samples: samples,
         seed,
+    }
+}
+
+/// The operating points checked against the SOA: the settled shorts (nominal unit and hottest
+/// corner), the hardest point, full load at the lowest output from the highest input, and for
+/// foldback the nominal unit's limit line at high line.
+fn soa_candidates(
+    d: &Design,
+    sh: &SelfHeated,
+    hardest: &Solved,
+    vin_max: f64,
+    vout_min: f64,
+) -> Vec<Candidate> {
+    let vce = |s: &Solved| {
+        if s.current_a > 0.0 {
+            s.pass_watts / s.current_a
+        } else {
+            0.0
+        }
+    };
+    let mut out = vec![
+        (
+            "settled short, nominal unit".to_string(),
+            vce(&sh.short_nominal),
+            sh.short_nominal.current_a,
+            sh.short_nominal.ambient_c,
+        ),
+        (
+            "settled short, hottest corner".to_string(),
+            vce(&sh.short_worst),
+            sh.short_worst.current_a,
+            sh.short_worst.ambient_c,
+        ),
+        (
+            "the hardest point".to_string(),
+            vce(hardest),
+            hardest.current_a,
+            hardest.ambient_c,
+        ),
+    ];
+    let rated = d.load.max_current_a;
+    out.push((
+        "full load at the lowest output, highest input".to_string(),
+        vin_max - vout_min - rated * d.limit.sense.ohms,
+        rated,
+        d.environment.ambient_max_c,
+    ));
+    if d.limit.clamp == Clamp::Foldback {
+        let mut p = Params::nominal(d);
+        p.line = 1.0 + d.input.line_tolerance_pct / 100.0;
+        let pt = evaluate(d, &p);
+        for k in 0..=16 {
+            let v = pt.vout_set * k as f64 / 16.0;
+            let i = super::model::limit_current_at(d, &p, v).max(0.0);
+            out.push((
+                format!("foldback line at {v:.2} V, high line"),
+                pt.vin_no_load - v - i * p.r_sense,
+                i,
+                d.environment.ambient_max_c,
+            ));
+        }
+    }
+    out
+}
+
+/// A condition in words.
+pub fn condition_words(c: Condition) -> &'static str {
+    match c {
+        Condition::Short => "sustained short",
+        Condition::Knee => "at the knee",
+        Condition::Worst => "the pass device's hardest point",
     }
 }
 

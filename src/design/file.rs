@@ -79,6 +79,18 @@ pub struct Input {
     /// Full wave: reservoir capacitor tolerance, +- percent (electrolytics: 20 % is common practice).
     #[serde(default = "default_cap_tolerance")]
     pub reservoir_tolerance_pct: f64,
+    /// Full wave: transformer regulation, percent: the no-load secondary is `secondary_vrms`
+    /// (at rated load) times 1 + regulation / 100. Unset: both taken as `secondary_vrms`.
+    #[serde(default)]
+    pub regulation_pct: Option<f64>,
+    /// Full wave: the reservoir's rated ripple current (RMS amperes).
+    #[serde(default)]
+    pub reservoir_ripple_rating_a: Option<f64>,
+    /// Full wave: the bridge's average forward current rating and its surge rating (I_FSM).
+    #[serde(default)]
+    pub rectifier_rating_a: Option<f64>,
+    #[serde(default)]
+    pub rectifier_surge_rating_a: Option<f64>,
 }
 
 fn default_line_tolerance() -> f64 {
@@ -181,6 +193,46 @@ pub struct Pass {
     /// Heatsink; absent when not chosen yet (the model then reports the largest allowed).
     #[serde(default)]
     pub theta_sa: Option<f64>,
+    /// Lowest current gain of the whole pass stage (h_FE; a Darlington's is the product of
+    /// both), at the limit current: the drive the amplifier must give is I / gain. Optional.
+    #[serde(default)]
+    pub current_gain: Option<f64>,
+    /// The device's DC safe operating area, as the datasheet draws it (case at 25 degC).
+    #[serde(default)]
+    pub soa: Option<Soa>,
+    /// Heat capacities (or time constants) of the thermal path, for how long a short may last.
+    #[serde(default)]
+    pub thermal_mass: Option<ThermalMass>,
+}
+
+/// The thermal path's heat capacities: the junction (die and header, charged through
+/// theta_jc), the case (through theta_cs) and the heatsink (through theta_sa). Each stage is
+/// given either as a heat capacity in J/degC or as its time constant tau = theta x C in
+/// seconds.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ThermalMass {
+    #[serde(default)]
+    pub junction_j_per_c: Option<f64>,
+    #[serde(default)]
+    pub junction_tau_s: Option<f64>,
+    #[serde(default)]
+    pub case_j_per_c: Option<f64>,
+    #[serde(default)]
+    pub case_tau_s: Option<f64>,
+    #[serde(default)]
+    pub sink_j_per_c: Option<f64>,
+    #[serde(default)]
+    pub sink_tau_s: Option<f64>,
+}
+
+/// A datasheet-style DC safe operating area: points (V_CE volts, I_C amperes) along the DC
+/// line, V_CE rising, joined straight on log-log axes (the thermal limit and the steeper
+/// second-breakdown segment); beyond the last point the device may not be used.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Soa {
+    pub points: Vec<[f64; 2]>,
 }
 
 fn default_junction() -> f64 {
@@ -248,6 +300,30 @@ pub struct Limit {
     pub divider_top: Option<Resistor>,
     #[serde(default)]
     pub divider_bottom: Option<Resistor>,
+    /// Where the clamp's junctions sit thermally: in free air at ambient (default) or on the
+    /// pass device's heatsink (then at the sink's temperature).
+    #[serde(default)]
+    pub clamp_mount: ClampMount,
+}
+
+/// Thermal coupling of the clamp's junctions (diodes, limiter transistor).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum ClampMount {
+    /// In free air at the ambient temperature (their own dissipation is small).
+    #[default]
+    Ambient,
+    /// On the pass device's heatsink: at T_a + P theta_sa.
+    Heatsink,
+}
+
+impl ClampMount {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ClampMount::Ambient => "ambient",
+            ClampMount::Heatsink => "heatsink",
+        }
+    }
 }
 
 /// The load the design must serve.
@@ -268,15 +344,36 @@ pub struct Load {
 pub struct Aux {
     pub volts: f64,
     pub current_a: f64,
-    /// Share (0-0.9) of the aux transistor's drop taken by a series collector resistor.
+    /// Share (0-0.9) of the aux transistor's nominal drop taken by a series collector resistor.
     #[serde(default)]
     pub collector_share: f64,
+    /// The collector resistor fitted, ohms (instead of `collector_share`; `regulus size`
+    /// writes a preferred value here).
+    #[serde(default)]
+    pub collector_ohms: Option<f64>,
     pub transistor_rating_w: f64,
     #[serde(default)]
     pub collector_resistor_rating_w: Option<f64>,
     /// Volts the error amplifier's output stays below its supply (output swing limit).
     #[serde(default = "default_swing_loss")]
     pub amplifier_swing_loss_v: f64,
+    /// Collector-emitter voltage below which the aux transistor saturates and the rail sags
+    /// (about 0.2 V for a small-signal transistor, from memory).
+    #[serde(default = "default_aux_vce_sat")]
+    pub vce_sat_v: f64,
+}
+
+fn default_aux_vce_sat() -> f64 {
+    0.2
+}
+
+/// The error amplifier's output stage.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Amplifier {
+    /// The most current the amplifier's output sources (into the pass stage's base, and into
+    /// the clamp once it conducts), amperes.
+    pub output_current_a: f64,
 }
 
 fn default_swing_loss() -> f64 {
@@ -386,6 +483,8 @@ pub struct Design {
     pub load: Load,
     #[serde(default)]
     pub aux: Option<Aux>,
+    #[serde(default)]
+    pub amplifier: Option<Amplifier>,
     #[serde(default)]
     pub environment: Environment,
     #[serde(default)]

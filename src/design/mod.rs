@@ -6,16 +6,25 @@
 //! which reads the design file. This file only declares and re-exports.
 
 mod check;
+pub mod dwell;
+pub mod edit;
 pub mod eseries;
 pub mod expect;
 pub mod file;
+pub mod heating;
+mod judge;
 pub mod model;
+pub mod rectifier;
 pub mod render;
 pub mod rules;
 pub mod sizing;
+pub mod soa;
+pub mod stress;
 pub mod tolerance;
 
-pub use expect::{expect, expect_with, Check, Expectation, PartStress, Verdict};
-pub use file::{Clamp, Design, DesignError, InputKind, Stage};
+pub use expect::{
+    as_built_bands, expect, expect_with, AsBuiltBands, Check, Expectation, PartStress, Verdict,
+};
+pub use file::{Clamp, ClampMount, Design, DesignError, InputKind, Stage};
 pub use model::{evaluate, Params, Point};
-pub use tolerance::{Band, Interval, McStats};
+pub use tolerance::{Band, Envelope, Interval, McStats};

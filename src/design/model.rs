@@ -154,6 +154,12 @@ impl Params {
         let mut p = nominal.clone();
         for s in spreads {
             let v = match s.dist {
+                Dist::Normal if s.parts > 1 => {
+                    let sum: f64 = (0..s.parts)
+                        .map(|_| rng.within(s.nominal, (s.hi - s.lo) / 2.0))
+                        .sum();
+                    sum / s.parts as f64
+                }
                 Dist::Normal => rng.within(s.nominal, (s.hi - s.lo) / 2.0),
                 Dist::Uniform => rng.range(s.lo, s.hi),
             };
@@ -172,6 +178,16 @@ pub enum Dist {
     Uniform,
 }
 
+/// Whether a parameter is a part's tolerance or the unit's surroundings.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Scope {
+    /// A part's tolerance: fixed once the unit is built.
+    Part,
+    /// The operating envelope: ambient temperature and line.
+    Environment,
+}
+
 /// One uncertain parameter: its range and how to apply a value to [`Params`].
 #[derive(Clone, Copy)]
 pub struct Spread {
@@ -180,6 +196,10 @@ pub struct Spread {
     pub lo: f64,
     pub hi: f64,
     pub dist: Dist,
+    /// Parts drawn independently whose mean the parameter is (the diodes of a string: the
+    /// string's drop is n times the mean of n independent drops); 1 for a single part.
+    pub parts: u32,
+    pub scope: Scope,
     pub set: fn(&mut Params, f64),
 }
 
@@ -190,14 +210,24 @@ fn tol(v: f64, pct: f64) -> (f64, f64) {
 /// The uncertain parameters of a design (only those that matter for its topology and vary).
 pub fn spreads(d: &Design) -> Vec<Spread> {
     let mut out = Vec::new();
+    let diodes = match d.limit.clamp {
+        Clamp::DiodeString => d.limit.diodes.unwrap_or(1).max(1),
+        _ => 1,
+    };
     let mut push = |name, nominal: f64, (lo, hi): (f64, f64), dist, set: fn(&mut Params, f64)| {
         if hi > lo {
+            let scope = match name {
+                "ambient" | "line" => Scope::Environment,
+                _ => Scope::Part,
+            };
             out.push(Spread {
                 name,
                 nominal,
                 lo,
                 hi,
                 dist,
+                parts: if name == "diode_vf" { diodes } else { 1 },
+                scope,
                 set,
             });
         }
@@ -359,7 +389,12 @@ pub fn evaluate(d: &Design, p: &Params) -> Point {
     let (vin_no_load, ripple_v) = match d.input.kind {
         InputKind::Dc => (d.input.volts.unwrap_or(0.0) * p.line, 0.0),
         InputKind::FullWave => {
-            let peak = d.input.secondary_vrms.unwrap_or(0.0) * std::f64::consts::SQRT_2 * p.line
+            // With a stated regulation the no-load secondary is higher than the rated-load one.
+            let reg = d.input.regulation_pct.unwrap_or(0.0) / 100.0;
+            let peak = d.input.secondary_vrms.unwrap_or(0.0)
+                * (1.0 + reg)
+                * std::f64::consts::SQRT_2
+                * p.line
                 - d.input.rectifier_drop_v;
             let ripple = if p.reservoir_f > 0.0 {
                 d.load.max_current_a / (2.0 * d.input.mains_hz * p.reservoir_f)
@@ -369,6 +404,17 @@ pub fn evaluate(d: &Design, p: &Params) -> Point {
             (peak, ripple)
         }
     };
+    // The trough at full load starts from the rated-load (not the no-load) peak.
+    let full_load_peak = match d.input.kind {
+        InputKind::FullWave => {
+            vin_no_load
+                - d.input.secondary_vrms.unwrap_or(0.0) * d.input.regulation_pct.unwrap_or(0.0)
+                    / 100.0
+                    * std::f64::consts::SQRT_2
+                    * p.line
+        }
+        InputKind::Dc => vin_no_load,
+    };
     Point {
         vout_min,
         vout_max,
@@ -377,7 +423,7 @@ pub fn evaluate(d: &Design, p: &Params) -> Point {
         limit_current,
         short_circuit_current,
         vin_no_load,
-        vin_trough: vin_no_load - ripple_v,
+        vin_trough: full_load_peak - ripple_v,
         ripple_v,
     }
 }

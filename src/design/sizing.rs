@@ -8,6 +8,61 @@
 
 use super::eseries::{self, Series};
 use super::file::{Clamp, Design, Resistor, Stage};
+use super::model::{is_adjustable, nominal_output_range, output_range};
+
+/// How an ideal value becomes a preferred one.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Rounding {
+    Nearest,
+    /// The next preferred value at or above the ideal one.
+    Up,
+    /// The next preferred value at or below the ideal one.
+    Down,
+}
+
+impl Rounding {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Rounding::Nearest => "nearest",
+            Rounding::Up => "next up",
+            Rounding::Down => "next down",
+        }
+    }
+    /// Round `value` to `series` this way.
+    pub fn round(self, value: f64, series: Series) -> Option<f64> {
+        match self {
+            Rounding::Nearest => eseries::nearest(value, series),
+            Rounding::Up => eseries::next_up(value, series),
+            Rounding::Down => eseries::next_down(value, series),
+        }
+    }
+    /// The default for a clamp's sense resistor: next down for a sharp clamp (the nominal
+    /// limit stays at or above the target), nearest for foldback (the divider is re-solved).
+    pub fn default_for(clamp: Clamp) -> Rounding {
+        match clamp {
+            Clamp::DiodeString | Clamp::Transistor => Rounding::Down,
+            Clamp::Foldback => Rounding::Nearest,
+        }
+    }
+}
+
+/// The aux rail's collector resistor to size: the share of the nominal drop it should take.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CollectorTarget {
+    pub share: f64,
+    pub vin_nominal: f64,
+    pub aux_volts: f64,
+    pub aux_current_a: f64,
+}
+
+/// The collector resistor chosen, with the share and dissipation that result.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CollectorChoice {
+    pub ideal_ohms: f64,
+    pub ohms: f64,
+    pub share: f64,
+    pub watts: f64,
+}
 
 /// What the user asks for.
 #[derive(Debug, Clone, PartialEq)]
@@ -29,6 +84,10 @@ pub struct Targets {
     pub series: Series,
     /// Foldback: the divider's bottom resistor (ohms), a fixed choice; the top is computed.
     pub divider_bottom_ohms: f64,
+    /// How every value is rounded to the series (None: [`Rounding::default_for`] the clamp).
+    pub rounding: Option<Rounding>,
+    /// The aux rail's collector resistor, when the design has one to size.
+    pub collector: Option<CollectorTarget>,
 }
 
 /// The parts chosen.
@@ -42,6 +101,10 @@ pub struct Choice {
     /// Foldback divider (top, bottom) in ohms, and the ideal ratio k before rounding.
     pub divider: Option<(f64, f64)>,
     pub ideal_k: Option<f64>,
+    /// The rounding used, and whether it was the clamp's default.
+    pub rounding: Rounding,
+    pub rounding_is_default: bool,
+    pub collector: Option<CollectorChoice>,
 }
 
 /// Targets that cannot be met, with what to change.
@@ -66,7 +129,13 @@ pub fn choose(t: &Targets) -> Result<Choice, SizeError> {
         )));
     }
     let target = t.max_current_a * (1.0 + t.margin_pct / 100.0);
-    let tol = t.series.tolerance_pct().min(5.0);
+    // The tolerance the series is made for (IEC 60063 usage: E12 10 %, E24 5 %, E96 1 %).
+    let tol = t.series.tolerance_pct();
+    let rounding = t.rounding.unwrap_or(Rounding::default_for(t.clamp));
+    let collector = match &t.collector {
+        Some(c) => Some(size_collector(c, t.series, rounding)?),
+        None => None,
+    };
     match t.clamp {
         Clamp::DiodeString | Clamp::Transistor => {
             let (vs, diodes) = if t.clamp == Clamp::DiodeString {
@@ -83,8 +152,8 @@ pub fn choose(t: &Targets) -> Result<Choice, SizeError> {
                 (t.junction_v, None)
             };
             let ideal = vs / target;
-            // Next value down keeps the nominal limit at or above the target.
-            let r = eseries::next_down(ideal, t.series)
+            let r = rounding
+                .round(ideal, t.series)
                 .ok_or_else(|| SizeError("no preferred value fits".into()))?;
             Ok(Choice {
                 ideal_sense_ohms: ideal,
@@ -93,6 +162,9 @@ pub fn choose(t: &Targets) -> Result<Choice, SizeError> {
                 diodes,
                 divider: None,
                 ideal_k: None,
+                rounding,
+                rounding_is_default: t.rounding.is_none(),
+                collector,
             })
         }
         Clamp::Foldback => {
@@ -122,7 +194,8 @@ pub fn choose(t: &Targets) -> Result<Choice, SizeError> {
                 )));
             }
             let ideal = vbe / (k * isc);
-            let r = eseries::nearest(ideal, t.series)
+            let r = rounding
+                .round(ideal, t.series)
                 .ok_or_else(|| SizeError("no preferred value fits".into()))?;
             // Re-solve k for the rounded sense resistor so the knee stays on target:
             // I_knee k R = V_BE + (1 - k) V  =>  k = (V_BE + V) / (I_knee R + V).
@@ -133,7 +206,8 @@ pub fn choose(t: &Targets) -> Result<Choice, SizeError> {
                     "the divider's bottom resistor must be positive".into(),
                 ));
             }
-            let top = eseries::nearest(bottom * (1.0 / k2 - 1.0), t.series)
+            let top = rounding
+                .round(bottom * (1.0 / k2 - 1.0), t.series)
                 .ok_or_else(|| SizeError("no preferred value fits the divider".into()))?;
             Ok(Choice {
                 ideal_sense_ohms: ideal,
@@ -142,9 +216,79 @@ pub fn choose(t: &Targets) -> Result<Choice, SizeError> {
                 diodes: None,
                 divider: Some((top, bottom)),
                 ideal_k: Some(k),
+                rounding,
+                rounding_is_default: t.rounding.is_none(),
+                collector,
             })
         }
     }
+}
+
+/// Collector resistor R_c = share (V_in - V_aux) / I_aux (Ohm's law), as a preferred value, with
+/// the share and I^2 R dissipation that result.
+pub fn size_collector(
+    c: &CollectorTarget,
+    series: Series,
+    rounding: Rounding,
+) -> Result<CollectorChoice, SizeError> {
+    let drop = c.vin_nominal - c.aux_volts;
+    if !(c.share.is_finite() && (0.0..=0.9).contains(&c.share)) {
+        return Err(SizeError(
+            "the collector share must be between 0 and 0.9".into(),
+        ));
+    }
+    if !(drop > 0.0 && c.aux_current_a > 0.0) {
+        return Err(SizeError(format!(
+            "the nominal input ({:.2} V) does not exceed the aux rail ({} V): there is no drop for a collector resistor to take",
+            c.vin_nominal, c.aux_volts
+        )));
+    }
+    let ideal = c.share * drop / c.aux_current_a;
+    let ohms = rounding
+        .round(ideal, series)
+        .ok_or_else(|| SizeError("no preferred value fits the collector resistor".into()))?;
+    Ok(CollectorChoice {
+        ideal_ohms: ideal,
+        ohms,
+        share: ohms * c.aux_current_a / drop,
+        watts: c.aux_current_a * c.aux_current_a * ohms,
+    })
+}
+
+/// How the output was set for `--vout`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum OutputChange {
+    /// An adjustable design: the evaluated setting moved to this output.
+    Setting(f64),
+    /// A fixed design: the feedback top resistor set (exactly) for this output.
+    FeedbackTop { ohms: f64, vout: f64 },
+}
+
+/// Make the design evaluate at `vout`: the setting of an adjustable design, or the feedback
+/// top of a fixed one (V_out = V_ref (1 + top / bottom), non-inverting gain).
+pub fn set_output(d: &mut Design, vout: f64) -> Result<OutputChange, SizeError> {
+    if !(vout.is_finite() && vout > 0.0) {
+        return Err(SizeError("the output voltage must be positive".into()));
+    }
+    if is_adjustable(d) {
+        let (lo, hi) = nominal_output_range(d);
+        if vout < lo - 1e-9 || vout > hi + 1e-9 {
+            return Err(SizeError(format!(
+                "this adjustable design reaches {lo:.3} V to {hi:.3} V, not {vout} V"
+            )));
+        }
+        d.load.output_setting_v = Some(vout);
+        return Ok(OutputChange::Setting(vout));
+    }
+    let (v1, _) = output_range(d, d.reference.volts, 0.0, d.feedback.bottom.ohms);
+    let top = d.feedback.bottom.ohms * (vout / v1 - 1.0);
+    if !top.is_finite() || top <= 0.0 {
+        return Err(SizeError(format!(
+            "{vout} V is at or below the {v1} V the reference gives at unity gain: a non-inverting amplifier cannot reach it"
+        )));
+    }
+    d.feedback.top.ohms = top;
+    Ok(OutputChange::FeedbackTop { ohms: top, vout })
 }
 
 /// Write the chosen parts and the targets' topology into a design.
@@ -162,6 +306,11 @@ pub fn apply(d: &mut Design, t: &Targets, c: &Choice) {
         min_ohms: 0.0,
     };
     l.diodes = c.diodes;
+    if let (Some(a), Some(cc)) = (d.aux.as_mut(), c.collector) {
+        a.collector_ohms = Some(cc.ohms);
+        a.collector_share = 0.0;
+    }
+    let l = &mut d.limit;
     l.diode_vf_v = t.junction_v;
     l.vbe_v = t.junction_v;
     match c.divider {
@@ -199,6 +348,8 @@ mod tests {
             vout_v: None,
             series: Series::E24,
             divider_bottom_ohms: 10_000.0,
+            rounding: None,
+            collector: None,
         }
     }
 
@@ -237,6 +388,43 @@ mod tests {
         let k = bottom / (top + bottom);
         let knee = (0.65 + (1.0 - k) * 12.0) / (k * 0.33);
         assert!((knee / 3.75 - 1.0).abs() < 0.05, "knee {knee}");
+    }
+
+    #[test]
+    fn output_is_set_by_the_feedback_top_of_a_fixed_design() {
+        // Non-inverting gain 1 + top / bottom (op-amp textbook): 15 V from 5 V over 10 kohm
+        // needs 20 kohm on top.
+        let mut d = Design::parse(include_str!("../../config/design-template.toml"), "t").unwrap();
+        let c = set_output(&mut d, 15.0).unwrap();
+        assert_eq!(
+            c,
+            OutputChange::FeedbackTop {
+                ohms: 20_000.0,
+                vout: 15.0
+            }
+        );
+        assert!(set_output(&mut d, 4.0).is_err());
+    }
+
+    #[test]
+    fn collector_resistor_is_a_preferred_value() {
+        // R_c = share (V_in - V_aux) / I (Ohm's law): 0.5 x 10 V / 20 mA = 250 ohm; E24 up is
+        // 270 ohm (54 % of the drop, 0.02^2 x 270 = 108 mW), nearest 240 ohm.
+        let t = CollectorTarget {
+            share: 0.5,
+            vin_nominal: 36.0,
+            aux_volts: 26.0,
+            aux_current_a: 0.02,
+        };
+        let up = size_collector(&t, Series::E24, Rounding::Up).unwrap();
+        assert_eq!(up.ohms, 270.0);
+        assert!((up.share - 0.54).abs() < 1e-12 && (up.watts - 0.108).abs() < 1e-12);
+        assert_eq!(
+            size_collector(&t, Series::E24, Rounding::Nearest)
+                .unwrap()
+                .ohms,
+            240.0
+        );
     }
 
     #[test]

@@ -3,7 +3,7 @@
 //! Pure computation over [`model`](super::model).
 
 use super::file::Design;
-use super::model::{spreads, Params};
+use super::model::{spreads, Params, Scope, Spread};
 use crate::rng::Rng;
 use serde::{Deserialize, Serialize};
 
@@ -91,11 +91,35 @@ pub fn stats(values: &mut [f64]) -> McStats {
     }
 }
 
+/// Which uncertain parameters a band spans.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Envelope {
+    /// Part tolerances and the operating envelope (ambient range, line tolerance).
+    Operating,
+    /// Part tolerances only, at the design's nominal ambient and input: what a bench at room
+    /// temperature on the nominal input measures of a unit as built.
+    AsBuilt,
+}
+
+fn spreads_for(d: &Design, env: Envelope) -> Vec<Spread> {
+    let mut sp = spreads(d);
+    if env == Envelope::AsBuilt {
+        sp.retain(|s| s.scope == Scope::Part);
+    }
+    sp
+}
+
 /// Call `f` on every corner of the design's uncertain parameters (2^k corners; at most 2^16).
 /// Corners with more than 16 uncertain parameters keep the rest at nominal (never happens with
-/// the current model, which has at most 12).
-pub fn for_each_corner(d: &Design, mut f: impl FnMut(&Params)) {
-    let sp = spreads(d);
+/// the current model, which has at most 12). All diodes of a string sit at the same corner.
+pub fn for_each_corner(d: &Design, f: impl FnMut(&Params)) {
+    for_each_corner_in(d, Envelope::Operating, f)
+}
+
+/// [`for_each_corner`] over the parameters of one envelope.
+pub fn for_each_corner_in(d: &Design, env: Envelope, mut f: impl FnMut(&Params)) {
+    let sp = spreads_for(d, env);
     let k = sp.len().min(16);
     let base = Params::nominal(d);
     for mask in 0u32..(1u32 << k) {
@@ -108,10 +132,21 @@ pub fn for_each_corner(d: &Design, mut f: impl FnMut(&Params)) {
     }
 }
 
-/// Call `f` on `n` random units drawn from `seed`.
-pub fn for_each_sample(d: &Design, n: usize, seed: u64, mut f: impl FnMut(&Params)) {
+/// Call `f` on `n` random units drawn from `seed` (every diode of a string drawn on its own).
+pub fn for_each_sample(d: &Design, n: usize, seed: u64, f: impl FnMut(&Params)) {
+    for_each_sample_in(d, Envelope::Operating, n, seed, f)
+}
+
+/// [`for_each_sample`] over the parameters of one envelope.
+pub fn for_each_sample_in(
+    d: &Design,
+    env: Envelope,
+    n: usize,
+    seed: u64,
+    mut f: impl FnMut(&Params),
+) {
     let mut rng = Rng::new(seed);
-    let sp = spreads(d);
+    let sp = spreads_for(d, env);
     let base = Params::nominal(d);
     for _ in 0..n {
         let p = Params::draw_from(&base, &sp, &mut rng);

@@ -119,6 +119,7 @@ pub fn prepare(req: &RunRequest) -> Result<Prepared, PipelineError> {
     // Checked against the design's worst case before any port opens.
     let bounds = crate::plan::DesignBounds::from_design(&e);
     let plan = Plan::parse_for_design(plan_text, &plan_file.label(), &targets, &bounds)?;
+    crate::plan::check_short_dwell(&plan, plan_text, &plan_file.label(), &e)?;
     let bench_text = bench_file.text().ok_or_else(|| {
         PipelineError::from(crate::bench::BenchError::ReadFile {
             path: bench_file.label(),

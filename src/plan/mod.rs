@@ -31,6 +31,7 @@
 
 mod checks;
 mod design_check;
+mod dwell;
 mod error;
 mod expand;
 mod fields;
@@ -43,6 +44,7 @@ mod targets;
 mod tests;
 
 pub use design_check::{DesignBounds, INTERLOCK_MARGIN};
+pub use dwell::check_short_dwell;
 pub use error::PlanError;
 pub use knee::{KneeConfig, KneeOutcome, KneeRequest, KneeResult, KneeSearch};
 pub use quantity::{parse_quantity, tidy, Dim};

@@ -27,7 +27,12 @@ pub struct SimUnit {
 pub(super) enum InputFeed {
     /// The design's input: mean `peak - I/(4 f C)`, trough `peak - I/(2 f C)` (the trough
     /// sets dropout, the mean sets dissipation).
-    Design { peak: f64, ripple_per_a: f64 },
+    Design {
+        peak: f64,
+        ripple_per_a: f64,
+        /// Transformer sag, volts per ampere (from the design's regulation; 0 without one).
+        sag_per_a: f64,
+    },
     /// A programmable source at this voltage (0 when its output is off).
     Source(f64),
 }
@@ -35,7 +40,11 @@ pub(super) enum InputFeed {
 impl InputFeed {
     pub(super) fn mean(self, i: f64) -> f64 {
         match self {
-            InputFeed::Design { peak, ripple_per_a } => peak - 0.5 * ripple_per_a * i,
+            InputFeed::Design {
+                peak,
+                ripple_per_a,
+                sag_per_a,
+            } => peak - (sag_per_a + 0.5 * ripple_per_a) * i,
             InputFeed::Source(v) => v,
         }
     }
@@ -102,6 +111,8 @@ impl SimUnit {
             thermal: Thermal {
                 pass_junction_c: ambient,
                 clamp_junction_c: ambient,
+                case_c: ambient,
+                sink_c: ambient,
             },
             faults: faults.to_vec(),
             latched: false,
@@ -153,6 +164,15 @@ impl SimUnit {
         p.theta_jc + p.theta_cs + sa
     }
 
+    /// The three-stage thermal network when the design gives thermal masses.
+    pub(super) fn network(&self) -> Option<([f64; 3], [f64; 3])> {
+        if self.model.heat == HeatModel::Lumped {
+            return None;
+        }
+        let p = &self.design.pass;
+        pass_network(&self.design, self.pass_theta() - p.theta_jc - p.theta_cs)
+    }
+
     pub(super) fn vce_sat(&self) -> f64 {
         self.model.vce_sat.unwrap_or(match self.design.pass.stage {
             Stage::Single => 0.2,
@@ -179,6 +199,7 @@ impl SimUnit {
         InputFeed::Design {
             peak: pt.vin_no_load,
             ripple_per_a,
+            sag_per_a: transformer_sag_per_a(&self.design, self.params.line),
         }
     }
 
@@ -188,14 +209,24 @@ impl SimUnit {
     }
 
     pub(super) fn knee_scale(&self, p: &Params) -> f64 {
-        self.model.emission * thermal_voltage(p.clamp_junction_c) / p.r_sense
+        let width = match self.model.knee {
+            KneeModel::OneJunction => self.model.emission * thermal_voltage(p.clamp_junction_c),
+            KneeModel::PerJunction => {
+                knee_width_v(&self.design, self.model.emission, p.clamp_junction_c)
+            }
+        };
+        width / p.r_sense
     }
 
     /// The unit's output characteristic for given element values and input feed.
     pub(super) fn curve<'a>(&'a self, p: &'a Params, feed: InputFeed) -> Curve<'a> {
         let pt = evaluate(&self.design, p);
         let (peak, per_a) = match feed {
-            InputFeed::Design { peak, ripple_per_a } => (peak, ripple_per_a),
+            InputFeed::Design {
+                peak,
+                ripple_per_a,
+                sag_per_a,
+            } => (peak, ripple_per_a + sag_per_a),
             InputFeed::Source(vs) => (vs, 0.0),
         };
         // Line sensitivity, referred to the unit's own input.
@@ -306,6 +337,9 @@ impl SimUnit {
     /// Pass device case temperature: the junction's rise scaled by the case-to-ambient share of
     /// the thermal path (junction and heatsink lumped into one time constant).
     pub fn case_temperature(&self) -> f64 {
+        if self.network().is_some() {
+            return self.thermal.case_c;
+        }
         let p = &self.design.pass;
         let theta = self.pass_theta();
         let share = if theta > 0.0 {
@@ -338,13 +372,17 @@ impl SimUnit {
     /// One thermal step of `dt` seconds at the dissipation of `op`.
     pub fn heat(&mut self, op: OperatingPoint, dt: f64) {
         let ta = self.params.ambient_c;
-        let target = ta + op.pass_w * self.pass_theta();
-        self.thermal.pass_junction_c = first_order_step(
-            self.thermal.pass_junction_c,
-            target,
-            self.model.pass_tau_s,
-            dt,
-        );
+        if let Some(net) = self.network() {
+            step_network(&net, &mut self.thermal, ta, op.pass_w, dt);
+        } else {
+            let target = ta + op.pass_w * self.pass_theta();
+            self.thermal.pass_junction_c = first_order_step(
+                self.thermal.pass_junction_c,
+                target,
+                self.model.pass_tau_s,
+                dt,
+            );
+        }
         let p = self.hot_params();
         let clamp_v = match self.design.limit.clamp {
             Clamp::DiodeString => p.diodes as f64 * p.diode_vf,

@@ -7,13 +7,20 @@
 //!
 //! The model (behavioural, documented so that tests can check it against formulas):
 //! - Regulation: `V = V_set - R_out I` (V_set from `design::evaluate`, i.e. V_ref (1 + Rt/Rb)).
+//! - Input: on its own full-wave input the unit sees the no-load peak less the transformer's
+//!   sag (regulation over the rated current) and the reservoir's ripple, trough
+//!   `peak - I (sag + 1/(2 f C))`, mean `peak - I (sag + 1/(4 f C))`.
 //! - Dropout: `V <= V_in(I) - I R_s - V_CE(sat)` and `V <= V_aux - swing - m V_BE - I R_s`.
-//! - Knee: the clamp takes drive current as `exp((I R_s - V_th(V)) / (N kT/q))` (Shockley's law);
+//! - Knee: the clamp takes drive current as `exp((I R_s - V_th(V)) / (n N kT/q))` (Shockley's
+//!   law; with `KneeModel::PerJunction` n is the junctions in series that set the threshold,
+//!   the diodes of a string, so a string's knee is n times as wide; otherwise n = 1);
 //!   the error amplifier answers a deficit `dV` with proportionally more drive until it saturates
 //!   at `dV_sat = knee_sat_fraction * V_set`. Equating the two gives, on the upper branch,
 //!   `dV = dV_sat exp((I R_s - I_L(V) R_s) / (N V_T))`; once `dV > dV_sat` the unit sits on the
 //!   design's limit line `I = I_L(V)` (`design::model::limit_current_at`, foldback included).
-//! - Heat: `T -> T_a + P theta` with time constant tau (exact exponential step); the pass
+//! - Heat: with `HeatModel::Network` and the design's `[pass.thermal_mass]`, the three-stage network junction - case -
+//!   heatsink of `design::dwell` (exact steps: the case lags the junction, the heatsink takes
+//!   minutes); without it `T -> T_a + P theta` with time constant tau (exact exponential step); the pass
 //!   device dissipates `(V_in - V - I R_s) I`, the clamp `V_clamp I_drive` while it conducts.
 //!   Junction drops follow `design::model::junction_at`, so a diode-string limit rises as the
 //!   pass device heats (V_sense = n V_F - m V_BE) while a transistor limiter barely moves.
@@ -34,7 +41,8 @@ mod tests;
 
 pub use as_built::SimUnit;
 pub use model::{
-    first_order_step, thermal_voltage, Controls, LoadSetting, OperatingPoint, SourceSetting,
-    Thermal, Truth, UnitError, UnitFault, UnitModel, BOLTZMANN, ELEMENTARY_CHARGE,
+    first_order_step, knee_width_v, pass_network, step_network, thermal_voltage,
+    transformer_sag_per_a, Controls, HeatModel, KneeModel, LoadSetting, OperatingPoint,
+    SourceSetting, Thermal, Truth, UnitError, UnitFault, UnitModel, BOLTZMANN, ELEMENTARY_CHARGE,
 };
 pub use parts::PartFault;

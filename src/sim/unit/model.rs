@@ -2,7 +2,7 @@
 //! does not give, built-in faults, the bench's settings on the unit, operating points and the
 //! true values tests check against. Pure data and formulas.
 
-use crate::design::Params;
+use crate::design::{Design, Params};
 use crate::measure::LoadMode;
 use serde::Serialize;
 
@@ -54,6 +54,35 @@ pub struct UnitModel {
     pub line_rejection: f64,
     /// Room temperature, degC; `None`: the design's nominal ambient.
     pub ambient_c: Option<f64>,
+    /// How the pass device heats.
+    pub heat: HeatModel,
+    /// How wide the clamp's soft knee is.
+    pub knee: KneeModel,
+}
+
+/// How the simulated pass device heats.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum HeatModel {
+    /// One lumped first-order stage (theta_jc + theta_cs + theta_sa, `pass_tau_s`).
+    #[default]
+    Lumped,
+    /// The design's three-stage network (junction, case, heatsink) when the design states its
+    /// thermal masses (`[pass.thermal_mass]`), as the design model computes a short's dwell;
+    /// lumped otherwise.
+    Network,
+}
+
+/// How wide the simulated clamp's knee is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum KneeModel {
+    /// One junction's N kT/q whatever the clamp.
+    #[default]
+    OneJunction,
+    /// N kT/q per junction that sets the threshold ([`knee_width_v`]): a string of n diodes is
+    /// n times as wide.
+    PerJunction,
 }
 
 impl Default for UnitModel {
@@ -71,6 +100,8 @@ impl Default for UnitModel {
             quiescent_a: 0.008,
             line_rejection: 1e-4,
             ambient_c: None,
+            heat: HeatModel::Lumped,
+            knee: KneeModel::OneJunction,
         }
     }
 }
@@ -176,11 +207,68 @@ pub struct Controls {
     pub source: SourceSetting,
 }
 
-/// Junction temperatures of the unit (degC).
+/// Junction temperatures of the unit (degC), and the pass device's case and heatsink when
+/// the design gives its thermal masses (then the three-stage network heats them in turn).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Thermal {
     pub pass_junction_c: f64,
     pub clamp_junction_c: f64,
+    pub case_c: f64,
+    pub sink_c: f64,
+}
+
+/// The pass device's thermal network (junction, case, heatsink heat capacities in J/degC and
+/// theta_jc, theta_cs, theta_sa in degC/W), from the design's `[pass.thermal_mass]` with the
+/// unit's own heatsink; None without thermal masses (the lumped first-order model is used).
+pub fn pass_network(d: &Design, theta_sa: f64) -> Option<([f64; 3], [f64; 3])> {
+    let mut d2 = d.clone();
+    d2.pass.theta_sa = Some(theta_sa);
+    crate::design::dwell::network(&d2)
+}
+
+/// Advance the network by `dt` seconds at `watts` into the pass junction (exact for constant
+/// power; `design::dwell::network_step`).
+pub fn step_network(
+    net: &([f64; 3], [f64; 3]),
+    t: &mut Thermal,
+    ambient_c: f64,
+    watts: f64,
+    dt: f64,
+) {
+    let th = [
+        t.pass_junction_c - ambient_c,
+        t.case_c - ambient_c,
+        t.sink_c - ambient_c,
+    ];
+    let n = crate::design::dwell::network_step(&net.0, &net.1, th, watts, dt);
+    t.pass_junction_c = ambient_c + n[0];
+    t.case_c = ambient_c + n[1];
+    t.sink_c = ambient_c + n[2];
+}
+
+/// Transformer sag of a full-wave input, volts of rectified peak per ampere of load: the
+/// secondary falls from its no-load to its rated-load value, (V_nl - V_fl) sqrt(2) x line,
+/// over the rated current (a linear winding resistance; common practice). 0 without a stated
+/// regulation or for a DC input.
+pub fn transformer_sag_per_a(d: &Design, line: f64) -> f64 {
+    let inp = &d.input;
+    match (inp.kind, inp.secondary_vrms, inp.regulation_pct) {
+        (crate::design::InputKind::FullWave, Some(v), Some(r)) if d.load.max_current_a > 0.0 => {
+            v * r / 100.0 * std::f64::consts::SQRT_2 * line / d.load.max_current_a
+        }
+        _ => 0.0,
+    }
+}
+
+/// Width of the clamp's soft knee in volts across the sense resistor: N kT/q per junction
+/// whose drop sets the threshold (a string of n diodes: n N kT/q, Shockley's law for junctions
+/// in series; a limiter transistor: N kT/q).
+pub fn knee_width_v(d: &Design, emission: f64, clamp_temp_c: f64) -> f64 {
+    let junctions = match d.limit.clamp {
+        crate::design::Clamp::DiodeString => d.limit.diodes.unwrap_or(1).max(1) as f64,
+        _ => 1.0,
+    };
+    emission * junctions * thermal_voltage(clamp_temp_c)
 }
 
 /// One operating point of the unit with its load.

@@ -18,6 +18,14 @@ fn fold() -> Design {
 fn unit(d: &Design, faults: &[UnitFault]) -> SimUnit {
     SimUnit::build(d, 11, faults, UnitModel::default()).unwrap()
 }
+fn per_junction_unit(d: &Design) -> SimUnit {
+    let model = UnitModel {
+        knee: KneeModel::PerJunction,
+        ..UnitModel::default()
+    };
+    SimUnit::build(d, 7, &[], model).unwrap()
+}
+
 fn load(mode: LoadMode, value: f64) -> Controls {
     let mut c = Controls::default();
     c.load.mode = mode;
@@ -136,6 +144,41 @@ fn knee_is_soft_over_a_few_thermal_voltages() {
     let i_01 = u.supply_current_at(&Controls::default(), 0.999 * t.no_load_v);
     let span_mv = (il - i_01) * p.r_sense * 1e3;
     assert!(span_mv > 40.0 && span_mv < 150.0, "{span_mv} mV");
+}
+
+#[test]
+fn a_diode_string_knee_is_as_wide_as_its_junctions() {
+    // Upper branch: dV = dV_sat exp((I - I_L) R_s / (n N kT/q)) (Shockley's law for the n
+    // junctions in series that set the threshold, module doc): a string of three diodes has a
+    // knee three times as wide as one junction's. At the 2 % point:
+    // I = I_L + (n N V_T / R_s) ln(0.02 V0 / dV_sat) - R_out I, so the knee sits
+    // ln(0.03/0.02) = 0.405 of n thermal voltages of sense drop below the sharp limit line.
+    let d = lab();
+    let u = per_junction_unit(&d);
+    let t = u.truth();
+    let p = u.params();
+    let n = p.diodes as f64;
+    assert_eq!(n, 3.0);
+    let vt = thermal_voltage(p.ambient_c);
+    let dv_sat = u.model().knee_sat_fraction * t.regulated_v;
+    let v = 0.98 * t.no_load_v;
+    let il = t.limit_line_current;
+    let ro = u.model().output_resistance;
+    // Solve t.regulated_v - ro I - dv_sat e^{(I-il)Rs/(n vt)} = v directly for a check.
+    let deficit = t.regulated_v - ro * t.knee_current - v;
+    let expected = il + n * vt / p.r_sense * (deficit / dv_sat).ln();
+    assert!((t.knee_current - expected).abs() < 1e-6);
+    let below_mv = (il - t.knee_current) * p.r_sense * 1e3;
+    assert!(below_mv > 15.0 && below_mv < 90.0, "{below_mv} mV");
+    // Between a 0.1 % drop and saturation the sense drop moves by a few tenths of a volt.
+    let i_01 = u.supply_current_at(&Controls::default(), 0.999 * t.no_load_v);
+    let span_mv = (il - i_01) * p.r_sense * 1e3;
+    assert!(span_mv > 120.0 && span_mv < 450.0, "{span_mv} mV");
+    // A limiter transistor's knee is one junction wide.
+    let f = fold();
+    let w1 = knee_width_v(&f, 1.0, 25.0);
+    assert!((w1 - thermal_voltage(25.0)).abs() < 1e-15);
+    assert!((knee_width_v(&d, 1.0, 25.0) - 3.0 * w1).abs() < 1e-15);
 }
 
 #[test]
@@ -432,4 +475,66 @@ fn pass_junction_heats_with_first_order_response_at_constant_power() {
     let rise = u.thermal().pass_junction_c - ta;
     let full = op.pass_w * u.pass_theta();
     assert!((rise / full - 0.632_12).abs() < 1e-4, "{rise} of {full}");
+}
+
+#[test]
+fn the_case_lags_the_junction_and_the_heatsink_takes_minutes() {
+    // The teaching-lab sample states its thermal masses (junction tau 0.5 s, case 10 J/degC,
+    // heatsink 900 J/degC through 0.35 degC/W: about 5 minutes). At a held dissipation the
+    // junction leads, the case follows, the sink is slow; the steady state is thermal Ohm's law,
+    // T_j = T_a + P (theta_jc + theta_cs + theta_sa), T_case = T_a + P (theta_cs + theta_sa).
+    let d = lab();
+    let model = UnitModel {
+        heat: HeatModel::Network,
+        ..UnitModel::default()
+    };
+    let mut u = SimUnit::build(&d, 7, &[], model).unwrap();
+    assert!(u.network().is_some());
+    assert!(unit(&d, &[]).network().is_none(), "lumped by default");
+    let op = u.operating_point(&load(LoadMode::ConstantCurrent, 1.0));
+    let ta = u.params().ambient_c;
+    let w = op.pass_w;
+    assert!(w > 5.0, "{w}");
+    u.heat(op, 1.0);
+    let t1 = u.thermal();
+    assert!(t1.pass_junction_c - ta > 0.5 * w * 0.7, "{t1:?}");
+    assert!(t1.case_c - ta < 0.3 * (t1.pass_junction_c - ta), "{t1:?}");
+    for _ in 0..59 {
+        u.heat(op, 1.0);
+    }
+    let t60 = u.thermal();
+    assert!(t60.sink_c - ta < 0.25 * w * 0.35, "{t60:?}");
+    for _ in 0..200 {
+        u.heat(op, 30.0);
+    }
+    let ts = u.thermal();
+    assert!(
+        (ts.pass_junction_c - (ta + w * 1.25)).abs() < 0.01 * w * 1.25,
+        "{ts:?}"
+    );
+    assert!((u.case_temperature() - (ta + w * 0.55)).abs() < 0.01 * w * 0.55);
+}
+
+#[test]
+fn own_input_sags_to_the_rated_secondary_at_rated_load() {
+    // A transformer with 8 % regulation: 26 V RMS at the rated 1.2 A, 28.08 V with no load.
+    // Fed from its own input the unit sees the no-load peak with nothing drawn, and at rated
+    // load the rated-load peak less half the reservoir's ripple I / (2 f C) (textbook
+    // capacitor-input rectifier; the mean of a sawtooth ripple is half its height).
+    let text = include_str!("../../../samples/teaching-lab-0-20v.toml").replace(
+        "reservoir_tolerance_pct = 20\n",
+        "reservoir_tolerance_pct = 20\nregulation_pct = 8\n",
+    );
+    let d = Design::parse(&text, "lab-reg").unwrap();
+    let u = unit(&d, &[]);
+    let line = u.params().line;
+    let feed = u.feed(&Controls::default());
+    let c = u.params().reservoir_f;
+    let ripple = 1.2 / (2.0 * 50.0 * c);
+    let rated_peak = 26.0 * 2f64.sqrt() * line - 1.4;
+    let no_load_peak = 26.0 * 1.08 * 2f64.sqrt() * line - 1.4;
+    assert!((feed.mean(0.0) - no_load_peak).abs() < 1e-9);
+    assert!((feed.mean(1.2) - (rated_peak - 0.5 * ripple)).abs() < 1e-9);
+    // Without a stated regulation there is no sag.
+    assert_eq!(transformer_sag_per_a(&lab(), 1.0), 0.0);
 }
