@@ -330,11 +330,22 @@ pub fn mbap_frame(transaction: u16, unit: u8, pdu: &[u8]) -> Vec<u8> {
     out
 }
 
-/// Split one MBAP frame off the front of `buf`: `(transaction, unit, pdu, frame length)`, or
-/// `None` when more bytes are needed. `Err(())` for a header no Modbus TCP peer would send
-/// (protocol id not 0, a length below 2 or above 254).
-#[allow(clippy::result_unit_err)]
-pub fn mbap_split(buf: &[u8]) -> Result<Option<(u16, u8, &[u8], usize)>, ()> {
+/// One Modbus TCP frame found at the front of a buffer.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct MbapFrame<'a> {
+    pub transaction: u16,
+    pub unit: u8,
+    pub pdu: &'a [u8],
+    /// Bytes the frame takes, header included.
+    pub len: usize,
+}
+
+/// A header no Modbus TCP peer would send (protocol id not 0, a length below 2 or above 254).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct BadHeader;
+
+/// Split one MBAP frame off the front of `buf`, or `None` when more bytes are needed.
+pub fn mbap_split(buf: &[u8]) -> Result<Option<MbapFrame<'_>>, BadHeader> {
     if buf.len() < 7 {
         return Ok(None);
     }
@@ -342,13 +353,18 @@ pub fn mbap_split(buf: &[u8]) -> Result<Option<(u16, u8, &[u8], usize)>, ()> {
     let proto = u16::from_be_bytes([buf[2], buf[3]]);
     let len = u16::from_be_bytes([buf[4], buf[5]]) as usize;
     if proto != 0 || !(2..=254).contains(&len) {
-        return Err(());
+        return Err(BadHeader);
     }
     let total = 6 + len;
     if buf.len() < total {
         return Ok(None);
     }
-    Ok(Some((tid, buf[6], &buf[7..total], total)))
+    Ok(Some(MbapFrame {
+        transaction: tid,
+        unit: buf[6],
+        pdu: &buf[7..total],
+        len: total,
+    }))
 }
 
 #[cfg(test)]
@@ -505,8 +521,11 @@ mod tests {
         assert_eq!(rtu_request_len(&w), Some(w.len()));
         let t = mbap_frame(0x1234, 9, &[0x03, 0x00, 0x6B, 0x00, 0x03]);
         assert_eq!(&t[..7], &[0x12, 0x34, 0x00, 0x00, 0x00, 0x06, 0x09]);
-        let (tid, unit, pdu, len) = mbap_split(&t).unwrap().unwrap();
-        assert_eq!((tid, unit, pdu, len), (0x1234, 9, &t[7..], t.len()));
+        let f = mbap_split(&t).unwrap().unwrap();
+        assert_eq!(
+            (f.transaction, f.unit, f.pdu, f.len),
+            (0x1234, 9, &t[7..], t.len())
+        );
         assert_eq!(mbap_split(&t[..9]), Ok(None));
         let mut bad = t.clone();
         bad[2] = 1;

@@ -10,8 +10,9 @@ mod values;
 
 pub use frame::{
     crc16, exception_meaning, function_name, mbap_frame, mbap_split, parse_request, rtu_frame,
-    rtu_request_len, Exception, Request, Response, FC_READ_COILS, FC_READ_DISCRETE_INPUTS,
-    FC_READ_HOLDING_REGISTERS, FC_READ_INPUT_REGISTERS, FC_WRITE_MULTIPLE_COILS,
-    FC_WRITE_MULTIPLE_REGISTERS, FC_WRITE_SINGLE_COIL, FC_WRITE_SINGLE_REGISTER,
+    rtu_request_len, BadHeader, Exception, MbapFrame, Request, Response, FC_READ_COILS,
+    FC_READ_DISCRETE_INPUTS, FC_READ_HOLDING_REGISTERS, FC_READ_INPUT_REGISTERS,
+    FC_WRITE_MULTIPLE_COILS, FC_WRITE_MULTIPLE_REGISTERS, FC_WRITE_SINGLE_COIL,
+    FC_WRITE_SINGLE_REGISTER,
 };
 pub use values::{DataType, Encoding, ObjectKind, ValueError, WordOrder};
