@@ -58,10 +58,13 @@ type Checked<T> = Result<T, BenchError>;
 /// Check one `[[instrument]]` table (`span`: the whole table), rule by rule.
 pub(super) fn check_instrument(
     file: FileCtx<'_>,
-    raw: RawInstrument,
+    mut raw: RawInstrument,
     span: Range<usize>,
 ) -> Checked<InstrumentConfig> {
     let name = check_name(file, &raw.name)?;
+    // Modbus instruments: their register map (see `modbus_checks`).
+    let modbus =
+        super::modbus_checks::check_modbus((file.file, file.src), &name, &mut raw, span.clone())?;
     let cx = Ctx { file, name: &name };
     let roles_span = raw.roles.span();
     let roles = check_roles(&cx, raw.roles)?;
@@ -112,6 +115,7 @@ pub(super) fn check_instrument(
         commands: CommandSet { templates, measure },
         reply,
         reading,
+        modbus,
     })
 }
 

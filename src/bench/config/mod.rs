@@ -8,6 +8,11 @@ mod checked;
 mod checks;
 mod keys;
 mod load;
+mod modbus_checks;
+mod modbus_map;
+mod modbus_raw;
+#[cfg(test)]
+mod modbus_tests;
 mod presets;
 mod raw;
 #[cfg(test)]
@@ -16,6 +21,8 @@ mod tests;
 pub use crate::transport::{FlowControl, LinkConfig, Parity, SerialSettings, TcpSettings};
 pub use checked::{BenchConfig, CommandSet, InstrumentConfig, ReadingStyle, StreamPick};
 pub use keys::{CommandKey, KeyInfo, Need, KEYS, KEY_NAMES, ROLE_NEEDS, SAFE_STATE_KEYS};
+pub use modbus_checks::rtu_silence;
+pub use modbus_map::{Confirm, Fixed, Framing, IdentityBlock, ModbusMap, Payload, RegisterAction};
 pub use presets::{PRESET_NAMES, TAGGED_STREAM_PATTERN};
 
 /// 1-based line and column (in characters) of a byte offset (shared with every config file).

@@ -49,6 +49,8 @@ pub(super) struct RawInstrument {
     pub role_queries: Option<BTreeMap<Role, Spanned<String>>>,
     pub reply: Option<RawReply>,
     pub reading: Option<Spanned<RawReading>>,
+    /// A Modbus instrument's register map (see `modbus_raw`).
+    pub modbus: Option<Spanned<super::modbus_raw::RawModbus>>,
 }
 
 #[derive(Debug, Deserialize)]
