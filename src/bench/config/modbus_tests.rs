@@ -139,3 +139,17 @@ fn text_instrument_settings_are_refused_with_a_register_map() {
     assert!(e.contains("safe_state line \"INP OFF\""), "{e}");
     assert!(e.contains("load_input_off"), "{e}");
 }
+
+#[test]
+fn the_shipped_modbus_example_parses() {
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("config/bench-modbus.toml");
+    let cfg = BenchConfig::load(&path).unwrap_or_else(|e| panic!("{e}"));
+    let psu = &cfg.instruments[1];
+    let LinkConfig::Tcp(t) = &psu.link else {
+        panic!()
+    };
+    assert_eq!(t.port.get(), 502);
+    assert_eq!(psu.safe_state, vec!["source_output_off".to_string()]);
+    let eload = cfg.instruments[0].modbus.as_ref().unwrap();
+    assert_eq!(eload.frame_gap, Duration::from_millis(5));
+}
