@@ -82,6 +82,23 @@ pub async fn connect(cfg: &InstrumentConfig) -> Result<BoxTransport, BenchError>
                 },
             }
         }),
+        LinkConfig::UsbTmc(u) => crate::transport::open_usbtmc(&u.path).map_err(|e| {
+            let error = match e {
+                OpenError::PermissionDenied => {
+                    OpenError::Other(crate::transport::permission_help(&u.path))
+                }
+                OpenError::Missing => OpenError::Other(format!(
+                    "no such device node {}; check that the instrument is on and plugged in, and that the usbtmc driver is loaded (lsmod | grep usbtmc)",
+                    u.path
+                )),
+                e => e,
+            };
+            BenchError::Open {
+                instrument,
+                link: cfg.link.describe(),
+                error,
+            }
+        }),
         LinkConfig::Tcp(t) => open_tcp(t).await.map_err(|e| {
             let addr = format!("{}:{}", t.host, t.port);
             match e {

@@ -17,8 +17,11 @@ mod presets;
 mod raw;
 #[cfg(test)]
 mod tests;
+mod usbtmc_checks;
 
-pub use crate::transport::{FlowControl, LinkConfig, Parity, SerialSettings, TcpSettings};
+pub use crate::transport::{
+    FlowControl, LinkConfig, Parity, SerialSettings, TcpSettings, UsbTmcSettings,
+};
 pub use checked::{BenchConfig, CommandSet, InstrumentConfig, ReadingStyle, StreamPick};
 pub use keys::{CommandKey, KeyInfo, Need, KEYS, KEY_NAMES, ROLE_NEEDS, SAFE_STATE_KEYS};
 pub use modbus_checks::rtu_silence;

@@ -55,6 +55,12 @@ pub(super) fn check_modbus(
     let m_span = m.span();
     let m = m.into_inner();
     check_text_only_settings(&cx, raw, m_span.clone())?;
+    if raw.usbtmc.is_some() {
+        return Err(cx.err(
+            Some(m_span),
+            "Modbus runs on a serial line (RTU) or TCP, not over USB-TMC",
+        ));
+    }
     let framing = match (&raw.serial, &mut raw.tcp) {
         (Some(_), None) => Framing::Rtu,
         (None, Some(t)) => {

@@ -51,6 +51,8 @@ pub(super) struct RawInstrument {
     pub reading: Option<Spanned<RawReading>>,
     /// A Modbus instrument's register map (see `modbus_raw`).
     pub modbus: Option<Spanned<super::modbus_raw::RawModbus>>,
+    /// A USB-TMC link (see `usbtmc_checks`).
+    pub usbtmc: Option<Spanned<super::usbtmc_checks::RawUsbTmc>>,
 }
 
 #[derive(Debug, Deserialize)]
