@@ -18,6 +18,7 @@ mod raw;
 #[cfg(test)]
 mod tests;
 mod usbtmc_checks;
+mod usbtmc_raw;
 
 pub use crate::transport::{
     FlowControl, LinkConfig, Parity, SerialSettings, TcpSettings, UsbTmcSettings,

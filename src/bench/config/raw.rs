@@ -52,7 +52,7 @@ pub(super) struct RawInstrument {
     /// A Modbus instrument's register map (see `modbus_raw`).
     pub modbus: Option<Spanned<super::modbus_raw::RawModbus>>,
     /// A USB-TMC link (see `usbtmc_checks`).
-    pub usbtmc: Option<Spanned<super::usbtmc_checks::RawUsbTmc>>,
+    pub usbtmc: Option<Spanned<super::usbtmc_raw::RawUsbTmc>>,
 }
 
 #[derive(Debug, Deserialize)]

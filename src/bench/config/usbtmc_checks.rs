@@ -6,15 +6,7 @@
 use super::raw::{RawInstrument, ReadStyleName};
 use crate::bench::BenchError;
 use crate::transport::{LinkConfig, UsbTmcSettings};
-use serde::Deserialize;
 use std::ops::Range;
-
-/// The `usbtmc` table as written.
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub(crate) struct RawUsbTmc {
-    pub path: String,
-}
 
 /// Check the instrument's USB-TMC link, if it has one (`None`: the serial / tcp rules apply).
 pub(super) fn check_usbtmc_link(
