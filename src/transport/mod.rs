@@ -4,6 +4,7 @@
 //! traffic log. Transports move bytes and lines; they must not
 //! know about roles, commands or reply patterns.
 
+mod discover;
 mod lines;
 mod link;
 mod memory;
@@ -12,6 +13,7 @@ mod stream;
 mod tcp;
 mod usbtmc;
 
+pub use discover::{list_ports, FoundPort, PortList, UsbInfo};
 pub use lines::{LineReader, LineWriter, LinkError, TrafficLog, MAX_LINE};
 pub use link::{
     DataBits, FlowControl, LinkConfig, Parity, SerialSettings, StopBits, TcpSettings,
