@@ -5,8 +5,8 @@
 
 use super::{CodedError, EXIT_ABORTED, EXIT_OK, EXIT_USAGE};
 use crate::transport::{
-    list_ports, open_serial, open_usbtmc, DataBits, FlowControl, FoundPort, LineReader, LineWriter,
-    Parity, PortList, SerialSettings, StopBits,
+    identify, list_ports, DataBits, FlowControl, FoundPort, LinkConfig, Parity, PortList,
+    SerialSettings, StopBits, UsbTmcSettings,
 };
 use anyhow::Context;
 use serde::Serialize;
@@ -104,9 +104,13 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             .build()
             .context("cannot start the async runtime")?;
         for path in targets {
-            let settings = serial(&path)?;
+            let link = if path.starts_with("/dev/usbtmc") {
+                LinkConfig::UsbTmc(UsbTmcSettings { path: path.clone() })
+            } else {
+                LinkConfig::Serial(serial(&path)?)
+            };
             let timeout = Duration::from_millis(args.timeout_ms.max(1));
-            let r = rt.block_on(identify(&path, &settings, &args.query, timeout));
+            let r = rt.block_on(identify(&link, &args.query, timeout));
             identified.push(match r {
                 Ok(reply) => Identified {
                     path,
@@ -116,7 +120,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
                 Err(e) => Identified {
                     path,
                     reply: None,
-                    error: Some(e),
+                    error: Some(e.to_string()),
                 },
             });
         }
@@ -139,46 +143,6 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         );
     }
     Ok(EXIT_OK)
-}
-
-/// Send the identity query once and read one reply line. USB-TMC nodes get one message and
-/// one read; serial ports get the query line and their first non-empty reply line.
-async fn identify(
-    path: &str,
-    settings: &SerialSettings,
-    query: &str,
-    timeout: Duration,
-) -> Result<String, String> {
-    let io = if path.contains("usbtmc") {
-        open_usbtmc(path).map_err(|e| match e {
-            crate::transport::OpenError::PermissionDenied => {
-                crate::transport::permission_help(path)
-            }
-            e => format!("cannot open {path}: {e}"),
-        })?
-    } else {
-        open_serial(settings).map_err(|e| format!("cannot open {path}: {e}"))?
-    };
-    let (r, w) = tokio::io::split(io);
-    let mut writer = LineWriter::new(w, "\n");
-    let mut reader = LineReader::new(r, "\n");
-    writer
-        .write_line(query, timeout)
-        .await
-        .map_err(|e| format!("cannot send '{query}': {e}"))?;
-    let deadline = tokio::time::Instant::now() + timeout;
-    loop {
-        match reader.read_line(deadline).await {
-            Ok(line) if line.trim().is_empty() => continue,
-            Ok(line) => return Ok(line.trim().to_string()),
-            Err(e) => {
-                return Err(format!(
-                    "no reply to '{query}' within {} ms ({e}); check the baud rate and that the instrument speaks this query",
-                    timeout.as_millis()
-                ))
-            }
-        }
-    }
 }
 
 fn usb_text(p: &FoundPort) -> (String, String, String) {

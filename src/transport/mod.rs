@@ -5,6 +5,7 @@
 //! know about roles, commands or reply patterns.
 
 mod discover;
+mod identify;
 mod lines;
 mod link;
 mod memory;
@@ -14,6 +15,7 @@ mod tcp;
 mod usbtmc;
 
 pub use discover::{list_ports, FoundPort, PortList, UsbInfo};
+pub use identify::{identify, IdentifyError};
 pub use lines::{LineReader, LineWriter, LinkError, TrafficLog, MAX_LINE};
 pub use link::{
     DataBits, FlowControl, LinkConfig, Parity, SerialSettings, StopBits, TcpSettings,
