@@ -132,7 +132,16 @@ fn a_foreign_modbus_server_is_driven_by_configuration_alone() {
     rt.block_on(async {
         let station = Station::new();
         let port = serve(station.clone()).await;
-        let cfg = BenchConfig::parse(&bench_file(port, ""), "other.toml").unwrap();
+        let tmp = tempfile::tempdir().unwrap();
+        let log = tmp.path().join("other-load.log");
+        let text = bench_file(port, "").replace(
+            "reply_timeout_ms = 2000",
+            &format!(
+                "reply_timeout_ms = 2000\ntraffic_log = {:?}",
+                log.display().to_string()
+            ),
+        );
+        let cfg = BenchConfig::parse(&text, "other.toml").unwrap();
         let mut bench = Bench::open(&cfg).await.unwrap_or_else(|e| panic!("{e}"));
         bench
             .set_load(LoadMode::ConstantCurrent, 1.23)
@@ -167,6 +176,17 @@ fn a_foreign_modbus_server_is_driven_by_configuration_alone() {
         ));
         assert!(bench.safe_state().await.is_empty());
         assert_eq!(station.holding.lock().unwrap()[&0x2001], 0, "input off");
+        // Every request and reply is in the traffic log, the clamped read-back too.
+        let log = std::fs::read_to_string(&log).unwrap();
+        assert!(
+            log.contains("> unit 1 write holding register(s) 8208 = [0x007B]"),
+            "{log}"
+        );
+        assert!(
+            log.contains("> unit 1 read 1 holding register(s) at 8208"),
+            "{log}"
+        );
+        assert!(log.contains("< [0x01F4]"), "{log}");
     });
 }
 
