@@ -164,8 +164,9 @@ fn rtu_session(port: &mut PtyPort, ms: &ModbusShared) {
             }
         }
         while let Some(n) = rtu_request_len(&buf) {
+            // An unknown function code: the frame is what arrived (address, code, CRC at least).
             let n = if n == 0 { buf.len() } else { n };
-            if buf.len() < n {
+            if buf.len() < n || n < 4 {
                 break;
             }
             if crc16(&buf[..n]) != 0 {

@@ -197,11 +197,11 @@ pub fn parse_request(pdu: &[u8]) -> Result<Request, Exception> {
             };
             let coils = function == FC_WRITE_MULTIPLE_COILS;
             let (max, need) = if coils {
-                (1968, count.div_ceil(8))
+                (1968, count.div_ceil(8) as u32)
             } else {
-                (123, count * 2)
+                (123, count as u32 * 2)
             };
-            if count == 0 || count > max || bytes as u16 != need || pdu.len() != 6 + bytes as usize
+            if count == 0 || count > max || bytes as u32 != need || pdu.len() != 6 + bytes as usize
             {
                 return Err(bad);
             }
@@ -506,9 +506,24 @@ mod tests {
             Err(Exception::IllegalDataValue)
         );
         assert!(parse_request(&[0x03, 0x00, 0x00, 0x00, 0x7D]).is_ok());
+        // Regression: a huge quantity in a write is refused, not an arithmetic overflow.
+        assert_eq!(
+            parse_request(&[0x10, 0x00, 0x00, 0xFF, 0xFF, 0x00]),
+            Err(Exception::IllegalDataValue)
+        );
         assert!(exception_meaning(0x02).starts_with("illegal data address"));
         assert!(exception_meaning(0x0B).contains("failed to respond"));
         assert_eq!(function_name(0x83), "read holding registers");
+    }
+
+    proptest::proptest! {
+        // Any bytes at all: a request or an exception, never a panic.
+        #[test]
+        fn any_pdu_is_answered_without_panicking(pdu in proptest::collection::vec(proptest::num::u8::ANY, 0..300)) {
+            let _ = parse_request(&pdu);
+            let _ = rtu_request_len(&pdu);
+            let _ = mbap_split(&pdu);
+        }
     }
 
     #[test]
