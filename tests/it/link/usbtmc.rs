@@ -187,3 +187,38 @@ fn a_missing_node_says_what_to_check() {
     );
     assert!(text.contains("usbtmc driver"), "{text}");
 }
+
+/// A node the user may not open (root-only, as the driver's nodes are without a udev rule):
+/// `regulus probe` says so and gives the rule. As root, the binary runs as `nobody` so the
+/// permission check is real.
+#[test]
+fn permission_denied_gives_the_udev_rule() {
+    use std::os::unix::fs::PermissionsExt;
+    use std::os::unix::process::CommandExt;
+    let t = tempfile::tempdir().unwrap();
+    std::fs::set_permissions(t.path(), std::fs::Permissions::from_mode(0o755)).unwrap();
+    let node = t.path().join("usbtmc0");
+    std::fs::write(&node, b"").unwrap();
+    std::fs::set_permissions(&node, std::fs::Permissions::from_mode(0o000)).unwrap();
+    let bench = t.path().join("bench.toml");
+    std::fs::write(
+        &bench,
+        format!(
+            "[[instrument]]\nname = \"dmm\"\nroles = [\"output_voltmeter\"]\npreset = \"scpi_meter\"\nusbtmc = {{ path = {:?} }}\n",
+            node.display().to_string()
+        ),
+    )
+    .unwrap();
+    std::fs::set_permissions(&bench, std::fs::Permissions::from_mode(0o644)).unwrap();
+    let mut cmd = std::process::Command::new(env!("CARGO_BIN_EXE_regulus"));
+    cmd.arg("probe").arg("--bench").arg(&bench);
+    // SAFETY: geteuid(2) has no preconditions.
+    if unsafe { libc::geteuid() } == 0 {
+        cmd.uid(65534).gid(65534);
+    }
+    let out = cmd.output().unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(3), "{text}");
+    assert!(text.contains("permission denied opening"), "{text}");
+    assert!(text.contains(regulus::transport::UDEV_RULE), "{text}");
+}
