@@ -119,12 +119,12 @@ fn a_lost_reply_without_retries_aborts_to_the_safe_state() {
     let (reason, rig) = aborts(TransportMix::Modbus, "psu:drop=40", "MB-TO-1", |t| {
         t.replace(
             "reply_timeout_ms = 1003",
-            "reply_timeout_ms = 300\nretries = 0",
+            "reply_timeout_ms = 600\nretries = 0",
         )
     });
     assert!(reason.contains("psu"), "{reason}");
     assert!(
-        reason.contains("no valid reply from unit 2 within 300 ms"),
+        reason.contains("no valid reply from unit 2 within 600 ms"),
         "{reason}"
     );
     let (_, _, c) = rig.sim.state();
@@ -145,7 +145,7 @@ fn lost_and_garbled_replies_are_retried() {
     );
     let text = std::fs::read_to_string(&rig.bench)
         .unwrap()
-        .replace("reply_timeout_ms = 1003", "reply_timeout_ms = 300");
+        .replace("reply_timeout_ms = 1003", "reply_timeout_ms = 600");
     std::fs::write(&rig.bench, text).unwrap();
     let out = rig.run("MB-RETRY-1", &LONG.replace("points = 200", "points = 12"));
     assert_eq!(out.status.code(), Some(0), "{}", show(&out));
