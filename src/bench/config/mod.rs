@@ -7,6 +7,7 @@
 mod checked;
 mod checks;
 mod keys;
+mod link_text;
 mod load;
 mod modbus_checks;
 mod modbus_map;

@@ -70,6 +70,10 @@ fn a_register_map_becomes_actions_and_command_texts() {
         Some(CommandKey::LoadSetCurrent)
     );
     assert!(i.modbus.as_ref().unwrap().identity.is_none());
+    assert_eq!(
+        i.link_description(),
+        "modbus rtu unit 3 on serial /dev/ttyUSB0 @ 9600 8E1"
+    );
     assert_eq!(i.identity_query, None);
 }
 
