@@ -61,6 +61,8 @@ fn fake_machine(root: &Path) {
 
 #[test]
 fn lists_serial_ports_with_usb_ids_and_usbtmc_nodes() {
+    // A child process must not inherit another test's pseudo-terminal (support::lock).
+    let _g = serial();
     let t = tempfile::tempdir().unwrap();
     fake_machine(t.path());
     let sys = t.path().join("sys");
@@ -109,6 +111,8 @@ fn lists_serial_ports_with_usb_ids_and_usbtmc_nodes() {
 
 #[test]
 fn no_sysfs_lists_nothing_and_does_not_panic() {
+    // A child process must not inherit another test's pseudo-terminal (support::lock).
+    let _g = serial();
     let t = tempfile::tempdir().unwrap();
     let out = ports(&["--sys-root", t.path().join("none").to_str().unwrap()]);
     let text = String::from_utf8_lossy(&out.stdout);
@@ -121,6 +125,8 @@ fn no_sysfs_lists_nothing_and_does_not_panic() {
 
 #[test]
 fn this_machine_is_listed() {
+    // A child process must not inherit another test's pseudo-terminal (support::lock).
+    let _g = serial();
     let out = ports(&["--json"]);
     assert_eq!(
         out.status.code(),

@@ -20,16 +20,27 @@ use std::sync::{Arc, Mutex};
 fn seqpacket_pair() -> (File, File) {
     let mut fds = [0; 2];
     // SAFETY: socketpair(2) fills two descriptors that we then own, one File each.
-    let r = unsafe { libc::socketpair(libc::AF_UNIX, libc::SOCK_SEQPACKET, 0, fds.as_mut_ptr()) };
+    let r = unsafe {
+        libc::socketpair(
+            libc::AF_UNIX,
+            libc::SOCK_SEQPACKET | libc::SOCK_CLOEXEC,
+            0,
+            fds.as_mut_ptr(),
+        )
+    };
     assert_eq!(r, 0, "socketpair: {}", std::io::Error::last_os_error());
     unsafe { (File::from_raw_fd(fds[0]), File::from_raw_fd(fds[1])) }
 }
 
 /// The instrument side: one reply message per query, nothing otherwise; every message kept.
-fn instrument(mut dev: File, answer: fn(&str) -> Option<String>) -> Arc<Mutex<Vec<String>>> {
+/// The thread ends when our end is closed.
+fn instrument(
+    mut dev: File,
+    answer: fn(&str) -> Option<String>,
+) -> (Arc<Mutex<Vec<String>>>, std::thread::JoinHandle<()>) {
     let got = Arc::new(Mutex::new(Vec::new()));
     let got2 = Arc::clone(&got);
-    std::thread::spawn(move || {
+    let h = std::thread::spawn(move || {
         let mut buf = [0u8; 4096];
         loop {
             let n = match dev.read(&mut buf) {
@@ -45,7 +56,7 @@ fn instrument(mut dev: File, answer: fn(&str) -> Option<String>) -> Arc<Mutex<Ve
             }
         }
     });
-    got
+    (got, h)
 }
 
 fn meter(msg: &str) -> Option<String> {
@@ -93,8 +104,8 @@ fn presets_work_over_usbtmc_with_one_read_per_query() {
     assert_eq!(cfg.instruments[0].link.describe(), "usbtmc /dev/usbtmc0");
     let (ours_m, dev_m) = seqpacket_pair();
     let (ours_l, dev_l) = seqpacket_pair();
-    let got_m = instrument(dev_m, meter);
-    let got_l = instrument(dev_l, load);
+    let (got_m, th_m) = instrument(dev_m, meter);
+    let (got_l, th_l) = instrument(dev_l, load);
     let (lm, cm) = link(ours_m);
     let (ll, cl) = link(ours_l);
     let rt = runtime();
@@ -118,6 +129,10 @@ fn presets_work_over_usbtmc_with_one_read_per_query() {
         }
         assert!(bench.safe_state().await.is_empty());
     });
+    // Our ends close with the bench and the runtime: the instrument has seen every message.
+    drop(rt);
+    th_m.join().unwrap();
+    th_l.join().unwrap();
     let m = got_m.lock().unwrap().clone();
     let l = got_l.lock().unwrap().clone();
     // Every message is one whole line.
@@ -193,6 +208,8 @@ fn a_missing_node_says_what_to_check() {
 /// permission check is real.
 #[test]
 fn permission_denied_gives_the_udev_rule() {
+    // A child process must not inherit another test's pseudo-terminal (support::lock).
+    let _g = crate::support::lock::serial();
     use std::os::unix::fs::PermissionsExt;
     use std::os::unix::process::CommandExt;
     let t = tempfile::tempdir().unwrap();
