@@ -105,6 +105,7 @@ pub fn options(args: &Args) -> Result<SimOptions, CodedError> {
     for spec in &args.faults {
         opts = opts.fault(Fault::parse(spec).map_err(|e| usage(format!("--{e}")))?);
     }
+    opts.check_faults().map_err(|e| usage(format!("--{e}")))?;
     Ok(opts)
 }
 

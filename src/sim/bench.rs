@@ -111,11 +111,7 @@ impl SimBench {
                 _ => None,
             });
             let modbus = opts.transport.modbus(kind);
-            if exception_every.is_some() && !modbus {
-                return Err(SimError::FaultNeedsModbus {
-                    instrument: name.to_string(),
-                });
-            }
+            opts.check_faults()?;
             let protocol = if modbus {
                 PortProtocol::Modbus
             } else {

@@ -176,6 +176,20 @@ impl SimOptions {
         self.model = m;
         self
     }
+    /// Faults that cannot apply to this bench: an exception fault on an instrument that does
+    /// not speak Modbus.
+    pub fn check_faults(&self) -> Result<(), SimError> {
+        for f in &self.faults {
+            if let Fault::Port(k, PortFault::ExceptionEvery(_)) = f {
+                if !self.transport.modbus(*k) {
+                    return Err(SimError::FaultNeedsModbus {
+                        instrument: k.name().to_string(),
+                    });
+                }
+            }
+        }
+        Ok(())
+    }
     pub fn without(mut self, kind: InstrumentKind) -> Self {
         if !self.omit.contains(&kind) {
             self.omit.push(kind);
@@ -191,7 +205,7 @@ pub enum SimError {
     Unit(#[from] UnitError),
     #[error("cannot create a pseudo-terminal for '{instrument}': {detail} (check that /dev/ptmx exists and is usable, or put every instrument on TCP)")]
     Pty { instrument: String, detail: String },
-    #[error("fault '{instrument}:exception' needs a Modbus device: use --transport modbus or modbus-tcp (the load and the source speak Modbus there)")]
+    #[error("fault '{instrument}:exception' needs a Modbus device: only eload and psu speak Modbus, with --transport modbus or modbus-tcp")]
     FaultNeedsModbus { instrument: String },
     #[error("cannot listen on 127.0.0.1 for '{instrument}': {source}")]
     Listen {

@@ -171,3 +171,48 @@ fn a_closing_load_port_aborts_and_the_source_goes_off() {
         assert!(reason.contains("load_input_off"), "{reason}");
     }
 }
+
+#[test]
+fn regulus_sim_writes_a_bench_file_for_its_modbus_devices() {
+    use std::process::Command;
+    let _g = serial();
+    let t = tempfile::tempdir().unwrap();
+    let bench = t.path().join("bench.toml");
+    let out = Command::new(env!("CARGO_BIN_EXE_regulus"))
+        .args([
+            "sim",
+            "--design",
+            &sample(LAB),
+            "--transport",
+            "modbus-tcp",
+            "--run-for",
+            "0.2",
+        ])
+        .arg("--write-bench")
+        .arg(&bench)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0), "{}", show(&out));
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(stdout.contains("modbus unit 1, tcp 127.0.0.1:"), "{stdout}");
+    let cfg = regulus::bench::BenchConfig::load(&bench).unwrap_or_else(|e| panic!("{e}"));
+    let eload = cfg.instruments.iter().find(|i| i.name == "eload").unwrap();
+    assert!(eload
+        .link_description()
+        .starts_with("modbus tcp unit 1 on tcp 127.0.0.1:"));
+    // An exception fault on an instrument that does not speak Modbus is a usage error.
+    let out = Command::new(env!("CARGO_BIN_EXE_regulus"))
+        .args([
+            "sim",
+            "--design",
+            &sample(LAB),
+            "--fault",
+            "dmm:exception=3",
+            "--run-for",
+            "0",
+        ])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2), "{}", show(&out));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("only eload and psu speak Modbus"));
+}
