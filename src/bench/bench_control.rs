@@ -25,7 +25,7 @@ impl BenchControl for Bench {
             .map(|i| InstrumentIdentity {
                 name: i.cfg.name.clone(),
                 roles: i.cfg.roles.clone(),
-                link: i.cfg.link.describe(),
+                link: i.cfg.link_description(),
                 identity: i.identity(),
             })
             .collect()

@@ -90,6 +90,12 @@ pub enum BenchError {
     NoRole {
         role: crate::measure::Role,
     },
+    /// A Modbus exchange failed (see `modbus_fault`).
+    Modbus {
+        instrument: String,
+        action: String,
+        fault: super::modbus_fault::ModbusFault,
+    },
     NoInstrument {
         name: String,
         known: String,
@@ -136,7 +142,8 @@ impl BenchError {
             | BenchError::Io { instrument, .. }
             | BenchError::TrafficLog { instrument, .. }
             | BenchError::Render { instrument, .. }
-            | BenchError::Command { instrument, .. } => Some(instrument),
+            | BenchError::Command { instrument, .. }
+            | BenchError::Modbus { instrument, .. } => Some(instrument),
             _ => None,
         }
     }
@@ -188,6 +195,7 @@ impl fmt::Display for Detail<'_> {
             ),
             E::Render { template, error, .. } => write!(f, "command '{template}': {error}"),
             E::Command { detail, .. } => f.write_str(detail),
+            E::Modbus { action, fault, .. } => write!(f, "modbus {action}: {fault}"),
             E::NoRole { role } => write!(f, "no instrument on this bench holds role '{role}'; add it to a [[instrument]] roles list"),
             E::NoInstrument { name, known } => write!(f, "no instrument named '{name}' in the bench file; it has: {known}"),
         }

@@ -53,6 +53,8 @@ pub struct Instrument {
     stream_task: Option<JoinHandle<()>>,
     log: Option<Arc<TrafficLog>>,
     identity: StdMutex<Option<String>>,
+    /// The driver of a Modbus instrument (see `modbus`); `None` for text instruments.
+    modbus: Option<super::modbus::ModbusDevice>,
 }
 
 impl Drop for Instrument {
@@ -78,6 +80,23 @@ pub async fn connect(cfg: &InstrumentConfig) -> Result<BoxTransport, BenchError>
                     link: cfg.link.describe(),
                     error,
                 },
+            }
+        }),
+        LinkConfig::UsbTmc(u) => crate::transport::open_usbtmc(&u.path).map_err(|e| {
+            let error = match e {
+                OpenError::PermissionDenied => {
+                    OpenError::Other(crate::transport::permission_help(&u.path))
+                }
+                OpenError::Missing => OpenError::Other(format!(
+                    "no such device node {}; check that the instrument is on and plugged in, and that the usbtmc driver is loaded (lsmod | grep usbtmc)",
+                    u.path
+                )),
+                e => e,
+            };
+            BenchError::Open {
+                instrument,
+                link: cfg.link.describe(),
+                error,
             }
         }),
         LinkConfig::Tcp(t) => open_tcp(t).await.map_err(|e| {
@@ -113,6 +132,7 @@ impl Instrument {
                 }
             })?)),
         };
+        let (io, modbus) = super::modbus::take_link(&cfg, io, log.clone());
         let (r, w) = tokio::io::split(io);
         let mut reader = Some(LineReader::new(r, &cfg.read_terminator));
         let writer = LineWriter::new(w, &cfg.write_terminator);
@@ -167,6 +187,7 @@ impl Instrument {
             stream_task,
             log,
             identity: StdMutex::new(None),
+            modbus,
         })
     }
 
@@ -233,6 +254,9 @@ impl Instrument {
 
     /// Send commands that get no reply, in order.
     pub async fn send_all(&self, lines: &[String]) -> Result<(), BenchError> {
+        if let Some(m) = &self.modbus {
+            return m.send_all(lines).await;
+        }
         let mut port = self.port.lock().await;
         for l in lines {
             self.send_locked(&mut port, l).await?;
@@ -242,6 +266,9 @@ impl Instrument {
 
     /// Render and send a template (`value` ignored by templates without placeholder).
     pub async fn send_template(&self, t: &Template, value: f64) -> Result<(), BenchError> {
+        if let Some(m) = &self.modbus {
+            return m.send(t.source(), value).await;
+        }
         let line = t.render(value).map_err(|error| BenchError::Render {
             instrument: self.cfg.name.clone(),
             template: t.source().to_string(),
@@ -266,6 +293,9 @@ impl Instrument {
     /// Wait until the instrument has applied the settings sent so far, when it has a confirm
     /// query (`*OPC?` for SCPI loads and sources); any reply line confirms.
     pub async fn confirm(&self) -> Result<(), BenchError> {
+        if let Some(m) = &self.modbus {
+            return m.confirm().await;
+        }
         match self.cfg.confirm_query.clone() {
             Some(q) => self.raw_query(&q).await.map(|_| ()),
             None => Ok(()),
@@ -275,6 +305,9 @@ impl Instrument {
     /// Send a query and return its first non-empty reply line as text (identity and such).
     /// On a streaming instrument, the first line after sending that is not a stream line.
     pub async fn raw_query(&self, q: &str) -> Result<String, BenchError> {
+        if let Some(m) = &self.modbus {
+            return m.query(q).await;
+        }
         let mut last = BenchError::NoReply {
             instrument: self.cfg.name.clone(),
             command: q.to_string(),
@@ -373,6 +406,9 @@ impl Instrument {
 
     /// Take one reading for `role`: a query, or the stream's newest / averaged fresh lines.
     pub async fn read(&self, role: Role) -> Result<Reading, BenchError> {
+        if let Some(m) = &self.modbus {
+            return m.read(role).await;
+        }
         match &self.cfg.reading {
             ReadingStyle::Query => {
                 let Some(t) = self.cfg.commands.measure.get(&role) else {
@@ -587,6 +623,9 @@ impl Instrument {
 
     /// Send the safe-state sequence; every command is tried even when one fails.
     pub async fn safe_state(&self) -> Vec<BenchError> {
+        if let Some(m) = &self.modbus {
+            return m.safe_state(&self.cfg.safe_state).await;
+        }
         let mut errors = Vec::new();
         let cmds = self.cfg.safe_state.clone();
         if cmds.is_empty() {

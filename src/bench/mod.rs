@@ -8,6 +8,8 @@ mod bench_control;
 pub mod config;
 mod error;
 mod instrument;
+mod modbus;
+mod modbus_fault;
 mod open;
 mod probe;
 
@@ -19,5 +21,6 @@ pub use config::{
 };
 pub use error::{BenchError, BenchErrorKind};
 pub use instrument::{connect, Instrument};
+pub use modbus_fault::ModbusFault;
 pub use open::Bench;
 pub use probe::{probe, write_probe_table, ProbeReport, ProbeRow};

@@ -40,7 +40,7 @@ impl ProbeReport {
 
 async fn probe_one(cfg: InstrumentConfig) -> (Option<String>, Vec<ProbeRow>) {
     let name = cfg.name.clone();
-    let link = cfg.link.describe();
+    let link = cfg.link_description();
     let fail = |e: BenchError| ProbeRow {
         instrument: name.clone(),
         link: link.clone(),

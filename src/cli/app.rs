@@ -1,7 +1,7 @@
 //! The command line's shape: one clap derive `Cli` with one `Subcommand` enum, and
 //! [`dispatch`], which runs the chosen command and returns its exit code.
 
-use super::{compare, demo, design, history, probe, report, run, sim, size};
+use super::{compare, demo, design, history, ports, probe, report, run, sim, size};
 use clap::{Parser, Subcommand};
 
 #[derive(Debug, Parser)]
@@ -29,6 +29,8 @@ pub enum Command {
     Size(size::Args),
     /// Connect to a bench's instruments, identify them and take one reading from each.
     Probe(probe::Args),
+    /// List serial ports and USB-TMC nodes; with --identify, ask each who it is.
+    Ports(ports::Args),
     /// Start a simulated bench (a simulated unit and its instruments) on local ports.
     Sim(sim::Args),
     /// Run a test plan on a unit and keep a dated record (stresses the unit: read the cautions).
@@ -49,6 +51,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<u8> {
         Command::Design(a) => design::run(a),
         Command::Size(a) => size::run(a),
         Command::Probe(a) => probe::run(a),
+        Command::Ports(a) => ports::run(a),
         Command::Sim(a) => sim::run(a),
         Command::Run(a) => run::run(a),
         Command::Demo(a) => demo::run(a),

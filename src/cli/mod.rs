@@ -10,6 +10,7 @@ pub mod design;
 mod exit;
 pub mod history;
 pub mod options;
+pub mod ports;
 pub mod present;
 pub mod probe;
 pub mod report;

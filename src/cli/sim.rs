@@ -29,14 +29,17 @@ pub struct Args {
     pub write_truth: Option<PathBuf>,
     /// Inject a fault (repeatable). Unit: sense=0.56, diodes=+1, diodes=-1, theta_sa=12,
     /// vref=5.3. Port (dmm, ammeter, eload, psu, thermo): dmm:garbage=5, dmm:drop=3,
-    /// eload:slow=800, psu:close-after=20, thermo:close-at=5.
+    /// eload:slow=800, psu:close-after=20, thermo:close-at=5; on Modbus devices also
+    /// eload:exception=4 (every 4th request answered with an exception).
     #[arg(long = "fault", value_name = "SPEC")]
     pub faults: Vec<String>,
     /// Reply latency of every instrument in milliseconds (0 allowed).
     #[arg(long, default_value_t = 3, value_name = "N")]
     pub latency_ms: u64,
     /// Port kinds: mixed (meters and thermometer on pseudo-terminals, load and source on
-    /// TCP), pty (all pseudo-terminals) or tcp (all loopback TCP).
+    /// TCP), pty (all pseudo-terminals), tcp (all loopback TCP), modbus (load and source as
+    /// Modbus RTU devices, all on pseudo-terminals) or modbus-tcp (load and source as Modbus
+    /// TCP devices, all on loopback TCP).
     #[arg(long, default_value = "mixed", value_name = "KIND")]
     pub transport: String,
     /// Noise multiplier of the instruments (1 = realistic, 0 = noiseless).
@@ -59,7 +62,7 @@ pub fn options(args: &Args) -> Result<SimOptions, CodedError> {
     let usage = |m: String| CodedError::new(EXIT_USAGE, m);
     let transport = TransportMix::parse(&args.transport).ok_or_else(|| {
         usage(format!(
-            "--transport '{}': use mixed, pty or tcp",
+            "--transport '{}': use mixed, pty, tcp, modbus or modbus-tcp",
             args.transport
         ))
     })?;
@@ -102,6 +105,7 @@ pub fn options(args: &Args) -> Result<SimOptions, CodedError> {
     for spec in &args.faults {
         opts = opts.fault(Fault::parse(spec).map_err(|e| usage(format!("--{e}")))?);
     }
+    opts.check_faults().map_err(|e| usage(format!("--{e}")))?;
     Ok(opts)
 }
 
@@ -112,10 +116,16 @@ pub fn write_summary<W: Write>(w: &mut W, design: &Design, sim: &SimBench) -> st
     writeln!(w)?;
     writeln!(w, "Instruments:")?;
     for p in sim.ports() {
-        let link = match &p.link {
+        let mut link = match &p.link {
             Link::Pty(path) => format!("pseudo-terminal {path}"),
             Link::Tcp(a) => format!("tcp {a}"),
         };
+        if p.protocol == crate::sim::PortProtocol::Modbus {
+            link = format!(
+                "modbus unit {}, {link}",
+                crate::sim::modbus_map::unit_id(p.kind)
+            );
+        }
         writeln!(w, "  {:<8} {:<26} {}", p.name, p.kind.model(), link)?;
     }
     writeln!(w)?;

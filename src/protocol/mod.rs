@@ -6,6 +6,7 @@
 //! The template syntax is documented in `template.rs`.
 
 mod identity;
+pub mod modbus;
 mod number;
 mod reply;
 mod template;

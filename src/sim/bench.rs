@@ -4,7 +4,7 @@
 use super::bench_file::bench_toml;
 use super::instruments::{FaultSchedule, InstrumentKind, InstrumentState, Noise, PortFaults};
 use super::options::{Fault, PortFault, SimError, SimOptions};
-use super::ports::{Link, PortInfo};
+use super::ports::{Link, PortInfo, PortProtocol};
 use super::serve::{self, lock, Endpoint, Shared, World};
 use super::unit::{Controls, OperatingPoint, SimUnit, Thermal, Truth, UnitFault};
 use crate::design::Design;
@@ -80,6 +80,7 @@ impl SimBench {
                             PortFault::SlowMs(ms) => faults.slow_ms = ms,
                             PortFault::CloseAfter(c) => faults.close_after = Some(c),
                             PortFault::CloseAtSecs(s) => faults.close_at_s = Some(s),
+                            PortFault::ExceptionEvery(_) => {}
                         }
                     }
                 }
@@ -104,6 +105,31 @@ impl SimBench {
                 started,
             };
             let name = kind.name();
+            // Modbus devices (see `modbus`): the load and source of the Modbus mixes.
+            let exception_every = opts.faults.iter().find_map(|f| match f {
+                Fault::Port(k, PortFault::ExceptionEvery(e)) if *k == kind => Some(*e),
+                _ => None,
+            });
+            let modbus = opts.transport.modbus(kind);
+            opts.check_faults()?;
+            let protocol = if modbus {
+                PortProtocol::Modbus
+            } else {
+                PortProtocol::Text
+            };
+            let ms = modbus.then(|| super::modbus::ModbusShared {
+                shared: sh.clone(),
+                device: Arc::new(Mutex::new(super::modbus_map::ModbusDeviceState::new(
+                    kind,
+                    &format!("SIM{}-{}", opts.seed, n + 1),
+                    opts.seed
+                        .wrapping_mul(0x9E37_79B9)
+                        .wrapping_add(n as u64 + 101),
+                    opts.noise,
+                ))),
+                exception_every,
+                requests: Arc::new(std::sync::atomic::AtomicU32::new(0)),
+            });
             // On any error `bench` is dropped, which stops the threads already started.
             let (link, handle) = if opts.transport.uses_pty(kind) {
                 let (master, path) = open_pty(name)?;
@@ -111,7 +137,11 @@ impl SimBench {
                     master,
                     slave_path: path.clone(),
                 };
-                let h = serve::spawn_pty(port, sh).map_err(|source| SimError::Thread {
+                let h = match ms {
+                    Some(ms) => super::modbus::spawn_rtu(port, ms),
+                    None => serve::spawn_pty(port, sh),
+                }
+                .map_err(|source| SimError::Thread {
                     instrument: name.to_string(),
                     source,
                 })?;
@@ -126,14 +156,23 @@ impl SimBench {
                     instrument: name.to_string(),
                     source,
                 })?;
-                let h = serve::spawn_tcp(listener, sh).map_err(|source| SimError::Thread {
+                let h = match ms {
+                    Some(ms) => super::modbus::spawn_tcp(listener, ms),
+                    None => serve::spawn_tcp(listener, sh),
+                }
+                .map_err(|source| SimError::Thread {
                     instrument: name.to_string(),
                     source,
                 })?;
                 (Link::Tcp(addr), h)
             };
             bench.threads.push(handle);
-            bench.ports.push(PortInfo { kind, name, link });
+            bench.ports.push(PortInfo {
+                kind,
+                name,
+                link,
+                protocol,
+            });
         }
         Ok(bench)
     }

@@ -3,7 +3,7 @@
 
 use super::instruments::InstrumentKind;
 use super::options::{Fault, PortFault, SimOptions};
-use super::ports::{Link, PortInfo};
+use super::ports::{Link, PortInfo, PortProtocol};
 use std::fmt::Write as _;
 
 pub(super) fn toml_str(s: &str) -> String {
@@ -53,6 +53,10 @@ pub fn bench_toml(design_name: &str, opts: &SimOptions, ports: &[PortInfo]) -> S
         .unwrap_or(0);
     let timeout_ms = 1000 + opts.latency.as_millis() as u64 + slowest;
     for p in ports {
+        if p.protocol == PortProtocol::Modbus {
+            s.push_str(&super::modbus_map::bench_entry(p, timeout_ms));
+            continue;
+        }
         let _ = writeln!(s, "[[instrument]]");
         let _ = writeln!(s, "name = {}", toml_str(p.name));
         let (roles, preset) = match p.kind {

@@ -7,6 +7,8 @@
 mod bench;
 mod bench_file;
 pub mod instruments;
+mod modbus;
+pub mod modbus_map;
 mod options;
 mod ports;
 pub mod serve;
@@ -15,5 +17,5 @@ pub mod unit;
 pub use bench::{SimBench, PTY_PAIR_LOCK};
 pub use bench_file::bench_toml;
 pub use options::{Fault, PortFault, SimError, SimOptions, TransportMix};
-pub use ports::{Link, PortInfo};
+pub use ports::{Link, PortInfo, PortProtocol};
 pub use unit::{Controls, OperatingPoint, SimUnit, Thermal, Truth, UnitFault, UnitModel};

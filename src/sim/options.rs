@@ -17,21 +17,32 @@ pub enum TransportMix {
     AllPty,
     /// Every instrument on TCP.
     AllTcp,
+    /// Load and source as Modbus RTU devices, every instrument on a pseudo-terminal.
+    Modbus,
+    /// Load and source as Modbus TCP devices, every instrument on loopback TCP.
+    ModbusTcp,
 }
 
 impl TransportMix {
     pub(super) fn uses_pty(self, kind: InstrumentKind) -> bool {
         match self {
-            TransportMix::AllPty => true,
-            TransportMix::AllTcp => false,
+            TransportMix::AllPty | TransportMix::Modbus => true,
+            TransportMix::AllTcp | TransportMix::ModbusTcp => false,
             TransportMix::Mixed => !matches!(kind, InstrumentKind::Load | InstrumentKind::Source),
         }
+    }
+    /// True when `kind` speaks Modbus (the load and the source of the Modbus mixes).
+    pub(super) fn modbus(self, kind: InstrumentKind) -> bool {
+        matches!(self, TransportMix::Modbus | TransportMix::ModbusTcp)
+            && matches!(kind, InstrumentKind::Load | InstrumentKind::Source)
     }
     pub fn parse(s: &str) -> Option<TransportMix> {
         match s {
             "mixed" => Some(TransportMix::Mixed),
             "pty" => Some(TransportMix::AllPty),
             "tcp" => Some(TransportMix::AllTcp),
+            "modbus" => Some(TransportMix::Modbus),
+            "modbus-tcp" => Some(TransportMix::ModbusTcp),
             _ => None,
         }
     }
@@ -52,6 +63,8 @@ pub enum PortFault {
     SlowMs(u64),
     CloseAfter(u32),
     CloseAtSecs(f64),
+    /// Every Nth request of a Modbus device is answered with an exception (0x04).
+    ExceptionEvery(u32),
 }
 
 impl Fault {
@@ -60,7 +73,8 @@ impl Fault {
     /// `fold_bottom=330`, `pass_stage` (the other stage). Port faults name an instrument (`dmm`, `ammeter`, `eload`, `psu`, `thermo`):
     /// `dmm:garbage=5` (a garbage line before every 5th reply), `dmm:drop=3` (every 3rd reply
     /// lost), `eload:slow=800` (every reply 800 ms late), `psu:close-after=20` (port closes
-    /// after 20 commands; streaming meter: lines), `thermo:close-at=5` (closes 5 s after start).
+    /// after 20 commands; streaming meter: lines), `thermo:close-at=5` (closes 5 s after start),
+    /// `eload:exception=4` (a Modbus device answers every 4th request with an exception).
     pub fn parse(spec: &str) -> Result<Fault, String> {
         let Some((inst, rest)) = spec.split_once(':') else {
             if let Some(part) = super::unit::PartFault::parse(spec) {
@@ -88,6 +102,7 @@ impl Fault {
             "drop" => PortFault::DropEvery(count(value)?),
             "slow" => PortFault::SlowMs(count(value)? as u64),
             "close-after" => PortFault::CloseAfter(count(value)?),
+            "exception" => PortFault::ExceptionEvery(count(value)?),
             "close-at" => {
                 let s: f64 = value
                     .trim()
@@ -101,7 +116,7 @@ impl Fault {
             other => {
                 return Err(format!(
                     "fault '{spec}': unknown port fault '{other}' \
-                     (garbage, drop, slow, close-after, close-at)"
+                     (garbage, drop, slow, close-after, close-at, exception)"
                 ))
             }
         };
@@ -165,6 +180,20 @@ impl SimOptions {
         self.model = m;
         self
     }
+    /// Faults that cannot apply to this bench: an exception fault on an instrument that does
+    /// not speak Modbus.
+    pub fn check_faults(&self) -> Result<(), SimError> {
+        for f in &self.faults {
+            if let Fault::Port(k, PortFault::ExceptionEvery(_)) = f {
+                if !self.transport.modbus(*k) {
+                    return Err(SimError::FaultNeedsModbus {
+                        instrument: k.name().to_string(),
+                    });
+                }
+            }
+        }
+        Ok(())
+    }
     pub fn without(mut self, kind: InstrumentKind) -> Self {
         if !self.omit.contains(&kind) {
             self.omit.push(kind);
@@ -180,6 +209,8 @@ pub enum SimError {
     Unit(#[from] UnitError),
     #[error("cannot create a pseudo-terminal for '{instrument}': {detail} (check that /dev/ptmx exists and is usable, or put every instrument on TCP)")]
     Pty { instrument: String, detail: String },
+    #[error("fault '{instrument}:exception' needs a Modbus device: only eload and psu speak Modbus, with --transport modbus or modbus-tcp")]
+    FaultNeedsModbus { instrument: String },
     #[error("cannot listen on 127.0.0.1 for '{instrument}': {source}")]
     Listen {
         instrument: String,

@@ -24,10 +24,21 @@ impl std::fmt::Display for Link {
     }
 }
 
+/// What an instrument speaks on its port.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum PortProtocol {
+    /// The text line protocol (docs/ARCHITECTURE.md).
+    Text,
+    /// Modbus: RTU on a pseudo-terminal, Modbus TCP on a TCP port.
+    Modbus,
+}
+
 /// One simulated instrument's port.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct PortInfo {
     pub kind: InstrumentKind,
     pub name: &'static str,
     pub link: Link,
+    pub protocol: PortProtocol,
 }

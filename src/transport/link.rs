@@ -110,11 +110,18 @@ pub struct TcpSettings {
     pub connect_timeout: Duration,
 }
 
+/// A USB-TMC node (message-based, see `usbtmc`).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct UsbTmcSettings {
+    pub path: String,
+}
+
 /// How an instrument is reached.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum LinkConfig {
     Serial(SerialSettings),
     Tcp(TcpSettings),
+    UsbTmc(UsbTmcSettings),
 }
 
 impl LinkConfig {
@@ -130,6 +137,7 @@ impl LinkConfig {
                 s.stop_bits.bits()
             ),
             LinkConfig::Tcp(t) => format!("tcp {}:{}", t.host, t.port),
+            LinkConfig::UsbTmc(u) => format!("usbtmc {}", u.path),
         }
     }
 }

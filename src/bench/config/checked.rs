@@ -74,6 +74,8 @@ pub struct InstrumentConfig {
     pub commands: CommandSet,
     pub reply: ReplyParser,
     pub reading: ReadingStyle,
+    /// The register map of a Modbus instrument (`None`: a text instrument).
+    pub modbus: Option<super::modbus_map::ModbusMap>,
 }
 
 impl InstrumentConfig {

@@ -58,15 +58,23 @@ type Checked<T> = Result<T, BenchError>;
 /// Check one `[[instrument]]` table (`span`: the whole table), rule by rule.
 pub(super) fn check_instrument(
     file: FileCtx<'_>,
-    raw: RawInstrument,
+    mut raw: RawInstrument,
     span: Range<usize>,
 ) -> Checked<InstrumentConfig> {
     let name = check_name(file, &raw.name)?;
+    // Modbus instruments: their register map (see `modbus_checks`).
+    let modbus =
+        super::modbus_checks::check_modbus((file.file, file.src), &name, &mut raw, span.clone())?;
+    // USB-TMC links (see `usbtmc_checks`).
+    let usbtmc = super::usbtmc_checks::check_usbtmc_link((file.file, file.src), &name, &mut raw)?;
     let cx = Ctx { file, name: &name };
     let roles_span = raw.roles.span();
     let roles = check_roles(&cx, raw.roles)?;
     let preset = check_preset(&cx, raw.preset.as_ref())?;
-    let link = check_link(&cx, raw.serial, raw.tcp, &span)?;
+    let link = match usbtmc {
+        Some(usbtmc) => usbtmc,
+        None => check_link(&cx, raw.serial, raw.tcp, &span)?,
+    };
     let write_terminator = raw
         .write_terminator
         .map(Spanned::into_inner)
@@ -112,6 +120,7 @@ pub(super) fn check_instrument(
         commands: CommandSet { templates, measure },
         reply,
         reading,
+        modbus,
     })
 }
 

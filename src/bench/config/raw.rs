@@ -49,6 +49,10 @@ pub(super) struct RawInstrument {
     pub role_queries: Option<BTreeMap<Role, Spanned<String>>>,
     pub reply: Option<RawReply>,
     pub reading: Option<Spanned<RawReading>>,
+    /// A Modbus instrument's register map (see `modbus_raw`).
+    pub modbus: Option<Spanned<super::modbus_raw::RawModbus>>,
+    /// A USB-TMC link (see `usbtmc_checks`).
+    pub usbtmc: Option<Spanned<super::usbtmc_raw::RawUsbTmc>>,
 }
 
 #[derive(Debug, Deserialize)]

@@ -4,3 +4,4 @@ mod parse_prop;
 mod probe_cli;
 mod pty;
 mod tcp;
+mod usbtmc;

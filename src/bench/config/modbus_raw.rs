@@ -1,0 +1,46 @@
+//! The `[instrument.modbus]` table as written: serde types with spans where a rule points.
+//! Every table refuses unknown keys; [`super::modbus_checks`] checks them.
+
+use crate::protocol::modbus::{DataType, ObjectKind, WordOrder};
+use serde::Deserialize;
+use std::collections::BTreeMap;
+use toml::Spanned;
+
+/// The `[instrument.modbus]` table as written.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawModbus {
+    pub unit: Option<Spanned<i64>>,
+    pub frame_gap_ms: Option<Spanned<f64>>,
+    pub confirm: Option<ConfirmName>,
+    pub identity: Option<Spanned<RawIdentity>>,
+    pub registers: Option<Spanned<BTreeMap<Spanned<String>, Spanned<RawRegister>>>>,
+}
+
+#[derive(Debug, Clone, Copy, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub(crate) enum ConfirmName {
+    Readback,
+    WriteResponse,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawIdentity {
+    pub object: ObjectKind,
+    pub address: i64,
+    pub words: i64,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawRegister {
+    pub object: Spanned<ObjectKind>,
+    pub address: Spanned<i64>,
+    #[serde(rename = "type")]
+    pub data_type: Option<Spanned<DataType>>,
+    pub word_order: Option<WordOrder>,
+    pub scale: Option<Spanned<f64>>,
+    pub unit: Option<Spanned<String>>,
+    pub value: Option<Spanned<toml::Value>>,
+}

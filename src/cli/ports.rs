@@ -1,0 +1,210 @@
+//! `regulus ports`: list the serial ports (path, `/dev/serial/by-id` name, USB vendor and
+//! product id, serial number) and USB-TMC nodes of this machine; with `--identify`, send each
+//! (or the one given with `--port`) the identity query with the given link settings and show
+//! the reply. Nothing else is ever written to a port. `--json` for scripts.
+
+use super::{CodedError, EXIT_ABORTED, EXIT_OK, EXIT_USAGE};
+use crate::transport::{
+    identify, list_ports, DataBits, FlowControl, FoundPort, LinkConfig, Parity, PortList,
+    SerialSettings, StopBits, UsbTmcSettings,
+};
+use anyhow::Context;
+use serde::Serialize;
+use std::io::Write;
+use std::num::NonZeroU32;
+use std::path::PathBuf;
+use std::time::Duration;
+
+/// Options of `regulus ports`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// Send the identity query to each port listed (or to --port) and show the reply.
+    #[arg(long)]
+    pub identify: bool,
+    /// Identify only this port (it need not be listed, e.g. a pseudo-terminal).
+    #[arg(long, value_name = "PATH")]
+    pub port: Option<String>,
+    /// Identity query to send.
+    #[arg(long, default_value = "*IDN?", value_name = "TEXT")]
+    pub query: String,
+    /// Serial line settings for --identify.
+    #[arg(long, default_value_t = 9600)]
+    pub baud: u32,
+    #[arg(long, default_value_t = 8)]
+    pub data_bits: u8,
+    /// none, odd or even.
+    #[arg(long, default_value = "none")]
+    pub parity: String,
+    #[arg(long, default_value_t = 1)]
+    pub stop_bits: u8,
+    /// How long to wait for the reply, in milliseconds.
+    #[arg(long, default_value_t = 1000, value_name = "MS")]
+    pub timeout_ms: u64,
+    /// Print JSON instead of a table.
+    #[arg(long)]
+    pub json: bool,
+    /// Where sysfs is (for containers and tests).
+    #[arg(long, default_value = "/sys", value_name = "DIR")]
+    pub sys_root: PathBuf,
+    /// Where the device nodes are (for containers and tests).
+    #[arg(long, default_value = "/dev", value_name = "DIR")]
+    pub dev_root: PathBuf,
+}
+
+/// One identification attempt.
+#[derive(Debug, Clone, Serialize)]
+pub struct Identified {
+    pub path: String,
+    pub reply: Option<String>,
+    pub error: Option<String>,
+}
+
+#[derive(Serialize)]
+struct Json<'a> {
+    #[serde(flatten)]
+    ports: &'a PortList,
+    identified: &'a [Identified],
+}
+
+pub fn run(args: Args) -> anyhow::Result<u8> {
+    let usage = |m: String| CodedError::new(EXIT_USAGE, m);
+    let parity = match args.parity.as_str() {
+        "none" => Parity::None,
+        "odd" => Parity::Odd,
+        "even" => Parity::Even,
+        p => return Err(usage(format!("--parity {p}: use none, odd or even")).into()),
+    };
+    let serial = |path: &str| -> Result<SerialSettings, CodedError> {
+        Ok(SerialSettings {
+            port: path.to_string(),
+            baud: NonZeroU32::new(args.baud)
+                .ok_or_else(|| usage("--baud must be positive".into()))?,
+            data_bits: DataBits::from_bits(args.data_bits)
+                .ok_or_else(|| usage("--data-bits must be 5, 6, 7 or 8".into()))?,
+            parity,
+            stop_bits: StopBits::from_bits(args.stop_bits)
+                .ok_or_else(|| usage("--stop-bits must be 1 or 2".into()))?,
+            flow_control: FlowControl::None,
+        })
+    };
+    let list = list_ports(&args.sys_root, &args.dev_root);
+    let mut identified = Vec::new();
+    if args.identify {
+        let targets: Vec<String> = match &args.port {
+            Some(p) => vec![p.clone()],
+            None => list
+                .serial
+                .iter()
+                .chain(list.usbtmc.iter())
+                .map(|p| p.path.clone())
+                .collect(),
+        };
+        let rt = tokio::runtime::Builder::new_current_thread()
+            .enable_all()
+            .build()
+            .context("cannot start the async runtime")?;
+        for path in targets {
+            let link = if path.starts_with("/dev/usbtmc") {
+                LinkConfig::UsbTmc(UsbTmcSettings { path: path.clone() })
+            } else {
+                LinkConfig::Serial(serial(&path)?)
+            };
+            let timeout = Duration::from_millis(args.timeout_ms.max(1));
+            let r = rt.block_on(identify(&link, &args.query, timeout));
+            identified.push(match r {
+                Ok(reply) => Identified {
+                    path,
+                    reply: Some(reply),
+                    error: None,
+                },
+                Err(e) => Identified {
+                    path,
+                    reply: None,
+                    error: Some(e.to_string()),
+                },
+            });
+        }
+    }
+    let stdout = std::io::stdout();
+    let mut out = stdout.lock();
+    if args.json {
+        let j = Json {
+            ports: &list,
+            identified: &identified,
+        };
+        serde_json::to_writer_pretty(&mut out, &j).context("cannot write JSON")?;
+        writeln!(out)?;
+    } else {
+        write_table(&mut out, &list, &identified)?;
+    }
+    if identified.iter().any(|i| i.error.is_some()) {
+        return Err(
+            CodedError::new(EXIT_ABORTED, "some ports did not answer the identity query").into(),
+        );
+    }
+    Ok(EXIT_OK)
+}
+
+fn usb_text(p: &FoundPort) -> (String, String, String) {
+    match &p.usb {
+        None => ("-".into(), "-".into(), "-".into()),
+        Some(u) => (
+            format!("{}:{}", u.vendor_id, u.product_id),
+            u.serial_number.clone().unwrap_or_else(|| "-".into()),
+            [u.manufacturer.as_deref(), u.product.as_deref()]
+                .into_iter()
+                .flatten()
+                .collect::<Vec<_>>()
+                .join(" "),
+        ),
+    }
+}
+
+/// The listing as a table (and the identity replies below it).
+pub fn write_table<W: Write>(
+    w: &mut W,
+    list: &PortList,
+    identified: &[Identified],
+) -> std::io::Result<()> {
+    for (title, ports) in [
+        ("serial ports", &list.serial),
+        ("USB-TMC nodes", &list.usbtmc),
+    ] {
+        if ports.is_empty() {
+            writeln!(w, "{title}: none found")?;
+            continue;
+        }
+        writeln!(w, "{title}:")?;
+        writeln!(
+            w,
+            "  {:<16} {:<10} {:<14} {:<28} by-id",
+            "path", "usb id", "serial number", "device"
+        )?;
+        for p in ports.iter() {
+            let (id, sn, dev) = usb_text(p);
+            writeln!(
+                w,
+                "  {:<16} {:<10} {:<14} {:<28} {}",
+                p.path,
+                id,
+                sn,
+                if dev.is_empty() { "-" } else { &dev },
+                p.by_id.as_deref().unwrap_or("-")
+            )?;
+        }
+    }
+    for n in &list.notes {
+        writeln!(w, "note: {n}")?;
+    }
+    if !identified.is_empty() {
+        writeln!(w, "identity:")?;
+        for i in identified {
+            match (&i.reply, &i.error) {
+                (Some(r), _) => writeln!(w, "  {:<16} {r}", i.path)?,
+                (_, Some(e)) => writeln!(w, "  {:<16} (no identity) {e}", i.path)?,
+                _ => {}
+            }
+        }
+    }
+    Ok(())
+}

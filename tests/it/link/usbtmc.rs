@@ -1,0 +1,241 @@
+//! USB-TMC links. The Linux usbtmc kernel driver cannot run here, so the device is a
+//! stand-in that behaves like its character device: a SOCK_SEQPACKET socket pair keeps
+//! message boundaries (one write on our side is one message at the instrument, one reply is
+//! one read), and a read with no reply coming blocks, as the driver's read blocks until its
+//! timeout. The instrument side answers SCPI queries (IEEE 488.2: `*IDN?`, `*OPC?` answering
+//! `1`) and records every message it gets.
+
+use crate::support::link::runtime;
+use regulus::bench::{Bench, BenchConfig, BenchError};
+use regulus::control::BenchControl;
+use regulus::measure::{LoadMode, Quantity};
+use regulus::transport::{BoxTransport, UsbTmcCounters, UsbTmcLink};
+use std::fs::File;
+use std::io::{Read, Write};
+use std::os::fd::FromRawFd;
+use std::sync::atomic::Ordering;
+use std::sync::{Arc, Mutex};
+
+/// A message-preserving pair of sockets: (our end, the instrument's end).
+fn seqpacket_pair() -> (File, File) {
+    let mut fds = [0; 2];
+    // SAFETY: socketpair(2) fills two descriptors that we then own, one File each.
+    let r = unsafe {
+        libc::socketpair(
+            libc::AF_UNIX,
+            libc::SOCK_SEQPACKET | libc::SOCK_CLOEXEC,
+            0,
+            fds.as_mut_ptr(),
+        )
+    };
+    assert_eq!(r, 0, "socketpair: {}", std::io::Error::last_os_error());
+    unsafe { (File::from_raw_fd(fds[0]), File::from_raw_fd(fds[1])) }
+}
+
+/// The instrument side: one reply message per query, nothing otherwise; every message kept.
+/// The thread ends when our end is closed.
+fn instrument(
+    mut dev: File,
+    answer: fn(&str) -> Option<String>,
+) -> (Arc<Mutex<Vec<String>>>, std::thread::JoinHandle<()>) {
+    let got = Arc::new(Mutex::new(Vec::new()));
+    let got2 = Arc::clone(&got);
+    let h = std::thread::spawn(move || {
+        let mut buf = [0u8; 4096];
+        loop {
+            let n = match dev.read(&mut buf) {
+                Ok(0) | Err(_) => return,
+                Ok(n) => n,
+            };
+            let msg = String::from_utf8_lossy(&buf[..n]).to_string();
+            got2.lock().unwrap().push(msg.clone());
+            if let Some(reply) = answer(msg.trim_end()) {
+                if dev.write_all(reply.as_bytes()).is_err() {
+                    return;
+                }
+            }
+        }
+    });
+    (got, h)
+}
+
+fn meter(msg: &str) -> Option<String> {
+    match msg {
+        "*IDN?" => Some("Regulus Simulated Bench,UT-1 meter,UT0001,1.0\n".into()),
+        // One reply without a newline: the end of the message ends the reply.
+        "MEAS:VOLT:DC?" => Some("+1.20034E+01".into()),
+        _ => None,
+    }
+}
+
+fn load(msg: &str) -> Option<String> {
+    match msg {
+        "*IDN?" => Some("Regulus Simulated Bench,UT-2 load,UT0002,1.0\n".into()),
+        "*OPC?" => Some("1\n".into()),
+        "MEAS:VOLT?" => Some("+1.19000E+01\n".into()),
+        "MEAS:CURR?" => Some("+1.50000E+00\n".into()),
+        _ => None,
+    }
+}
+
+const BENCH: &str = r#"
+[[instrument]]
+name = "dmm"
+roles = ["output_voltmeter"]
+preset = "scpi_meter"
+usbtmc = { path = "/dev/usbtmc0" }
+
+[[instrument]]
+name = "eload"
+roles = ["load"]
+preset = "scpi_load"
+usbtmc = { path = "/dev/usbtmc1" }
+"#;
+
+fn link(dev: File) -> (BoxTransport, Arc<UsbTmcCounters>) {
+    let l = UsbTmcLink::new(dev);
+    let c = l.counters();
+    (Box::new(l), c)
+}
+
+#[test]
+fn presets_work_over_usbtmc_with_one_read_per_query() {
+    let cfg = BenchConfig::parse(BENCH, "usbtmc.toml").unwrap_or_else(|e| panic!("{e}"));
+    assert_eq!(cfg.instruments[0].link.describe(), "usbtmc /dev/usbtmc0");
+    let (ours_m, dev_m) = seqpacket_pair();
+    let (ours_l, dev_l) = seqpacket_pair();
+    let (got_m, th_m) = instrument(dev_m, meter);
+    let (got_l, th_l) = instrument(dev_l, load);
+    let (lm, cm) = link(ours_m);
+    let (ll, cl) = link(ours_l);
+    let rt = runtime();
+    rt.block_on(async {
+        let mut bench = Bench::with_transports(&cfg, vec![lm, ll])
+            .await
+            .unwrap_or_else(|e| panic!("{e}"));
+        let ids = bench.identities();
+        assert_eq!(
+            ids[0].identity.as_deref(),
+            Some("Regulus Simulated Bench,UT-1 meter,UT0001,1.0")
+        );
+        bench
+            .set_load(LoadMode::ConstantCurrent, 1.5)
+            .await
+            .unwrap();
+        bench.set_load_input(true).await.unwrap();
+        for _ in 0..3 {
+            let m = bench.measure().await.unwrap();
+            assert_eq!(m.get(Quantity::OutputVoltage), Some(12.0034));
+        }
+        assert!(bench.safe_state().await.is_empty());
+    });
+    // Our ends close with the bench and the runtime: the instrument has seen every message.
+    drop(rt);
+    th_m.join().unwrap();
+    th_l.join().unwrap();
+    let m = got_m.lock().unwrap().clone();
+    let l = got_l.lock().unwrap().clone();
+    // Every message is one whole line.
+    for msg in m.iter().chain(l.iter()) {
+        assert!(
+            msg.ends_with('\n') && msg.matches('\n').count() == 1,
+            "{msg:?}"
+        );
+    }
+    assert_eq!(
+        m,
+        vec![
+            "*IDN?\n",
+            "MEAS:VOLT:DC?\n",
+            "MEAS:VOLT:DC?\n",
+            "MEAS:VOLT:DC?\n"
+        ]
+    );
+    assert_eq!(
+        l,
+        vec![
+            "*IDN?\n",
+            "FUNC CURR\n",
+            "CURR 1.5000\n",
+            "*OPC?\n",
+            "INP ON\n",
+            "*OPC?\n",
+            "INP OFF\n"
+        ]
+    );
+    // No speculative reads: exactly one device read per query sent.
+    let queries = |v: &[String]| v.iter().filter(|s| s.contains('?')).count();
+    assert_eq!(cm.reads.load(Ordering::SeqCst), queries(&m));
+    assert_eq!(cl.reads.load(Ordering::SeqCst), queries(&l));
+    assert_eq!(cl.messages_written.load(Ordering::SeqCst), l.len());
+}
+
+#[test]
+fn streaming_instruments_and_usbtmc_nodes_as_serial_ports_are_refused() {
+    let text = "[[instrument]]\nname = \"amm\"\nroles = [\"output_ammeter\"]\npreset = \"tagged_stream_meter\"\nusbtmc = { path = \"/dev/usbtmc0\" }\n";
+    let e = BenchConfig::parse(text, "b.toml").unwrap_err().to_string();
+    assert!(e.starts_with("b.toml:4:10:"), "{e}");
+    assert!(
+        e.contains("a streaming instrument cannot work over USB-TMC"),
+        "{e}"
+    );
+    let text = "[[instrument]]\nname = \"dmm\"\nroles = [\"output_voltmeter\"]\npreset = \"scpi_meter\"\nserial = { port = \"/dev/usbtmc0\" }\n";
+    let e = BenchConfig::parse(text, "b.toml").unwrap_err().to_string();
+    assert!(e.starts_with("b.toml:5:10:"), "{e}");
+    assert!(e.contains("usbtmc = { path"), "{e}");
+}
+
+#[test]
+fn a_missing_node_says_what_to_check() {
+    let cfg = BenchConfig::parse(
+        "[[instrument]]\nname = \"dmm\"\nroles = [\"output_voltmeter\"]\npreset = \"scpi_meter\"\nusbtmc = { path = \"/dev/usbtmc-none-97\" }\n",
+        "b.toml",
+    )
+    .unwrap();
+    let rt = runtime();
+    let e = rt.block_on(Bench::open(&cfg)).err().expect("no such node");
+    assert!(matches!(e, BenchError::Open { .. }), "{e:?}");
+    let text = e.to_string();
+    assert!(
+        text.contains("no such device node /dev/usbtmc-none-97"),
+        "{text}"
+    );
+    assert!(text.contains("usbtmc driver"), "{text}");
+}
+
+/// A node the user may not open (root-only, as the driver's nodes are without a udev rule):
+/// `regulus probe` says so and gives the rule. As root, the binary runs as `nobody` so the
+/// permission check is real.
+#[test]
+fn permission_denied_gives_the_udev_rule() {
+    // A child process must not inherit another test's pseudo-terminal (support::lock).
+    let _g = crate::support::lock::serial();
+    use std::os::unix::fs::PermissionsExt;
+    use std::os::unix::process::CommandExt;
+    let t = tempfile::tempdir().unwrap();
+    std::fs::set_permissions(t.path(), std::fs::Permissions::from_mode(0o755)).unwrap();
+    let node = t.path().join("usbtmc0");
+    std::fs::write(&node, b"").unwrap();
+    std::fs::set_permissions(&node, std::fs::Permissions::from_mode(0o000)).unwrap();
+    let bench = t.path().join("bench.toml");
+    std::fs::write(
+        &bench,
+        format!(
+            "[[instrument]]\nname = \"dmm\"\nroles = [\"output_voltmeter\"]\npreset = \"scpi_meter\"\nusbtmc = {{ path = {:?} }}\n",
+            node.display().to_string()
+        ),
+    )
+    .unwrap();
+    std::fs::set_permissions(&bench, std::fs::Permissions::from_mode(0o644)).unwrap();
+    let mut cmd = std::process::Command::new(env!("CARGO_BIN_EXE_regulus"));
+    cmd.arg("probe").arg("--bench").arg(&bench);
+    // SAFETY: geteuid(2) has no preconditions.
+    if unsafe { libc::geteuid() } == 0 {
+        cmd.uid(65534).gid(65534);
+    }
+    let out = cmd.output().unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(3), "{text}");
+    assert!(text.contains("permission denied opening"), "{text}");
+    assert!(text.contains(regulus::transport::UDEV_RULE), "{text}");
+}
