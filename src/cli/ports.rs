@@ -3,7 +3,7 @@
 //! (or the one given with `--port`) the identity query with the given link settings and show
 //! the reply. Nothing else is ever written to a port. `--json` for scripts.
 
-use super::{CodedError, EXIT_ABORTED, EXIT_OK, EXIT_USAGE};
+use super::{CodedError, EXIT_ERROR, EXIT_OK, EXIT_USAGE};
 use crate::transport::{
     identify, list_ports, DataBits, FlowControl, FoundPort, LinkConfig, Parity, PortList,
     SerialSettings, StopBits, UsbTmcSettings,
@@ -139,7 +139,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     }
     if identified.iter().any(|i| i.error.is_some()) {
         return Err(
-            CodedError::new(EXIT_ABORTED, "some ports did not answer the identity query").into(),
+            CodedError::new(EXIT_ERROR, "some ports did not answer the identity query").into(),
         );
     }
     Ok(EXIT_OK)

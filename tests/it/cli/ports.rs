@@ -164,7 +164,7 @@ fn identify_shows_the_identity_reply_or_why_there_is_none() {
     let j: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let reply = j["identified"][0]["reply"].as_str().unwrap();
     assert!(reply.starts_with("Regulus Simulated Bench,"), "{reply}");
-    // A port that does not answer: exit 3 and the reason.
+    // A port that does not answer: exit 4 (a station error) and the reason.
     let Some(Link::Pty(thermo)) = sim.port(InstrumentKind::Thermometer).cloned() else {
         panic!()
     };
@@ -177,6 +177,6 @@ fn identify_shows_the_identity_reply_or_why_there_is_none() {
         "--timeout-ms",
         "300",
     ]);
-    assert_eq!(out.status.code(), Some(3));
+    assert_eq!(out.status.code(), Some(4));
     assert!(String::from_utf8_lossy(&out.stdout).contains("no reply to 'NOPE?' within 300 ms"));
 }

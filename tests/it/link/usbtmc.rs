@@ -235,7 +235,7 @@ fn permission_denied_gives_the_udev_rule() {
     }
     let out = cmd.output().unwrap();
     let text = String::from_utf8_lossy(&out.stdout);
-    assert_eq!(out.status.code(), Some(3), "{text}");
+    assert_eq!(out.status.code(), Some(4), "{text}");
     assert!(text.contains("permission denied opening"), "{text}");
     assert!(text.contains(regulus::transport::UDEV_RULE), "{text}");
 }

@@ -22,7 +22,7 @@ samples = 1
 [[step]]
 kind = "load_sweep"
 from = "0 A"
-to = "max_load"
+to = "95 % of max_load"
 points = 200
 "#;
 
@@ -68,7 +68,7 @@ fn standard_plan_over_modbus_tcp() {
     standard_plan_completes(TransportMix::ModbusTcp, "MB-TCP-1", 202);
 }
 
-/// Run LONG with a fault; the run must abort with exit 3 and the reason given.
+/// Run LONG with a fault; the run must stop with exit 4 (ERROR: an instrument failed) and the reason given.
 fn aborts(
     mix: TransportMix,
     fault: &str,
@@ -85,7 +85,7 @@ fn aborts(
     let text = edit(std::fs::read_to_string(&rig.bench).unwrap());
     std::fs::write(&rig.bench, text).unwrap();
     let out = rig.run(unit, LONG);
-    assert_eq!(out.status.code(), Some(3), "{}", show(&out));
+    assert_eq!(out.status.code(), Some(4), "{}", show(&out));
     let dir = rig.run_dir(unit);
     let rec = read_run(&dir).unwrap();
     assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted));
