@@ -4,6 +4,7 @@
 
 use super::config::{BenchConfig, CommandKey};
 use super::instrument::{connect, Instrument};
+use super::lockstep::SettingCommand;
 use super::BenchError;
 use crate::measure::{LoadMode, Measurement, Reading, Role};
 use crate::transport::BoxTransport;
@@ -25,7 +26,25 @@ impl Bench {
     pub async fn open(cfg: &BenchConfig) -> Result<Bench, BenchError> {
         let mut links = Vec::with_capacity(cfg.instruments.len());
         for inst in &cfg.instruments {
-            links.push(connect(inst).await?);
+            match connect(inst).await {
+                Ok(l) => links.push(l),
+                Err(e) => {
+                    // The instruments already connected may have been left on by an earlier
+                    // run: they get their safe state before the error is returned.
+                    let mut opened = Vec::new();
+                    for (c, io) in cfg.instruments.iter().zip(links) {
+                        if let Ok(i) = Instrument::new(c.clone(), io) {
+                            opened.push(Arc::new(i));
+                        }
+                    }
+                    let partial = Bench {
+                        config: cfg.clone(),
+                        instruments: opened,
+                    };
+                    let _ = partial.run_safe_state().await;
+                    return Err(e);
+                }
+            }
         }
         Bench::with_transports(cfg, links).await
     }
@@ -176,6 +195,23 @@ impl Bench {
         errors
     }
 
+    /// Arm (before a stressful step) or disarm every instrument's own limits, in file order;
+    /// the first failure is returned after all were tried.
+    pub async fn limits(&self, arm: bool) -> Result<(), BenchError> {
+        let mut first = None;
+        for inst in &self.instruments {
+            if let Err(e) = inst.limits(arm).await {
+                first.get_or_insert(e);
+            }
+        }
+        first.map_or(Ok(()), Err)
+    }
+
+    /// Retries and resynchronisations on any instrument since the last call.
+    pub fn take_retries(&self) -> u32 {
+        self.instruments.iter().map(|i| i.take_retries()).sum()
+    }
+
     /// Tell streaming instruments that the operating point changed now (even after a failed
     /// command, which may have been acted on).
     pub(super) fn settings_changed(&self) {
@@ -203,11 +239,20 @@ impl Bench {
                 ),
             });
         };
+        let mut cmds = Vec::with_capacity(2);
         if let Some(m) = c.get(mode_key) {
-            inst.send_template(m, 0.0).await?;
+            cmds.push(SettingCommand {
+                key: mode_key,
+                template: m,
+                value: 0.0,
+            });
         }
-        inst.send_template(set_cmd, value).await?;
-        inst.confirm().await
+        cmds.push(SettingCommand {
+            key: set_key,
+            template: set_cmd,
+            value,
+        });
+        inst.apply(&cmds).await
     }
 
     pub(super) async fn switch(&self, role: Role, on: bool) -> Result<(), BenchError> {
@@ -215,8 +260,12 @@ impl Bench {
         let key = CommandKey::switch(role, on);
         match inst.cfg.commands.get(key) {
             Some(t) => {
-                inst.send_template(t, 0.0).await?;
-                inst.confirm().await
+                inst.apply(&[SettingCommand {
+                    key,
+                    template: t,
+                    value: 0.0,
+                }])
+                .await
             }
             None => Err(BenchError::Command {
                 instrument: inst.cfg.name.clone(),
@@ -232,8 +281,12 @@ impl Bench {
         let inst = self.holder(Role::InputSource)?;
         match inst.cfg.commands.get(CommandKey::SourceSetVoltage) {
             Some(t) => {
-                inst.send_template(t, volts).await?;
-                inst.confirm().await
+                inst.apply(&[SettingCommand {
+                    key: CommandKey::SourceSetVoltage,
+                    template: t,
+                    value: volts,
+                }])
+                .await
             }
             None => Err(BenchError::Command {
                 instrument: inst.cfg.name.clone(),

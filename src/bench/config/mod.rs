@@ -6,15 +6,20 @@
 
 mod checked;
 mod checks;
+mod context;
 mod keys;
 mod load;
+mod lockstep_checks;
 mod presets;
 mod raw;
 #[cfg(test)]
 mod tests;
 
 pub use crate::transport::{FlowControl, LinkConfig, Parity, SerialSettings, TcpSettings};
-pub use checked::{BenchConfig, CommandSet, InstrumentConfig, ReadingStyle, StreamPick};
+pub use checked::{
+    Acknowledge, BenchConfig, CommandSet, Confirm, ErrorQuery, InstrumentConfig, Limits, Lockstep,
+    Readback, ReadingStyle, StreamPick,
+};
 pub use keys::{CommandKey, KeyInfo, Need, KEYS, KEY_NAMES, ROLE_NEEDS, SAFE_STATE_KEYS};
 pub use presets::{PRESET_NAMES, TAGGED_STREAM_PATTERN};
 

@@ -1,6 +1,7 @@
 //! The bench's links: reply parsing properties, probe, pseudo-terminals and loopback TCP.
 
 mod parse_prop;
+mod peer;
 mod probe_cli;
 mod pty;
 mod tcp;
