@@ -112,4 +112,14 @@ pub trait BenchControl {
     /// Run every instrument's safe-state sequence (load first, then the source), continuing
     /// past failures; returns the failures.
     async fn safe_state(&mut self) -> Vec<ControlError>;
+    /// Arm (`true`, before a stressful step) or disarm the instruments' own limits. A bench
+    /// without any does nothing.
+    async fn limits(&mut self, _arm: bool) -> Result<(), ControlError> {
+        Ok(())
+    }
+    /// How many exchanges were retried (or links resynchronised) since the last call; the
+    /// runner flags the rows taken after one.
+    fn take_retries(&mut self) -> u32 {
+        0
+    }
 }

@@ -59,6 +59,16 @@ impl BenchControl for Bench {
         self.read_all().await.map_err(control_error)
     }
 
+    async fn limits(&mut self, arm: bool) -> Result<(), ControlError> {
+        let r = Bench::limits(self, arm).await;
+        self.settings_changed();
+        r.map_err(control_error)
+    }
+
+    fn take_retries(&mut self) -> u32 {
+        Bench::take_retries(self)
+    }
+
     async fn safe_state(&mut self) -> Vec<ControlError> {
         self.run_safe_state()
             .await

@@ -116,6 +116,9 @@ pub struct Limits {
 #[derive(Debug, Clone)]
 pub struct InstrumentConfig {
     pub name: String,
+    /// 1-based line and column of its `[[instrument]]` table in the bench file (for messages
+    /// of checks made later, against a plan).
+    pub place: Option<(usize, usize)>,
     pub roles: Vec<Role>,
     pub preset: Option<String>,
     pub link: LinkConfig,
@@ -168,6 +171,20 @@ pub struct BenchConfig {
 }
 
 impl BenchConfig {
+    /// A configuration error about one instrument, at its table in the bench file.
+    pub fn error_at(
+        &self,
+        inst: &InstrumentConfig,
+        message: impl std::fmt::Display,
+    ) -> crate::config::Located {
+        crate::config::Located {
+            file: self.label.clone(),
+            line: inst.place.map(|p| p.0),
+            column: inst.place.map(|p| p.1),
+            message: format!("instrument '{}': {message}", inst.name),
+        }
+    }
+
     /// The instrument holding `role`, if any.
     pub fn instrument_for(&self, role: Role) -> Option<&InstrumentConfig> {
         self.instruments.iter().find(|i| i.roles.contains(&role))

@@ -77,6 +77,7 @@ pub(super) fn check_instrument(
         disarm: check_sequence(&cx, "disarm_limits", raw.disarm_limits)?.unwrap_or_default(),
     };
     Ok(InstrumentConfig {
+        place: Some(crate::config::line_col(file.src, span.start)),
         name,
         roles,
         preset: raw.preset.map(Spanned::into_inner),
