@@ -42,17 +42,32 @@ impl Instrument {
             );
         }
         let mut port = self.port.lock().await;
+        for l in &lines {
+            self.command_locked(&mut port, l).await?;
+        }
         let mut last = None;
         for attempt in 0..=self.cfg.retries {
             if attempt > 0 {
                 self.note_retry(&format!("retry {attempt} of '{}'", lines.join(" / ")));
             }
-            match self.try_apply(&mut port, cmds, &lines).await {
+            match self.verify(&mut port, cmds, &lines).await {
                 Ok(()) => return Ok(()),
+                // Read back as something else: the instrument did not apply it, send again.
+                Err(e @ BenchError::Readback { .. }) => {
+                    self.note(&e.to_string());
+                    last = Some(e);
+                    if attempt < self.cfg.retries {
+                        for l in &lines {
+                            self.command_locked(&mut port, l).await?;
+                        }
+                    }
+                }
+                // No (or no recognisable) reply: the next exchange resynchronises the link
+                // first, and the instrument, answering in order, has then worked through the
+                // commands; confirm again.
                 Err(
                     e @ (BenchError::NoReply { .. }
                     | BenchError::UnexpectedReply { .. }
-                    | BenchError::Readback { .. }
                     | BenchError::Unparseable { .. }),
                 ) => {
                     self.note(&e.to_string());
@@ -64,15 +79,13 @@ impl Instrument {
         Err(last.unwrap_or_else(|| self.err(&lines.join(" / "), LinkError::Timeout)))
     }
 
-    async fn try_apply(
+    /// Confirmation, error queue and readbacks of commands already sent.
+    async fn verify(
         &self,
         port: &mut Port,
         cmds: &[SettingCommand<'_>],
         lines: &[String],
     ) -> Result<(), BenchError> {
-        for l in lines {
-            self.command_locked(port, l).await?;
-        }
         let what = lines.join(" / ");
         self.confirm_locked(port, &what).await?;
         self.error_queue_locked(port, &what).await?;

@@ -3,7 +3,7 @@
 
 use super::bench_file::bench_toml;
 use super::instruments::{FaultSchedule, InstrumentKind, InstrumentState, Noise, PortFaults};
-use super::options::{Fault, PortFault, SimError, SimOptions};
+use super::options::{Fault, SimError, SimOptions};
 use super::ports::{Link, PortInfo};
 use super::serve::{self, lock, Endpoint, Shared, World};
 use super::unit::{Controls, OperatingPoint, SimUnit, Thermal, Truth, UnitFault};
@@ -74,13 +74,7 @@ impl SimBench {
             for f in &opts.faults {
                 if let Fault::Port(k, pf) = f {
                     if *k == kind {
-                        match *pf {
-                            PortFault::GarbageEvery(e) => faults.garbage_every = Some(e),
-                            PortFault::DropEvery(e) => faults.drop_every = Some(e),
-                            PortFault::SlowMs(ms) => faults.slow_ms = ms,
-                            PortFault::CloseAfter(c) => faults.close_after = Some(c),
-                            PortFault::CloseAtSecs(s) => faults.close_at_s = Some(s),
-                        }
+                        pf.apply_to(&mut faults);
                     }
                 }
             }
