@@ -24,6 +24,10 @@ pub struct Args {
     /// Write a bench file for the simulated instruments' ports here.
     #[arg(long, value_name = "FILE")]
     pub write_bench: Option<PathBuf>,
+    /// Let --write-bench replace an existing file (without it, an existing file is kept and
+    /// the command stops before starting the bench).
+    #[arg(long)]
+    pub overwrite_bench: bool,
     /// Write the as-built unit's true values (and element values) here as JSON.
     #[arg(long, value_name = "FILE")]
     pub write_truth: Option<PathBuf>,
@@ -159,6 +163,18 @@ pub fn write_truth<W: Write>(w: &mut W, t: &Truth) -> std::io::Result<()> {
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
     let opts = options(&args)?;
+    if let Some(path) = &args.write_bench {
+        if path.exists() && !args.overwrite_bench {
+            return Err(CodedError::new(
+                EXIT_USAGE,
+                format!(
+                    "--write-bench {}: the file exists; choose another path or add --overwrite-bench",
+                    path.display()
+                ),
+            )
+            .into());
+        }
+    }
     let design = Design::load(&args.design)?;
     let sim = SimBench::start(&design, opts).map_err(|e| match e {
         crate::sim::SimError::Unit(u) => {

@@ -2,5 +2,6 @@
 //! built binary runs plans against the simulated bench with its faults, over real
 //! pseudo-terminals and loopback TCP.
 
+mod checks;
 mod faults;
 mod ports;
