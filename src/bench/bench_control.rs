@@ -65,6 +65,14 @@ impl BenchControl for Bench {
         r.map_err(control_error)
     }
 
+    fn guard(&mut self, record: &std::path::Path) -> Result<(), ControlError> {
+        Bench::guard(self, record).map_err(|e| ControlError::new("guardian", e.to_string()))
+    }
+
+    fn stand_down(&mut self) {
+        Bench::stand_down(self)
+    }
+
     fn take_retries(&mut self) -> u32 {
         Bench::take_retries(self)
     }

@@ -64,6 +64,8 @@ pub struct Instrument {
     stream_task: Option<JoinHandle<()>>,
     pub(super) log: Option<Arc<TrafficLog>>,
     identity: StdMutex<Option<String>>,
+    /// The link's descriptor, when it has one (for the guardian).
+    raw_fd: Option<i32>,
     /// Retries and resynchronisations since [`Instrument::take_retries`] was last called.
     retries: AtomicU32,
 }
@@ -160,6 +162,7 @@ impl Instrument {
                 }
             })?)),
         };
+        let raw_fd = io.raw_fd();
         let (r, w) = tokio::io::split(io);
         let mut reader = Some(LineReader::new(r, &cfg.read_terminator));
         let writer = LineWriter::new(w, &cfg.write_terminator);
@@ -189,6 +192,7 @@ impl Instrument {
             stream_task,
             log,
             identity: StdMutex::new(None),
+            raw_fd,
             retries: AtomicU32::new(0),
         })
     }
@@ -199,6 +203,11 @@ impl Instrument {
 
     pub fn config(&self) -> &InstrumentConfig {
         &self.cfg
+    }
+
+    /// The link's descriptor, when it has one.
+    pub fn raw_fd(&self) -> Option<i32> {
+        self.raw_fd
     }
 
     /// The identity reply, if it was queried.

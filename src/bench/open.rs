@@ -17,6 +17,8 @@ use tokio::time::Instant;
 pub struct Bench {
     config: BenchConfig,
     instruments: Vec<Arc<Instrument>>,
+    /// The guardian process of the run in progress, if one was started.
+    guardian: Option<crate::guardian::Guardian>,
 }
 
 impl Bench {
@@ -40,6 +42,7 @@ impl Bench {
                     let partial = Bench {
                         config: cfg.clone(),
                         instruments: opened,
+                        guardian: None,
                     };
                     let _ = partial.run_safe_state().await;
                     return Err(e);
@@ -72,6 +75,7 @@ impl Bench {
         let bench = Bench {
             config: cfg.clone(),
             instruments,
+            guardian: None,
         };
         // Init and identity, all instruments concurrently.
         let mut set = JoinSet::new();
@@ -174,9 +178,8 @@ impl Bench {
         }
     }
 
-    /// Run every instrument's safe-state sequence: loads first, then sources, then the rest,
-    /// continuing past failures. Returns the failures.
-    pub async fn run_safe_state(&self) -> Vec<BenchError> {
+    /// The instruments in safe-state order: loads first, then sources, then the rest.
+    fn safe_order(&self) -> Vec<&Arc<Instrument>> {
         let rank = |i: &Instrument| {
             if i.cfg.roles.contains(&Role::Load) {
                 0
@@ -188,6 +191,60 @@ impl Bench {
         };
         let mut order: Vec<&Arc<Instrument>> = self.instruments.iter().collect();
         order.sort_by_key(|i| rank(i));
+        order
+    }
+
+    /// Start the guardian process for a run recorded in `record` (see [`crate::guardian`]):
+    /// it holds every link and sends the safe state (the switch-off commands, then the
+    /// safe-state sequence) if regulus ends without standing it down. Does nothing when this
+    /// process does not start guardians.
+    pub fn guard(&mut self, record: &std::path::Path) -> Result<(), crate::guardian::GuardError> {
+        use crate::guardian::{GuardLink, GuardSpec};
+        let mut links = Vec::new();
+        for inst in self.safe_order() {
+            let Some(fd) = inst.raw_fd() else { continue };
+            let mut lines: Vec<String> = Vec::new();
+            for (role, key) in crate::bench::config::SAFE_STATE_KEYS {
+                if inst.cfg.roles.contains(&role) {
+                    if let Some(Ok(l)) = inst.cfg.commands.get(key).map(|t| t.render(0.0)) {
+                        lines.push(l);
+                    }
+                }
+            }
+            for l in &inst.cfg.safe_state {
+                if !lines.contains(l) {
+                    lines.push(l.clone());
+                }
+            }
+            if lines.is_empty() {
+                continue;
+            }
+            links.push(GuardLink {
+                name: inst.cfg.name.clone(),
+                fd,
+                terminator: inst.cfg.write_terminator.clone(),
+                safe_state: lines,
+            });
+        }
+        let spec = GuardSpec {
+            record: Some(record.to_path_buf()),
+            links,
+        };
+        self.guardian = crate::guardian::start(&spec)?;
+        Ok(())
+    }
+
+    /// The run finished with its own safe state: the guardian exits without acting.
+    pub fn stand_down(&mut self) {
+        if let Some(g) = self.guardian.take() {
+            g.stand_down();
+        }
+    }
+
+    /// Run every instrument's safe-state sequence: loads first, then sources, then the rest,
+    /// continuing past failures. Returns the failures.
+    pub async fn run_safe_state(&self) -> Vec<BenchError> {
+        let order = self.safe_order();
         let mut errors = Vec::new();
         for inst in order {
             errors.extend(inst.safe_state().await);

@@ -2,7 +2,7 @@
 //! bench in its safe state and close the record.
 
 use super::exec::Exec;
-use super::types::{Observer, RunError, RunReport, RunSetup};
+use super::types::{Observer, RunError, RunReport, RunSetup, Stop};
 use super::CancelToken;
 use crate::control::BenchControl;
 use crate::measure::Role;
@@ -43,7 +43,14 @@ pub async fn run<B: BenchControl, O: Observer>(
     let dir = writer.dir().to_path_buf();
 
     let mut steps = Vec::new();
-    let stop = {
+    // Before the first setting: the guardian that makes the bench safe if this process dies.
+    let guarded = bench
+        .guard(&dir)
+        .map_err(|e| Stop::Instrument(format!("{e} (while starting the guardian)")));
+    let stop = if let Err(stop) = guarded {
+        observer.stopping(&stop.outcome_reason().1);
+        Some(stop)
+    } else {
         let mut ex = Exec {
             bench,
             plan,
@@ -105,6 +112,8 @@ pub async fn run<B: BenchControl, O: Observer>(
         Ok(i) => (Some(i), None),
         Err(e) => (None, Some(e)),
     };
+    // Safe, and the record says how the run ended: the guardian is no longer needed.
+    bench.stand_down();
     Ok(RunReport {
         outcome,
         stop: stop.as_ref().map(|s| s.kind()),

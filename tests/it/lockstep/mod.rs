@@ -4,4 +4,5 @@
 
 mod checks;
 mod faults;
+mod kill;
 mod ports;
