@@ -46,16 +46,19 @@ impl Instrument {
             self.command_locked(&mut port, l).await?;
         }
         let mut last = None;
+        // How far verification got: a retry goes on from the exchange that failed.
+        let mut stage = 0;
         for attempt in 0..=self.cfg.retries {
             if attempt > 0 {
                 self.note_retry(&format!("retry {attempt} of '{}'", lines.join(" / ")));
             }
-            match self.verify(&mut port, cmds, &lines).await {
+            match self.verify(&mut port, cmds, &lines, &mut stage).await {
                 Ok(()) => return Ok(()),
                 // Read back as something else: the instrument did not apply it, send again.
                 Err(e @ BenchError::Readback { .. }) => {
                     self.note(&e.to_string());
                     last = Some(e);
+                    stage = 0;
                     if attempt < self.cfg.retries {
                         for l in &lines {
                             self.command_locked(&mut port, l).await?;
@@ -79,20 +82,33 @@ impl Instrument {
         Err(last.unwrap_or_else(|| self.err(&lines.join(" / "), LinkError::Timeout)))
     }
 
-    /// Confirmation, error queue and readbacks of commands already sent.
+    /// Confirmation, error queue and readbacks of commands already sent, from `stage` on
+    /// (0: confirmation, 1: error queue, 2 + i: readback of command i); `stage` says how far
+    /// it got.
     async fn verify(
         &self,
         port: &mut Port,
         cmds: &[SettingCommand<'_>],
         lines: &[String],
+        stage: &mut usize,
     ) -> Result<(), BenchError> {
         let what = lines.join(" / ");
-        self.confirm_locked(port, &what).await?;
-        self.error_queue_locked(port, &what).await?;
-        for (c, line) in cmds.iter().zip(lines) {
+        if *stage == 0 {
+            self.confirm_locked(port, &what).await?;
+            *stage = 1;
+        }
+        if *stage == 1 {
+            self.error_queue_locked(port, &what).await?;
+            *stage = 2;
+        }
+        for (i, (c, line)) in cmds.iter().zip(lines).enumerate() {
+            if *stage > 2 + i {
+                continue;
+            }
             if let Some(rb) = self.cfg.lockstep.readback.get(&c.key) {
                 self.readback_locked(port, c, line, rb).await?;
             }
+            *stage = 3 + i;
         }
         Ok(())
     }
