@@ -135,6 +135,11 @@ pub(super) fn check_readback(
             ));
         }
         let takes_value = key.arity() == Arity::OneValue;
+        // A blank query turns the preset's readback of this command off.
+        if matches!(sp.get_ref(), RawReadback::Query(q) if q.trim().is_empty()) {
+            out.remove(&key);
+            continue;
+        }
         let (query, pattern, expect) = match sp.into_inner() {
             RawReadback::Query(q) => (q, None, None),
             RawReadback::Table(t) => (t.query, t.pattern, t.expect),
