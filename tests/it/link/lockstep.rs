@@ -202,3 +202,60 @@ fn an_acknowledging_instrument_refusing_a_command_is_stopped() {
     // The link is still in step: switching the input off is acknowledged and confirmed.
     off.unwrap();
 }
+
+// Regression: when a later instrument failed to connect, the ones already connected were
+// left as they were (a load left on by an earlier run stayed on).
+#[test]
+fn instruments_already_connected_get_their_safe_state_when_a_later_one_fails() {
+    let _g = serial();
+    let load = scpi_peer(IDN, |_| None);
+    let nobody = {
+        let l = std::net::TcpListener::bind("127.0.0.1:0").unwrap();
+        l.local_addr().unwrap().port()
+    };
+    let text = format!(
+        "[[instrument]]\nname = \"eload\"\nroles = [\"load\"]\npreset = \"scpi_load\"\ntcp = {{ host = \"127.0.0.1\", port = {} }}\n\n[[instrument]]\nname = \"psu\"\nroles = [\"input_source\"]\npreset = \"scpi_source\"\ntcp = {{ host = \"127.0.0.1\", port = {nobody} }}\n",
+        load.address
+    );
+    let cfg = BenchConfig::parse(&text, "bench.toml").unwrap();
+    let e = runtime()
+        .block_on(async { Bench::open(&cfg).await.map(|_| ()) })
+        .unwrap_err();
+    assert!(matches!(e, BenchError::ConnectionRefused { .. }), "{e}");
+    let mut got = load.received();
+    for _ in 0..100 {
+        if got.iter().any(|l| l == "INP OFF") {
+            break;
+        }
+        std::thread::sleep(Duration::from_millis(10));
+        got = load.received();
+    }
+    assert!(got.iter().any(|l| l == "INP OFF"), "{got:?}");
+}
+
+#[test]
+fn instrument_side_limits_are_sent_and_confirmed() {
+    let _g = serial();
+    let load = scpi_peer(IDN, |_| None);
+    let cfg = load_bench(
+        &load.address,
+        "arm_limits = [\"POW:PROT 60\", \"POW:PROT:STAT ON\"]\ndisarm_limits = [\"POW:PROT:STAT OFF\"]",
+    );
+    runtime().block_on(async {
+        let mut b = Bench::open(&cfg).await.unwrap();
+        BenchControl::limits(&mut b, true).await.unwrap();
+        BenchControl::limits(&mut b, false).await.unwrap();
+    });
+    assert_eq!(
+        &load.received()[1..],
+        &[
+            "POW:PROT 60",
+            "POW:PROT:STAT ON",
+            "*OPC?",
+            "SYST:ERR?",
+            "POW:PROT:STAT OFF",
+            "*OPC?",
+            "SYST:ERR?"
+        ]
+    );
+}

@@ -193,3 +193,43 @@ fn a_refusal_in_the_error_queue_stops_the_run() {
     let (ended, _) = run_with(208, "LS-0008", &["eload:refuse=2"], "eload");
     assert_eq!(ended, Ended::InstrumentFailure);
 }
+
+// Instrument-side limits go out before the stressful step (the short) and come off after it.
+#[test]
+fn instrument_side_limits_are_armed_around_the_short() {
+    let _g = serial();
+    let rig = Rig::start(LAB, SimOptions::default().seed(209));
+    cloexec_ptys(&pty());
+    // The simulated load takes *CLS (IEEE 488.2) and nothing else of the kind: it stands for
+    // a limit command here; the traffic log shows when it was sent.
+    let text = std::fs::read_to_string(&rig.bench).unwrap();
+    let log = rig.dir.path().join("eload.log");
+    let text = text.replacen(
+        "name = \"eload\"",
+        &format!(
+            "name = \"eload\"\narm_limits = [\"*CLS\"]\ndisarm_limits = [\"*CLS\"]\ntraffic_log = \"{}\"",
+            log.display()
+        ),
+        1,
+    );
+    std::fs::write(&rig.bench, text).unwrap();
+    let out = rig.run("LS-0009", MINI);
+    assert_eq!(out.status.code(), Some(0), "{}", show(&out));
+    let traffic = std::fs::read_to_string(&log).unwrap();
+    let sent: Vec<&str> = traffic
+        .lines()
+        .filter_map(|l| l.split_once(" > ").map(|(_, c)| c))
+        .collect();
+    let arm = sent.iter().position(|c| *c == "*CLS").expect("armed");
+    let short = sent
+        .iter()
+        .position(|c| c.starts_with("RES "))
+        .expect("short set");
+    let disarm = sent.iter().rposition(|c| *c == "*CLS").unwrap();
+    assert!(arm < short && short < disarm, "{sent:?}");
+    // Armed once: not before the sweep (not a stressful step).
+    assert!(
+        sent[..arm].iter().any(|c| c.starts_with("CURR ")),
+        "{sent:?}"
+    );
+}
