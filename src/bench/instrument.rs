@@ -289,14 +289,18 @@ impl Instrument {
         Ok(())
     }
 
-    /// The next non-empty reply line before `deadline`; a line equal to the instrument's
-    /// identity (a late answer to a resynchronising query) is never a reply to anything else.
+    /// The next non-empty reply line to `sent` before `deadline`; a line equal to the
+    /// instrument's identity (a late answer to a resynchronising query) is never a reply to
+    /// anything but the identity query.
     pub(super) async fn next_line(
         &self,
         port: &mut Port,
+        sent: &str,
         deadline: Instant,
     ) -> Result<String, LinkError> {
-        let id = self.identity();
+        let id = self
+            .identity()
+            .filter(|_| self.cfg.identity_query.as_deref() != Some(sent));
         let reader = port.reader.as_mut().ok_or(LinkError::Closed)?;
         loop {
             let line = reader.read_line(deadline).await?;
@@ -415,7 +419,7 @@ impl Instrument {
         port.unsynced = true;
         let deadline = Instant::now() + self.cfg.reply_timeout;
         let reply = self
-            .next_line(port, deadline)
+            .next_line(port, line, deadline)
             .await
             .map_err(|e| self.err(line, e))?;
         if ack.error.is_match(&reply) {
@@ -446,7 +450,7 @@ impl Instrument {
         self.write_locked(port, q).await?;
         port.unsynced = true;
         let deadline = Instant::now() + self.cfg.reply_timeout;
-        self.next_line(port, deadline).await
+        self.next_line(port, q, deadline).await
     }
 
     /// Send commands, in order (acknowledged ones answered).

@@ -133,7 +133,7 @@ impl Instrument {
             }
             self.note(&format!("discarded: not the confirmation of '{what}'"));
             line = self
-                .next_line(port, deadline)
+                .next_line(port, q, deadline)
                 .await
                 .map_err(|e| self.err(q, e))?;
         }
@@ -213,7 +213,7 @@ impl Instrument {
                     }
                     // A garbled line: keep listening until the deadline.
                     raw = self
-                        .next_line(port, deadline)
+                        .next_line(port, q, deadline)
                         .await
                         .map_err(|e| self.err(q, e))?;
                 }

@@ -65,7 +65,7 @@ impl Instrument {
             let deadline = Instant::now() + self.cfg.reply_timeout;
             let mut bad: Option<(String, ReplyError)> = None;
             let outcome = loop {
-                match self.next_line(&mut port, deadline).await {
+                match self.next_line(&mut port, cmd, deadline).await {
                     Ok(line) => match self.cfg.reply.parse_expecting(&line, expect) {
                         Ok((_, r)) => {
                             port.unsynced = false;

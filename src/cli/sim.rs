@@ -33,7 +33,9 @@ pub struct Args {
     pub write_truth: Option<PathBuf>,
     /// Inject a fault (repeatable). Unit: sense=0.56, diodes=+1, diodes=-1, theta_sa=12,
     /// vref=5.3. Port (dmm, ammeter, eload, psu, thermo): dmm:garbage=5, dmm:drop=3,
-    /// eload:slow=800, psu:close-after=20, thermo:close-at=5.
+    /// eload:slow=800, psu:close-after=20, thermo:close-at=5, eload:lag=300 (settings applied
+    /// late, in order), eload:ack=on (settings answered OK / ERR), eload:refuse=3 (the third
+    /// setting refused), dmm:late=3 (every third reply 1.5 s late).
     #[arg(long = "fault", value_name = "SPEC")]
     pub faults: Vec<String>,
     /// Reply latency of every instrument in milliseconds (0 allowed).
