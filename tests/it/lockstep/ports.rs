@@ -51,3 +51,30 @@ fn a_meter_port_closing_in_each_kind_of_step_stops_the_run_safely() {
         assert!(!c.source.output_on, "{kind}: source output left on");
     }
 }
+
+// The load's own port closing inside each kind of step: the load cannot be reached any more,
+// so the source removes power from the unit, and the reason tells the operator to check the
+// load by hand.
+#[test]
+fn the_load_port_closing_in_each_kind_of_step_switches_the_source_off() {
+    let _g = serial();
+    for (n, (kind, step)) in STEPS.iter().enumerate() {
+        // The identity, the initial input-off in lockstep, then the step's first setting.
+        let fault = Fault::parse("eload:close-after=14").unwrap();
+        let rig = Rig::start(LAB, SimOptions::default().seed(320 + n as u64).fault(fault));
+        cloexec_ptys(&pty());
+        let unit = format!("LL-{n:04}");
+        let out = rig.run(&unit, &format!("{HEAD}\n[[step]]\n{step}\n"));
+        assert_eq!(out.status.code(), Some(3), "{kind}: {}", show(&out));
+        let dir = rig.run_dir(&unit);
+        let plan = rig.dir.path().join("plan.toml");
+        let rec = check_record(&dir, &rig.design_path, &rig.bench, &plan);
+        assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted), "{kind}");
+        let reason = rec.info.reason.clone().unwrap_or_default();
+        assert!(reason.contains("instrument failure"), "{kind}: {reason}");
+        assert!(reason.contains("'eload'"), "{kind}: {reason}");
+        assert!(reason.contains("safe state incomplete"), "{kind}: {reason}");
+        let (_, _, c) = rig.sim.state();
+        assert!(!c.source.output_on, "{kind}: source output left on");
+    }
+}
