@@ -1,6 +1,8 @@
 //! Speed targets of the instrument link:
 //! - reply parsing throughput: at least 1,000,000 lines per second per core;
-//! - the tool's own overhead per step with zero-latency in-memory instruments: under 1 ms.
+//! - the tool's own overhead per step with zero-latency in-memory instruments: under 1 ms,
+//!   measured with the full lockstep of the SCPI presets (confirm, error queue, readback) and
+//!   with the confirmation alone (what a setting cost before readback and the error queue).
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use regulus::bench::{Bench, BenchConfig};
@@ -71,38 +73,65 @@ preset = "scpi_thermometer"
 tcp = { host = "mem" }
 "#;
 
+/// The same bench with the confirmation alone: no error queue, no readbacks.
+fn confirm_only() -> String {
+    BENCH.replace(
+        "preset = \"scpi_load\"\ntcp = { host = \"mem\" }",
+        "preset = \"scpi_load\"\ntcp = { host = \"mem\" }\nerror_query = \"\"\n[instrument.readback]\nload_mode_cc = \"\"\nload_set_current = \"\"\nload_input_on = \"\"\nload_input_off = \"\"",
+    )
+}
+
+/// An in-memory SCPI peer: identity, `*OPC?` -> 1, an empty error queue, readbacks of what it
+/// was sent, a reading for any other query.
 fn memory_instrument() -> BoxTransport {
-    Box::new(MemoryTransport::new(|cmd| match cmd {
+    let mut held: std::collections::HashMap<String, String> = Default::default();
+    Box::new(MemoryTransport::new(move |cmd| match cmd {
         "*IDN?" => Some("Regulus Simulated Bench,MEM-1,SN0000,1.0".to_string()),
-        c if c.ends_with('?') => Some("+1.20034E+01".to_string()),
-        _ => None,
+        "*OPC?" => Some("1".to_string()),
+        "SYST:ERR?" => Some("+0,\"No error\"".to_string()),
+        c if c.ends_with('?') => Some(
+            held.get(c.trim_end_matches('?'))
+                .cloned()
+                .unwrap_or_else(|| "+1.20034E+01".to_string()),
+        ),
+        c => {
+            if let Some((h, a)) = c.split_once(' ') {
+                held.insert(h.to_string(), a.to_string());
+            }
+            None
+        }
     }))
 }
 
 fn step_overhead(c: &mut Criterion) {
-    let cfg = BenchConfig::parse(BENCH, "bench").unwrap();
     let rt = tokio::runtime::Builder::new_multi_thread()
         .worker_threads(2)
         .enable_all()
         .build()
         .unwrap();
-    let links = (0..cfg.instruments.len())
-        .map(|_| memory_instrument())
-        .collect();
-    let mut bench = rt.block_on(Bench::with_transports(&cfg, links)).unwrap();
     let mut g = c.benchmark_group("step_overhead");
-    // One step: set the load, read all five measuring roles on four instruments.
-    g.bench_function("set_load_and_measure_4_instruments", |b| {
-        b.iter(|| {
-            rt.block_on(async {
-                bench
-                    .set_load(LoadMode::ConstantCurrent, black_box(0.25))
-                    .await
-                    .unwrap();
-                black_box(bench.measure().await.unwrap())
+    for (name, text) in [
+        ("lockstep_confirm_errors_readback", BENCH.to_string()),
+        ("confirm_only", confirm_only()),
+    ] {
+        let cfg = BenchConfig::parse(&text, "bench").unwrap();
+        let links = (0..cfg.instruments.len())
+            .map(|_| memory_instrument())
+            .collect();
+        let mut bench = rt.block_on(Bench::with_transports(&cfg, links)).unwrap();
+        // One step: set the load, read all five measuring roles on four instruments.
+        g.bench_function(format!("set_load_and_measure_4_instruments/{name}"), |b| {
+            b.iter(|| {
+                rt.block_on(async {
+                    bench
+                        .set_load(LoadMode::ConstantCurrent, black_box(0.25))
+                        .await
+                        .unwrap();
+                    black_box(bench.measure().await.unwrap())
+                })
             })
-        })
-    });
+        });
+    }
     g.finish();
 }
 

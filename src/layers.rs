@@ -8,7 +8,7 @@
 /// Layers, lowest first.
 const LAYERS: &[&[&str]] = &[
     &["quantity", "measure", "config", "rng"],
-    &["design", "protocol", "transport", "control"],
+    &["design", "protocol", "transport", "control", "guardian"],
     &["record", "bench", "sim", "spice"],
     &["analysis"],
     &["plan", "compare"],

@@ -11,6 +11,7 @@ pub mod compare;
 pub mod config;
 pub mod control;
 pub mod design;
+pub mod guardian;
 pub mod measure;
 pub mod pipeline;
 pub mod plan;

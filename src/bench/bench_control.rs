@@ -59,6 +59,24 @@ impl BenchControl for Bench {
         self.read_all().await.map_err(control_error)
     }
 
+    async fn limits(&mut self, arm: bool) -> Result<(), ControlError> {
+        let r = Bench::limits(self, arm).await;
+        self.settings_changed();
+        r.map_err(control_error)
+    }
+
+    fn guard(&mut self, record: &std::path::Path) -> Result<(), ControlError> {
+        Bench::guard(self, record).map_err(|e| ControlError::new("guardian", e.to_string()))
+    }
+
+    fn stand_down(&mut self) {
+        Bench::stand_down(self)
+    }
+
+    fn take_retries(&mut self) -> u32 {
+        Bench::take_retries(self)
+    }
+
     async fn safe_state(&mut self) -> Vec<ControlError> {
         self.run_safe_state()
             .await

@@ -65,6 +65,33 @@ pub enum BenchError {
         instrument: String,
         command: String,
     },
+    /// The instrument refused a command: an error reply, or an entry in its error queue.
+    Refused {
+        instrument: String,
+        command: String,
+        raw: String,
+    },
+    /// A reply that is not what the exchange expects (an acknowledgement or confirmation).
+    UnexpectedReply {
+        instrument: String,
+        command: String,
+        raw: String,
+        expected: String,
+    },
+    /// A setting read back as something else than what was set.
+    Readback {
+        instrument: String,
+        command: String,
+        query: String,
+        raw: String,
+        expected: String,
+    },
+    /// A reply came later than its deadline and the link could not be brought back in step.
+    OutOfSync {
+        instrument: String,
+        query: String,
+        ms: u128,
+    },
     Io {
         instrument: String,
         command: String,
@@ -139,6 +166,10 @@ impl BenchError {
             | BenchError::NoReply { instrument, .. }
             | BenchError::Unparseable { instrument, .. }
             | BenchError::Closed { instrument, .. }
+            | BenchError::Refused { instrument, .. }
+            | BenchError::UnexpectedReply { instrument, .. }
+            | BenchError::Readback { instrument, .. }
+            | BenchError::OutOfSync { instrument, .. }
             | BenchError::Io { instrument, .. }
             | BenchError::TrafficLog { instrument, .. }
             | BenchError::Render { instrument, .. }
@@ -187,6 +218,10 @@ impl fmt::Display for Detail<'_> {
             E::NoReply { command, ms, .. } => write!(f, "no reply to '{command}' within {ms} ms; check the cable, baud rate and terminators, and that the instrument knows this command"),
             E::Unparseable { command, raw, pattern, reason, .. } => write!(f, "reply to '{command}' cannot be read: {reason}; raw line {raw:?}, pattern {pattern:?}; check the reply pattern, scale and the instrument's mode"),
             E::Closed { command, .. } => write!(f, "connection closed (while '{command}'); check the cable or network and that the instrument is still on"),
+            E::Refused { command, raw, .. } => write!(f, "refused '{command}': it answered {raw:?}; check that the value is within the instrument's range and that it is in the right mode"),
+            E::UnexpectedReply { command, raw, expected, .. } => write!(f, "unexpected reply to '{command}': {raw:?}, expected {expected}; check the acknowledge and confirm_reply patterns in the bench file"),
+            E::Readback { command, query, raw, expected, .. } => write!(f, "setting '{command}' did not hold: '{query}' read back {raw:?}, expected {expected}; the instrument did not apply it (check its range, mode and the readback settings)"),
+            E::OutOfSync { query, ms, .. } => write!(f, "a reply came later than its deadline and the link could not be brought back in step ('{query}' not answered within {ms} ms); check the instrument, and raise reply_timeout_ms if it is slow"),
             E::Io { command, error, .. } => write!(f, "input/output error (while '{command}'): {error}"),
             E::TrafficLog { path, error, .. } => write!(
                 f,

@@ -1,15 +1,17 @@
-//! One open instrument: its port (one mutex, so never two commands in flight), the query and
-//! stream reading styles, retries, command gaps, init / identity / safe-state sequences and
-//! the traffic log. Knows nothing of other instruments.
+//! One open instrument: its port (one mutex, so never two commands in flight), the exchange
+//! discipline that keeps the link in step (a reply later than its deadline is never taken as
+//! the answer to a later query: after any unfinished exchange the link is brought back in step
+//! first), retries, command gaps, acknowledgements, init / identity / safe-state sequences and
+//! the traffic log. Settings (`lockstep.rs`) and readings (`reading.rs`) build on the
+//! exchanges here. Knows nothing of other instruments.
 
-use super::config::{InstrumentConfig, LinkConfig, ReadingStyle, StreamPick};
+use super::config::{InstrumentConfig, LinkConfig, ReadingStyle};
 use super::{BenchError, IoCause};
-use crate::measure::{Reading, Role};
-use crate::protocol::{ReplyError, Template};
 use crate::transport::{
     open_serial, open_tcp, BoxTransport, LineReader, LineWriter, LinkError, OpenError, TrafficLog,
 };
 use std::collections::VecDeque;
+use std::sync::atomic::{AtomicU32, Ordering};
 use std::sync::{Arc, Mutex as StdMutex};
 use std::time::Duration;
 use tokio::io::{ReadHalf, WriteHalf};
@@ -17,44 +19,57 @@ use tokio::sync::{Mutex, Notify};
 use tokio::task::JoinHandle;
 use tokio::time::Instant;
 
-type Reader = LineReader<ReadHalf<BoxTransport>>;
+pub(super) type Reader = LineReader<ReadHalf<BoxTransport>>;
 type Writer = LineWriter<WriteHalf<BoxTransport>>;
 
 /// Lines kept from a streaming instrument (older ones are dropped first).
 const STREAM_KEEP: usize = 2048;
 
+/// How many reply deadlines a resynchronising identity query may wait: a slow instrument
+/// works through the commands queued before it first.
+const SYNC_DEADLINES: u32 = 4;
+
 /// Lines received from a streaming instrument, with their arrival times.
 #[derive(Default)]
-struct StreamState {
-    lines: VecDeque<(Instant, String)>,
-    ended: Option<LinkError>,
+pub(super) struct StreamState {
+    pub lines: VecDeque<(Instant, String)>,
+    pub ended: Option<LinkError>,
     /// When the bench last changed a setting (load, source): lines that arrived before it
     /// describe the old operating point and never count towards a later reading.
-    fresh_after: Option<Instant>,
+    pub fresh_after: Option<Instant>,
 }
 
-struct Stream {
-    state: StdMutex<StreamState>,
-    notify: Notify,
+pub(super) struct Stream {
+    pub state: StdMutex<StreamState>,
+    pub notify: Notify,
 }
 
-struct Port {
+pub(super) struct Port {
     writer: Writer,
-    /// `None` for a streaming instrument (its background task owns the reader).
-    reader: Option<Reader>,
+    /// `None` for a streaming instrument (its background task owns the reader). Never taken
+    /// out: a cancelled exchange leaves it in place.
+    pub reader: Option<Reader>,
     last_write: Option<Instant>,
+    /// An exchange that expects a reply did not finish (deadline passed, cancelled, or an
+    /// unexpected line): its reply may still arrive, so the link is resynchronised before
+    /// the next exchange.
+    pub unsynced: bool,
 }
 
 /// An instrument with an open link.
 pub struct Instrument {
     pub(crate) cfg: InstrumentConfig,
-    port: Mutex<Port>,
-    stream: Option<Arc<Stream>>,
+    pub(super) port: Mutex<Port>,
+    pub(super) stream: Option<Arc<Stream>>,
     stream_task: Option<JoinHandle<()>>,
-    log: Option<Arc<TrafficLog>>,
+    pub(super) log: Option<Arc<TrafficLog>>,
     identity: StdMutex<Option<String>>,
     /// The driver of a Modbus instrument (see `modbus`); `None` for text instruments.
     modbus: Option<super::modbus::ModbusDevice>,
+    /// The link's descriptor, when it has one (for the guardian).
+    raw_fd: Option<i32>,
+    /// Retries and resynchronisations since [`Instrument::take_retries`] was last called.
+    retries: AtomicU32,
 }
 
 impl Drop for Instrument {
@@ -118,6 +133,40 @@ pub async fn connect(cfg: &InstrumentConfig) -> Result<BoxTransport, BenchError>
     }
 }
 
+fn spawn_stream_reader(
+    mut rd: Reader,
+    s: Arc<Stream>,
+    log: Option<Arc<TrafficLog>>,
+) -> JoinHandle<()> {
+    tokio::spawn(async move {
+        loop {
+            let far = Instant::now() + Duration::from_secs(3600);
+            match rd.read_line(far).await {
+                Ok(line) => {
+                    if let Some(l) = &log {
+                        l.line(false, &line);
+                    }
+                    if let Ok(mut st) = s.state.lock() {
+                        if st.lines.len() >= STREAM_KEEP {
+                            st.lines.pop_front();
+                        }
+                        st.lines.push_back((Instant::now(), line));
+                    }
+                    s.notify.notify_waiters();
+                }
+                Err(LinkError::Timeout) => continue,
+                Err(e) => {
+                    if let Ok(mut st) = s.state.lock() {
+                        st.ended = Some(e);
+                    }
+                    s.notify.notify_waiters();
+                    return;
+                }
+            }
+        }
+    })
+}
+
 impl Instrument {
     /// Wrap an open transport; starts the background reader of a streaming instrument.
     /// Must be called inside a tokio runtime.
@@ -133,48 +182,23 @@ impl Instrument {
             })?)),
         };
         let (io, modbus) = super::modbus::take_link(&cfg, io, log.clone());
+        let raw_fd = io.raw_fd();
         let (r, w) = tokio::io::split(io);
         let mut reader = Some(LineReader::new(r, &cfg.read_terminator));
         let writer = LineWriter::new(w, &cfg.write_terminator);
-        let (stream, stream_task) = if matches!(cfg.reading, ReadingStyle::Stream { .. }) {
-            let s = Arc::new(Stream {
-                state: StdMutex::new(StreamState::default()),
-                notify: Notify::new(),
-            });
-            let mut rd = reader.take();
-            let s2 = Arc::clone(&s);
-            let log2 = log.clone();
-            let task = tokio::spawn(async move {
-                let Some(rd) = rd.as_mut() else { return };
-                loop {
-                    let far = Instant::now() + Duration::from_secs(3600);
-                    match rd.read_line(far).await {
-                        Ok(line) => {
-                            if let Some(l) = &log2 {
-                                l.line(false, &line);
-                            }
-                            if let Ok(mut st) = s2.state.lock() {
-                                if st.lines.len() >= STREAM_KEEP {
-                                    st.lines.pop_front();
-                                }
-                                st.lines.push_back((Instant::now(), line));
-                            }
-                            s2.notify.notify_waiters();
-                        }
-                        Err(LinkError::Timeout) => continue,
-                        Err(e) => {
-                            if let Ok(mut st) = s2.state.lock() {
-                                st.ended = Some(e);
-                            }
-                            s2.notify.notify_waiters();
-                            return;
-                        }
-                    }
-                }
-            });
-            (Some(s), Some(task))
-        } else {
-            (None, None)
+        let (stream, stream_task) = match (&cfg.reading, reader.take()) {
+            (ReadingStyle::Stream { .. }, Some(rd)) => {
+                let s = Arc::new(Stream {
+                    state: StdMutex::new(StreamState::default()),
+                    notify: Notify::new(),
+                });
+                let task = spawn_stream_reader(rd, Arc::clone(&s), log.clone());
+                (Some(s), Some(task))
+            }
+            (_, rd) => {
+                reader = rd;
+                (None, None)
+            }
         };
         Ok(Instrument {
             cfg,
@@ -182,13 +206,21 @@ impl Instrument {
                 writer,
                 reader,
                 last_write: None,
+                unsynced: false,
             }),
             stream,
             stream_task,
             log,
             identity: StdMutex::new(None),
             modbus,
+            raw_fd,
+            retries: AtomicU32::new(0),
         })
+    }
+
+    /// The Modbus driver, for a Modbus instrument.
+    pub(super) fn modbus(&self) -> Option<&super::modbus::ModbusDevice> {
+        self.modbus.as_ref()
     }
 
     pub fn name(&self) -> &str {
@@ -199,12 +231,34 @@ impl Instrument {
         &self.cfg
     }
 
+    /// The link's descriptor, when it has one.
+    pub fn raw_fd(&self) -> Option<i32> {
+        self.raw_fd
+    }
+
     /// The identity reply, if it was queried.
     pub fn identity(&self) -> Option<String> {
         self.identity.lock().ok().and_then(|g| g.clone())
     }
 
-    fn err(&self, command: &str, e: LinkError) -> BenchError {
+    /// How many retries and resynchronisations happened since the last call (readings taken
+    /// after one are flagged in the record).
+    pub fn take_retries(&self) -> u32 {
+        self.retries.swap(0, Ordering::SeqCst)
+    }
+
+    pub(super) fn note_retry(&self, what: &str) {
+        self.retries.fetch_add(1, Ordering::SeqCst);
+        self.note(what);
+    }
+
+    pub(super) fn note(&self, what: &str) {
+        if let Some(l) = &self.log {
+            l.note(what);
+        }
+    }
+
+    pub(super) fn err(&self, command: &str, e: LinkError) -> BenchError {
         let instrument = self.cfg.name.clone();
         let command = command.to_string();
         match e {
@@ -227,14 +281,8 @@ impl Instrument {
         }
     }
 
-    async fn send_locked(&self, port: &mut Port, line: &str) -> Result<(), BenchError> {
-        self.write_locked(port, line)
-            .await
-            .map_err(|e| self.err(line, e))
-    }
-
     /// Write one line, keeping the command gap and the traffic log; the link's own error.
-    async fn write_locked(&self, port: &mut Port, line: &str) -> Result<(), LinkError> {
+    pub(super) async fn write_locked(&self, port: &mut Port, line: &str) -> Result<(), LinkError> {
         if let Some(last) = port.last_write {
             let due = last + self.cfg.command_gap;
             if !self.cfg.command_gap.is_zero() && Instant::now() < due {
@@ -252,30 +300,195 @@ impl Instrument {
         r
     }
 
-    /// Send commands that get no reply, in order.
+    /// Discard what has already arrived (logged as discarded).
+    pub(super) async fn drain(&self, port: &mut Port) -> Result<(), LinkError> {
+        let Some(reader) = port.reader.as_mut() else {
+            return Ok(());
+        };
+        let stale = reader.drain().await?;
+        if let Some(l) = &self.log {
+            for s in &stale {
+                l.line(false, s);
+                l.note("discarded: arrived before the query");
+            }
+        }
+        Ok(())
+    }
+
+    /// The next non-empty reply line to `sent` before `deadline`; a line equal to the
+    /// instrument's identity (a late answer to a resynchronising query) is never a reply to
+    /// anything but the identity query.
+    pub(super) async fn next_line(
+        &self,
+        port: &mut Port,
+        sent: &str,
+        deadline: Instant,
+    ) -> Result<String, LinkError> {
+        let id = self
+            .identity()
+            .filter(|_| self.cfg.identity_query.as_deref() != Some(sent));
+        let reader = port.reader.as_mut().ok_or(LinkError::Closed)?;
+        loop {
+            let line = reader.read_line(deadline).await?;
+            if let Some(l) = &self.log {
+                l.line(false, &line);
+            }
+            let t = line.trim();
+            if t.is_empty() {
+                continue;
+            }
+            if id.as_deref().is_some_and(|i| i == t) {
+                self.note("discarded: a late identity reply");
+                continue;
+            }
+            return Ok(t.to_string());
+        }
+    }
+
+    /// Make sure no reply of an unfinished exchange can be taken for a later one: send the
+    /// identity query and discard every line until its reply (the instrument answers in
+    /// order, so everything late arrives before it). Without an identity query, wait for a
+    /// quiet reply deadline instead.
+    pub(super) async fn resync(&self, port: &mut Port) -> Result<(), BenchError> {
+        if !port.unsynced || port.reader.is_none() {
+            return Ok(());
+        }
+        self.note_retry("resynchronising: a reply may still be on its way");
+        let timeout = self.cfg.reply_timeout;
+        let Some(q) = self.cfg.identity_query.clone() else {
+            let end = Instant::now() + timeout * SYNC_DEADLINES;
+            let reader = port
+                .reader
+                .as_mut()
+                .ok_or_else(|| self.err("", LinkError::Closed))?;
+            loop {
+                match reader.read_line(Instant::now() + timeout).await {
+                    Ok(line) => {
+                        if let Some(l) = &self.log {
+                            l.line(false, &line);
+                            l.note("discarded: late");
+                        }
+                        if Instant::now() > end {
+                            return Err(BenchError::OutOfSync {
+                                instrument: self.cfg.name.clone(),
+                                query: "(quiet link)".into(),
+                                ms: (timeout * SYNC_DEADLINES).as_millis(),
+                            });
+                        }
+                    }
+                    Err(LinkError::Timeout) => {
+                        port.unsynced = false;
+                        return Ok(());
+                    }
+                    Err(e) => return Err(self.err("(waiting for a quiet link)", e)),
+                }
+            }
+        };
+        let id = self.identity();
+        for _ in 0..=self.cfg.retries {
+            self.write_locked(port, &q)
+                .await
+                .map_err(|e| self.err(&q, e))?;
+            let deadline = Instant::now() + timeout * SYNC_DEADLINES;
+            let reader = port
+                .reader
+                .as_mut()
+                .ok_or_else(|| self.err(&q, LinkError::Closed))?;
+            loop {
+                match reader.read_line(deadline).await {
+                    Ok(line) => {
+                        if let Some(l) = &self.log {
+                            l.line(false, &line);
+                        }
+                        let t = line.trim();
+                        let is_id = match &id {
+                            Some(i) => i == t,
+                            None => crate::protocol::parse_identity(t).is_some(),
+                        };
+                        if is_id {
+                            port.unsynced = false;
+                            return Ok(());
+                        }
+                        self.note("discarded: late");
+                    }
+                    Err(LinkError::Timeout) => break,
+                    Err(e) => return Err(self.err(&q, e)),
+                }
+            }
+        }
+        Err(BenchError::OutOfSync {
+            instrument: self.cfg.name.clone(),
+            query: q,
+            ms: (timeout * SYNC_DEADLINES).as_millis(),
+        })
+    }
+
+    /// Send one command that is not a query. An acknowledging instrument answers it: an
+    /// error reply is a refusal, any other line than a success reply puts the link out of
+    /// step.
+    pub(super) async fn command_locked(
+        &self,
+        port: &mut Port,
+        line: &str,
+    ) -> Result<(), BenchError> {
+        let Some(ack) = self.cfg.lockstep.acknowledge.clone() else {
+            return self
+                .write_locked(port, line)
+                .await
+                .map_err(|e| self.err(line, e));
+        };
+        self.resync(port).await?;
+        self.drain(port).await.map_err(|e| self.err(line, e))?;
+        self.write_locked(port, line)
+            .await
+            .map_err(|e| self.err(line, e))?;
+        port.unsynced = true;
+        let deadline = Instant::now() + self.cfg.reply_timeout;
+        let reply = self
+            .next_line(port, line, deadline)
+            .await
+            .map_err(|e| self.err(line, e))?;
+        if ack.error.is_match(&reply) {
+            port.unsynced = false;
+            return Err(BenchError::Refused {
+                instrument: self.cfg.name.clone(),
+                command: line.to_string(),
+                raw: reply,
+            });
+        }
+        if ack.success.is_match(&reply) {
+            port.unsynced = false;
+            return Ok(());
+        }
+        Err(BenchError::UnexpectedReply {
+            instrument: self.cfg.name.clone(),
+            command: line.to_string(),
+            raw: reply,
+            expected: format!("an acknowledgement matching {:?}", ack.success.as_str()),
+        })
+    }
+
+    /// Send a query and return its first reply line, in step (resynchronised first when an
+    /// earlier exchange did not finish). The link stays marked out of step until the caller
+    /// accepts the reply with [`Port::unsynced`] = false, or on a timeout.
+    pub(super) async fn query_locked(&self, port: &mut Port, q: &str) -> Result<String, LinkError> {
+        self.drain(port).await?;
+        self.write_locked(port, q).await?;
+        port.unsynced = true;
+        let deadline = Instant::now() + self.cfg.reply_timeout;
+        self.next_line(port, q, deadline).await
+    }
+
+    /// Send commands, in order (acknowledged ones answered).
     pub async fn send_all(&self, lines: &[String]) -> Result<(), BenchError> {
         if let Some(m) = &self.modbus {
             return m.send_all(lines).await;
         }
         let mut port = self.port.lock().await;
         for l in lines {
-            self.send_locked(&mut port, l).await?;
+            self.command_locked(&mut port, l).await?;
         }
         Ok(())
-    }
-
-    /// Render and send a template (`value` ignored by templates without placeholder).
-    pub async fn send_template(&self, t: &Template, value: f64) -> Result<(), BenchError> {
-        if let Some(m) = &self.modbus {
-            return m.send(t.source(), value).await;
-        }
-        let line = t.render(value).map_err(|error| BenchError::Render {
-            instrument: self.cfg.name.clone(),
-            template: t.source().to_string(),
-            error,
-        })?;
-        let mut port = self.port.lock().await;
-        self.send_locked(&mut port, &line).await
     }
 
     /// Send the init sequence, then the identity query (keeping its reply).
@@ -290,69 +503,27 @@ impl Instrument {
         Ok(())
     }
 
-    /// Wait until the instrument has applied the settings sent so far, when it has a confirm
-    /// query (`*OPC?` for SCPI loads and sources); any reply line confirms.
-    pub async fn confirm(&self) -> Result<(), BenchError> {
-        if let Some(m) = &self.modbus {
-            return m.confirm().await;
-        }
-        match self.cfg.confirm_query.clone() {
-            Some(q) => self.raw_query(&q).await.map(|_| ()),
-            None => Ok(()),
-        }
-    }
-
     /// Send a query and return its first non-empty reply line as text (identity and such).
     /// On a streaming instrument, the first line after sending that is not a stream line.
     pub async fn raw_query(&self, q: &str) -> Result<String, BenchError> {
         if let Some(m) = &self.modbus {
             return m.query(q).await;
         }
-        let mut last = BenchError::NoReply {
-            instrument: self.cfg.name.clone(),
-            command: q.to_string(),
-            ms: self.cfg.reply_timeout.as_millis(),
-        };
-        for _ in 0..=self.cfg.retries {
-            let mut port = self.port.lock().await;
-            if let Some(stream) = &self.stream {
-                let sent = Instant::now();
-                self.send_locked(&mut port, q).await?;
-                drop(port);
-                let deadline = sent + self.cfg.reply_timeout;
-                // The reply is a line that is not a stream line. A partial stream line (the
-                // link opened mid-line) is not one either, so prefer a reply in the IEEE 488.2
-                // identity form (four comma-separated fields); otherwise take the last
-                // non-stream line seen when the deadline passes.
-                let mut fallback: Option<String> = None;
-                let got = self
-                    .wait_stream(stream, deadline, |t, line| {
-                        let l = line.trim();
-                        if t < sent || l.is_empty() || self.cfg.reply.parse(line).is_ok() {
-                            return None;
-                        }
-                        if crate::protocol::parse_identity(l).is_some() {
-                            return Some(l.to_string());
-                        }
-                        fallback = Some(l.to_string());
-                        None
-                    })
-                    .await;
-                match (got, fallback) {
-                    (Ok(s), _) => return Ok(s),
-                    (Err(LinkError::Timeout), Some(f)) => return Ok(f),
-                    (Err(e), _) => last = self.err(q, e),
-                }
-                continue;
+        if let Some(stream) = &self.stream {
+            return self.stream_query(stream, q).await;
+        }
+        let mut last = self.err(q, LinkError::Timeout);
+        let mut port = self.port.lock().await;
+        for attempt in 0..=self.cfg.retries {
+            if attempt > 0 {
+                self.note_retry(&format!("retry {attempt} of '{q}'"));
             }
-            let mut reader = match port.reader.take() {
-                Some(r) => r,
-                None => return Err(self.err(q, LinkError::Closed)),
-            };
-            let r = self.query_text(&mut port, &mut reader, q).await;
-            port.reader = Some(reader);
-            match r {
-                Ok(s) => return Ok(s),
+            self.resync(&mut port).await?;
+            match self.query_locked(&mut port, q).await {
+                Ok(s) => {
+                    port.unsynced = false;
+                    return Ok(s);
+                }
                 Err(
                     e @ (LinkError::Closed | LinkError::Io(_) | LinkError::WriteTimeout { .. }),
                 ) => return Err(self.err(q, e)),
@@ -360,38 +531,6 @@ impl Instrument {
             }
         }
         Err(last)
-    }
-
-    async fn query_text(
-        &self,
-        port: &mut Port,
-        reader: &mut Reader,
-        q: &str,
-    ) -> Result<String, LinkError> {
-        self.drain(reader).await?;
-        // Keep the write's own cause (a write timeout is not a closed link).
-        self.write_locked(port, q).await?;
-        let deadline = Instant::now() + self.cfg.reply_timeout;
-        loop {
-            let line = reader.read_line(deadline).await?;
-            if let Some(l) = &self.log {
-                l.line(false, &line);
-            }
-            if !line.trim().is_empty() {
-                return Ok(line.trim().to_string());
-            }
-        }
-    }
-
-    async fn drain(&self, reader: &mut Reader) -> Result<(), LinkError> {
-        let stale = reader.drain().await?;
-        if let Some(l) = &self.log {
-            for s in &stale {
-                l.line(false, s);
-                l.note("discarded: arrived before the query");
-            }
-        }
-        Ok(())
     }
 
     /// The bench changed a setting at `at`: a streaming instrument's lines from before it no
@@ -404,241 +543,25 @@ impl Instrument {
         }
     }
 
-    /// Take one reading for `role`: a query, or the stream's newest / averaged fresh lines.
-    pub async fn read(&self, role: Role) -> Result<Reading, BenchError> {
-        if let Some(m) = &self.modbus {
-            return m.read(role).await;
-        }
-        match &self.cfg.reading {
-            ReadingStyle::Query => {
-                let Some(t) = self.cfg.commands.measure.get(&role) else {
-                    return Err(BenchError::Command {
-                        instrument: self.cfg.name.clone(),
-                        detail: format!("no measuring command for role '{role}'"),
-                    });
-                };
-                let cmd = t.source().to_string();
-                self.query_reading(&cmd).await
-            }
-            ReadingStyle::Stream {
-                pick,
-                window,
-                max_age,
-                tags,
-            } => {
-                let tag = tags.get(&role).map(String::as_str);
-                self.stream_reading(role, *pick, *window, *max_age, tag)
-                    .await
-            }
-        }
-    }
-
-    async fn query_reading(&self, cmd: &str) -> Result<Reading, BenchError> {
-        let mut port = self.port.lock().await;
-        let mut reader = match port.reader.take() {
-            Some(r) => r,
-            None => return Err(self.err(cmd, LinkError::Closed)),
-        };
-        let r = self.query_reading_locked(&mut port, &mut reader, cmd).await;
-        port.reader = Some(reader);
-        r
-    }
-
-    async fn query_reading_locked(
-        &self,
-        port: &mut Port,
-        reader: &mut Reader,
-        cmd: &str,
-    ) -> Result<Reading, BenchError> {
-        let mut last_err = None;
-        for attempt in 0..=self.cfg.retries {
-            if attempt > 0 {
-                if let Some(l) = &self.log {
-                    l.note(&format!("retry {attempt} of '{cmd}'"));
-                }
-            }
-            self.drain(reader).await.map_err(|e| self.err(cmd, e))?;
-            self.send_locked(port, cmd).await?;
-            let deadline = Instant::now() + self.cfg.reply_timeout;
-            let mut bad: Option<(String, ReplyError)> = None;
-            let outcome = loop {
-                match reader.read_line(deadline).await {
-                    Ok(line) => {
-                        if let Some(l) = &self.log {
-                            l.line(false, &line);
-                        }
-                        if line.trim().is_empty() {
-                            continue;
-                        }
-                        match self.cfg.reply.parse(&line) {
-                            Ok(r) => return Ok(r),
-                            // A stray or garbled line: keep listening until the deadline.
-                            Err(e) => bad = Some((line, e)),
-                        }
-                    }
-                    Err(LinkError::Timeout) => break LinkError::Timeout,
-                    Err(e) => return Err(self.err(cmd, e)),
-                }
-            };
-            last_err = Some(match bad {
-                Some((raw, reason)) => BenchError::Unparseable {
-                    instrument: self.cfg.name.clone(),
-                    command: cmd.to_string(),
-                    raw,
-                    pattern: self.cfg.reply.pattern_text().to_string(),
-                    reason: Box::new(reason),
-                },
-                None => self.err(cmd, outcome),
-            });
-            if let (Some(l), Some(e)) = (&self.log, &last_err) {
-                l.note(&e.to_string());
-            }
-        }
-        Err(last_err.unwrap_or_else(|| self.err(cmd, LinkError::Timeout)))
-    }
-
-    /// Wait until `accept` picks something from the stream's lines, or the deadline passes.
-    async fn wait_stream<T>(
-        &self,
-        stream: &Stream,
-        deadline: Instant,
-        mut accept: impl FnMut(Instant, &str) -> Option<T>,
-    ) -> Result<T, LinkError> {
-        loop {
-            let notified = stream.notify.notified();
-            tokio::pin!(notified);
-            notified.as_mut().enable();
-            {
-                let st = stream.state.lock().map_err(|_| LinkError::Poisoned)?;
-                for (t, line) in st.lines.iter() {
-                    if let Some(v) = accept(*t, line) {
-                        return Ok(v);
-                    }
-                }
-                if let Some(e) = &st.ended {
-                    return Err(e.clone());
-                }
-            }
-            if tokio::time::timeout_at(deadline, notified).await.is_err() {
-                return Err(LinkError::Timeout);
-            }
-        }
-    }
-
-    async fn stream_reading(
-        &self,
-        role: Role,
-        pick: StreamPick,
-        window: Duration,
-        max_age: Duration,
-        tag: Option<&str>,
-    ) -> Result<Reading, BenchError> {
-        let Some(stream) = &self.stream else {
-            return Err(self.err(role.as_str(), LinkError::Closed));
-        };
-        let what = format!("stream ({role})");
-        let deadline = Instant::now() + self.cfg.reply_timeout;
-        let mut bad: Option<(String, ReplyError)> = None;
-        loop {
-            let notified = stream.notify.notified();
-            tokio::pin!(notified);
-            notified.as_mut().enable();
-            {
-                let mut st = stream
-                    .state
-                    .lock()
-                    .map_err(|_| self.err(&what, LinkError::Poisoned))?;
-                let now = Instant::now();
-                // Stale lines (too old, or from before the last setting change) are dropped
-                // for good.
-                let fresh_after = st.fresh_after;
-                while st.lines.front().is_some_and(|(t, _)| {
-                    now.duration_since(*t) > max_age || fresh_after.is_some_and(|f| *t < f)
-                }) {
-                    st.lines.pop_front();
-                }
-                let span = match pick {
-                    StreamPick::Newest => max_age,
-                    StreamPick::Average => window.min(max_age),
-                };
-                let mut sum = 0.0;
-                let mut n = 0usize;
-                let mut over = false;
-                for (t, line) in st.lines.iter().rev() {
-                    if now.duration_since(*t) > span {
-                        break;
-                    }
-                    if line.trim().is_empty() {
-                        continue;
-                    }
-                    match self.cfg.reply.parse_tagged(line) {
-                        Ok((ltag, r)) => {
-                            if let Some(want) = tag {
-                                if ltag != Some(want) {
-                                    continue;
-                                }
-                            }
-                            match r {
-                                Reading::Overrange => over = true,
-                                Reading::Value(v) => {
-                                    sum += v;
-                                    n += 1;
-                                }
-                            }
-                            if pick == StreamPick::Newest {
-                                break;
-                            }
-                        }
-                        Err(e) => {
-                            if bad.is_none() {
-                                bad = Some((line.clone(), e));
-                            }
-                        }
-                    }
-                }
-                if over {
-                    return Ok(Reading::Overrange);
-                }
-                if n > 0 {
-                    return Ok(Reading::Value(sum / n as f64));
-                }
-                if let Some(e) = &st.ended {
-                    return Err(self.err(&what, e.clone()));
-                }
-            }
-            if tokio::time::timeout_at(deadline, notified).await.is_err() {
-                return Err(match bad {
-                    Some((raw, reason)) => BenchError::Unparseable {
-                        instrument: self.cfg.name.clone(),
-                        command: what,
-                        raw,
-                        pattern: self.cfg.reply.pattern_text().to_string(),
-                        reason: Box::new(reason),
-                    },
-                    None => self.err(&what, LinkError::Timeout),
-                });
-            }
-        }
-    }
-
-    /// Send the safe-state sequence; every command is tried even when one fails.
-    pub async fn safe_state(&self) -> Vec<BenchError> {
-        if let Some(m) = &self.modbus {
-            return m.safe_state(&self.cfg.safe_state).await;
-        }
+    /// Send a command sequence (safe state, limits); every command is tried even when one
+    /// fails. A link known to be closed cannot have delivered it: that is reported too.
+    pub async fn send_sequence(&self, cmds: &[String], what: &str) -> Vec<BenchError> {
         let mut errors = Vec::new();
-        let cmds = self.cfg.safe_state.clone();
         if cmds.is_empty() {
             return errors;
         }
+        if let Some(m) = &self.modbus {
+            if let Err(e) = m.send_all(cmds).await {
+                errors.push(e);
+            }
+            return errors;
+        }
         let mut port = self.port.lock().await;
-        for c in &cmds {
-            if let Err(e) = self.send_locked(&mut port, c).await {
+        for c in cmds {
+            if let Err(e) = self.command_locked(&mut port, c).await {
                 errors.push(e);
             }
         }
-        // A link known to be closed cannot have delivered the sequence, even if the write
-        // went into a socket buffer: say so, so the user checks the instrument by hand.
         let reader_closed = port.reader.as_ref().is_some_and(|r| r.is_closed());
         let stream_ended = self
             .stream
@@ -649,11 +572,20 @@ impl Instrument {
             errors.push(BenchError::Closed {
                 instrument: self.cfg.name.clone(),
                 command: format!(
-                    "safe state {}; make sure by hand that it is safe",
+                    "{what} {}; make sure by hand that it is safe",
                     cmds.join(" / ")
                 ),
             });
         }
         errors
+    }
+
+    /// Send the safe-state sequence; every command is tried even when one fails.
+    pub async fn safe_state(&self) -> Vec<BenchError> {
+        if let Some(m) = &self.modbus {
+            return m.safe_state(&self.cfg.safe_state).await;
+        }
+        let cmds = self.cfg.safe_state.clone();
+        self.send_sequence(&cmds, "safe state").await
     }
 }

@@ -8,19 +8,22 @@ mod bench_control;
 pub mod config;
 mod error;
 mod instrument;
+mod lockstep;
 mod modbus;
 mod modbus_fault;
 mod open;
 mod probe;
+mod reading;
 
 pub use crate::transport::IoCause;
 pub use bench_control::control_error;
 pub use config::{
-    BenchConfig, CommandKey, CommandSet, FlowControl, InstrumentConfig, LinkConfig, Parity,
-    ReadingStyle, SerialSettings, StreamPick, TcpSettings, PRESET_NAMES,
+    BenchConfig, CommandKey, CommandSet, FlowControl, InstrumentConfig, LinkConfig, Lockstep,
+    Parity, Readback, ReadingStyle, SerialSettings, StreamPick, TcpSettings, PRESET_NAMES,
 };
 pub use error::{BenchError, BenchErrorKind};
 pub use instrument::{connect, Instrument};
+pub use lockstep::SettingCommand;
 pub use modbus_fault::ModbusFault;
 pub use open::Bench;
 pub use probe::{probe, write_probe_table, ProbeReport, ProbeRow};

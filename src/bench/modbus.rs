@@ -7,7 +7,7 @@
 //! about other instruments or the plan.
 
 use super::config::{
-    Confirm, Fixed, Framing, InstrumentConfig, ModbusMap, Payload, RegisterAction,
+    Fixed, Framing, InstrumentConfig, ModbusConfirm, ModbusMap, Payload, RegisterAction,
 };
 use super::modbus_fault::ModbusFault;
 use super::BenchError;
@@ -426,7 +426,7 @@ impl ModbusDevice {
     pub async fn confirm(&self) -> Result<(), BenchError> {
         let mut link = self.link.lock().await;
         let pending = std::mem::take(&mut link.pending);
-        if self.map.confirm == Confirm::WriteResponse {
+        if self.map.confirm == ModbusConfirm::WriteResponse {
             return Ok(());
         }
         for w in pending {

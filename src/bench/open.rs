@@ -4,6 +4,7 @@
 
 use super::config::{BenchConfig, CommandKey};
 use super::instrument::{connect, Instrument};
+use super::lockstep::SettingCommand;
 use super::BenchError;
 use crate::measure::{LoadMode, Measurement, Reading, Role};
 use crate::transport::BoxTransport;
@@ -16,6 +17,8 @@ use tokio::time::Instant;
 pub struct Bench {
     config: BenchConfig,
     instruments: Vec<Arc<Instrument>>,
+    /// The guardian process of the run in progress, if one was started.
+    guardian: Option<crate::guardian::Guardian>,
 }
 
 impl Bench {
@@ -25,7 +28,26 @@ impl Bench {
     pub async fn open(cfg: &BenchConfig) -> Result<Bench, BenchError> {
         let mut links = Vec::with_capacity(cfg.instruments.len());
         for inst in &cfg.instruments {
-            links.push(connect(inst).await?);
+            match connect(inst).await {
+                Ok(l) => links.push(l),
+                Err(e) => {
+                    // The instruments already connected may have been left on by an earlier
+                    // run: they get their safe state before the error is returned.
+                    let mut opened = Vec::new();
+                    for (c, io) in cfg.instruments.iter().zip(links) {
+                        if let Ok(i) = Instrument::new(c.clone(), io) {
+                            opened.push(Arc::new(i));
+                        }
+                    }
+                    let partial = Bench {
+                        config: cfg.clone(),
+                        instruments: opened,
+                        guardian: None,
+                    };
+                    let _ = partial.run_safe_state().await;
+                    return Err(e);
+                }
+            }
         }
         Bench::with_transports(cfg, links).await
     }
@@ -53,6 +75,7 @@ impl Bench {
         let bench = Bench {
             config: cfg.clone(),
             instruments,
+            guardian: None,
         };
         // Init and identity, all instruments concurrently.
         let mut set = JoinSet::new();
@@ -155,9 +178,8 @@ impl Bench {
         }
     }
 
-    /// Run every instrument's safe-state sequence: loads first, then sources, then the rest,
-    /// continuing past failures. Returns the failures.
-    pub async fn run_safe_state(&self) -> Vec<BenchError> {
+    /// The instruments in safe-state order: loads first, then sources, then the rest.
+    fn safe_order(&self) -> Vec<&Arc<Instrument>> {
         let rank = |i: &Instrument| {
             if i.cfg.roles.contains(&Role::Load) {
                 0
@@ -169,11 +191,82 @@ impl Bench {
         };
         let mut order: Vec<&Arc<Instrument>> = self.instruments.iter().collect();
         order.sort_by_key(|i| rank(i));
+        order
+    }
+
+    /// Start the guardian process for a run recorded in `record` (see [`crate::guardian`]):
+    /// it holds every link and sends the safe state (the switch-off commands, then the
+    /// safe-state sequence) if regulus ends without standing it down. Does nothing when this
+    /// process does not start guardians.
+    pub fn guard(&mut self, record: &std::path::Path) -> Result<(), crate::guardian::GuardError> {
+        use crate::guardian::{GuardLink, GuardSpec};
+        let mut links = Vec::new();
+        for inst in self.safe_order() {
+            let Some(fd) = inst.raw_fd() else { continue };
+            let mut lines: Vec<String> = Vec::new();
+            for (role, key) in crate::bench::config::SAFE_STATE_KEYS {
+                if inst.cfg.roles.contains(&role) {
+                    if let Some(Ok(l)) = inst.cfg.commands.get(key).map(|t| t.render(0.0)) {
+                        lines.push(l);
+                    }
+                }
+            }
+            for l in &inst.cfg.safe_state {
+                if !lines.contains(l) {
+                    lines.push(l.clone());
+                }
+            }
+            if lines.is_empty() {
+                continue;
+            }
+            links.push(GuardLink {
+                name: inst.cfg.name.clone(),
+                fd,
+                terminator: inst.cfg.write_terminator.clone(),
+                safe_state: lines,
+            });
+        }
+        let spec = GuardSpec {
+            record: Some(record.to_path_buf()),
+            links,
+        };
+        self.guardian = crate::guardian::start(&spec)?;
+        Ok(())
+    }
+
+    /// The run finished with its own safe state: the guardian exits without acting.
+    pub fn stand_down(&mut self) {
+        if let Some(g) = self.guardian.take() {
+            g.stand_down();
+        }
+    }
+
+    /// Run every instrument's safe-state sequence: loads first, then sources, then the rest,
+    /// continuing past failures. Returns the failures.
+    pub async fn run_safe_state(&self) -> Vec<BenchError> {
+        let order = self.safe_order();
         let mut errors = Vec::new();
         for inst in order {
             errors.extend(inst.safe_state().await);
         }
         errors
+    }
+
+    /// Arm (before a stressful step) or disarm every instrument's own limits, in file order;
+    /// the first failure is returned after all were tried.
+    pub async fn limits(&self, arm: bool) -> Result<(), BenchError> {
+        let mut first = None;
+        for inst in &self.instruments {
+            if let Err(e) = inst.limits(arm).await {
+                first.get_or_insert(e);
+            }
+        }
+        first.map_or(Ok(()), Err)
+    }
+
+    /// Retries and resynchronisations on any instrument since the last call.
+    pub fn take_retries(&self) -> u32 {
+        self.instruments.iter().map(|i| i.take_retries()).sum()
     }
 
     /// Tell streaming instruments that the operating point changed now (even after a failed
@@ -203,11 +296,20 @@ impl Bench {
                 ),
             });
         };
+        let mut cmds = Vec::with_capacity(2);
         if let Some(m) = c.get(mode_key) {
-            inst.send_template(m, 0.0).await?;
+            cmds.push(SettingCommand {
+                key: mode_key,
+                template: m,
+                value: 0.0,
+            });
         }
-        inst.send_template(set_cmd, value).await?;
-        inst.confirm().await
+        cmds.push(SettingCommand {
+            key: set_key,
+            template: set_cmd,
+            value,
+        });
+        inst.apply(&cmds).await
     }
 
     pub(super) async fn switch(&self, role: Role, on: bool) -> Result<(), BenchError> {
@@ -215,8 +317,12 @@ impl Bench {
         let key = CommandKey::switch(role, on);
         match inst.cfg.commands.get(key) {
             Some(t) => {
-                inst.send_template(t, 0.0).await?;
-                inst.confirm().await
+                inst.apply(&[SettingCommand {
+                    key,
+                    template: t,
+                    value: 0.0,
+                }])
+                .await
             }
             None => Err(BenchError::Command {
                 instrument: inst.cfg.name.clone(),
@@ -232,8 +338,12 @@ impl Bench {
         let inst = self.holder(Role::InputSource)?;
         match inst.cfg.commands.get(CommandKey::SourceSetVoltage) {
             Some(t) => {
-                inst.send_template(t, volts).await?;
-                inst.confirm().await
+                inst.apply(&[SettingCommand {
+                    key: CommandKey::SourceSetVoltage,
+                    template: t,
+                    value: volts,
+                }])
+                .await
             }
             None => Err(BenchError::Command {
                 instrument: inst.cfg.name.clone(),

@@ -43,11 +43,19 @@ pub enum Command {
     History(history::Args),
     /// Re-evaluate records against a design (for instance a new revision).
     Compare(compare::Args),
+    /// (internal) The guardian process a run starts to make the bench safe if regulus dies.
+    #[command(name = "__guardian", hide = true)]
+    Guardian,
 }
 
 /// Run the chosen command and return its exit code.
 pub fn dispatch(cli: Cli) -> anyhow::Result<u8> {
+    // Runs of this binary start guardians that run this same binary.
+    if let Ok(exe) = std::env::current_exe() {
+        crate::guardian::enable(exe);
+    }
     match cli.command {
+        Command::Guardian => Ok(crate::guardian::serve()),
         Command::Design(a) => design::run(a),
         Command::Size(a) => size::run(a),
         Command::Probe(a) => probe::run(a),

@@ -447,6 +447,7 @@ mod tests {
             safe_state_errors: vec![],
             info: None,
             finish_error,
+            stop: None,
         }
     }
 

@@ -24,12 +24,18 @@ pub struct Args {
     /// Write a bench file for the simulated instruments' ports here.
     #[arg(long, value_name = "FILE")]
     pub write_bench: Option<PathBuf>,
+    /// Let --write-bench replace an existing file (without it, an existing file is kept and
+    /// the command stops before starting the bench).
+    #[arg(long)]
+    pub overwrite_bench: bool,
     /// Write the as-built unit's true values (and element values) here as JSON.
     #[arg(long, value_name = "FILE")]
     pub write_truth: Option<PathBuf>,
     /// Inject a fault (repeatable). Unit: sense=0.56, diodes=+1, diodes=-1, theta_sa=12,
     /// vref=5.3. Port (dmm, ammeter, eload, psu, thermo): dmm:garbage=5, dmm:drop=3,
-    /// eload:slow=800, psu:close-after=20, thermo:close-at=5; on Modbus devices also
+    /// eload:slow=800, psu:close-after=20, thermo:close-at=5, eload:lag=300 (settings applied
+    /// late, in order), eload:ack=on (settings answered OK / ERR), eload:refuse=3 (the third
+    /// setting refused), dmm:late=3 (every third reply 1.5 s late); on Modbus devices also
     /// eload:exception=4 (every 4th request answered with an exception).
     #[arg(long = "fault", value_name = "SPEC")]
     pub faults: Vec<String>,
@@ -169,6 +175,18 @@ pub fn write_truth<W: Write>(w: &mut W, t: &Truth) -> std::io::Result<()> {
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
     let opts = options(&args)?;
+    if let Some(path) = &args.write_bench {
+        if path.exists() && !args.overwrite_bench {
+            return Err(CodedError::new(
+                EXIT_USAGE,
+                format!(
+                    "--write-bench {}: the file exists; choose another path or add --overwrite-bench",
+                    path.display()
+                ),
+            )
+            .into());
+        }
+    }
     let design = Design::load(&args.design)?;
     let sim = SimBench::start(&design, opts).map_err(|e| match e {
         crate::sim::SimError::Unit(u) => {

@@ -132,6 +132,7 @@ pub fn prepare(req: &RunRequest) -> Result<Prepared, PipelineError> {
             message,
             bench: req.bench.clone(),
         })?;
+    crate::runner::check_bench_for_plan(&bench, &plan)?;
     let design_ref = DesignRef {
         path: design_file.label(),
         sha256: design_file.sha256(),

@@ -13,5 +13,7 @@ mod template;
 
 pub use identity::{parse_identity, Identity};
 pub use number::{parse_number, si_prefix, unit_prefix_multiplier, SCPI_OVERRANGE};
-pub use reply::{PatternError, ReplyError, ReplyParser, ReplySpec, BARE_NUMBER_PATTERN};
+pub use reply::{
+    ExpectedUnit, PatternError, ReplyError, ReplyParser, ReplySpec, BARE_NUMBER_PATTERN,
+};
 pub use template::{Arity, NumberStyle, Template, TemplateError, ValueFormat};

@@ -3,8 +3,38 @@
 //! [`Reading`] in SI units. Pure logic: lines in, readings out.
 
 use super::number::{parse_number, si_prefix, unit_prefix_multiplier, SCPI_OVERRANGE};
-use crate::measure::Reading;
+use crate::measure::{Quantity, Reading};
 use regex::Regex;
+
+/// Zero degrees Celsius in kelvin (SI Brochure, 9th edition, 2.3.1: T/degC = T/K - 273.15).
+const ZERO_CELSIUS_K: f64 = 273.15;
+
+/// The unit a reply must carry for the role it is read for.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ExpectedUnit {
+    /// No check (identity replies, readbacks of settings).
+    Any,
+    /// The quantity's SI unit, with an optional SI prefix (`mV`, `kV`, `uA`); temperature in
+    /// degC (`degC`, `\u{b0}C`, `C`, `CEL`) or kelvin (`K`, converted to degC).
+    Of(Quantity),
+    /// Exactly this unit text (compared without case), as the bench file configures it; no
+    /// prefix scaling.
+    Text(String),
+}
+
+impl ExpectedUnit {
+    /// What the message says was expected.
+    pub fn describe(&self) -> String {
+        match self {
+            ExpectedUnit::Any => "any unit".into(),
+            ExpectedUnit::Of(q) => match q {
+                Quantity::Temperature => "degC or K".into(),
+                q => q.unit().to_string(),
+            },
+            ExpectedUnit::Text(t) => format!("'{t}'"),
+        }
+    }
+}
 
 /// Why a reply line did not give a reading.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
@@ -17,6 +47,8 @@ pub enum ReplyError {
     BadUnit(String),
     #[error("the instrument reported status '{0}'")]
     Status(String),
+    #[error("the reply's unit '{found}' is not the role's unit (expected {expected})")]
+    WrongUnit { found: String, expected: String },
 }
 
 /// Why a reply pattern or its settings were rejected.
@@ -126,6 +158,16 @@ impl ReplyParser {
         &self,
         line: &'a str,
     ) -> Result<(Option<&'a str>, Reading), ReplyError> {
+        self.parse_expecting(line, &ExpectedUnit::Any)
+    }
+
+    /// Parse one reply line for a role: the reply's unit, when it carries one, must be
+    /// `expect` (a voltmeter reply of `0.5 A` or `12 furlongs` is refused).
+    pub fn parse_expecting<'a>(
+        &self,
+        line: &'a str,
+        expect: &ExpectedUnit,
+    ) -> Result<(Option<&'a str>, Reading), ReplyError> {
         let (value, unit, status, tag) = match &self.regex {
             None => {
                 let (v, u, s) = split_bare(line).ok_or(ReplyError::NoMatch)?;
@@ -152,7 +194,8 @@ impl ReplyParser {
                 (value, unit, status, tag)
             }
         };
-        self.interpret(value, unit, status).map(|r| (tag, r))
+        self.interpret(value, unit, status, expect)
+            .map(|r| (tag, r))
     }
 
     fn interpret(
@@ -160,6 +203,7 @@ impl ReplyParser {
         value: &str,
         unit: Option<&str>,
         status: Option<&str>,
+        expect: &ExpectedUnit,
     ) -> Result<Reading, ReplyError> {
         if let Some(st) = status.map(str::trim).filter(|s| !s.is_empty()) {
             if eq_any(&self.spec.overrange_status, st) {
@@ -178,17 +222,76 @@ impl ReplyParser {
             return Ok(Reading::Overrange);
         }
         let mut mult = self.spec.scale;
-        if self.spec.unit_prefixes {
-            if let Some(u) = unit.map(str::trim).filter(|u| !u.is_empty()) {
-                mult *= unit_prefix_multiplier(u).ok_or_else(|| ReplyError::BadUnit(clip(u)))?;
+        let mut offset = 0.0;
+        let u = unit.map(str::trim).filter(|u| !u.is_empty());
+        match (expect, u) {
+            (_, None) => {}
+            (ExpectedUnit::Any, Some(u)) => {
+                if self.spec.unit_prefixes {
+                    mult *=
+                        unit_prefix_multiplier(u).ok_or_else(|| ReplyError::BadUnit(clip(u)))?;
+                }
+            }
+            (ExpectedUnit::Text(t), Some(u)) => {
+                if !u.eq_ignore_ascii_case(t) {
+                    return Err(wrong_unit(u, expect));
+                }
+            }
+            (ExpectedUnit::Of(q), Some(u)) => {
+                let (prefix, kelvin) = si_unit_of(u, *q).ok_or_else(|| wrong_unit(u, expect))?;
+                if self.spec.unit_prefixes {
+                    mult *= prefix;
+                }
+                if kelvin {
+                    offset = -ZERO_CELSIUS_K;
+                }
             }
         }
-        let out = n * mult;
+        let out = n * mult + offset;
         if !out.is_finite() {
             return Err(ReplyError::BadNumber(clip(v)));
         }
         Ok(Reading::Value(out))
     }
+}
+
+fn wrong_unit(found: &str, expect: &ExpectedUnit) -> ReplyError {
+    ReplyError::WrongUnit {
+        found: clip(found),
+        expected: expect.describe(),
+    }
+}
+
+/// The prefix multiplier of a unit text that names `q`'s unit, and whether it is kelvin;
+/// `None` when the text names another unit.
+fn si_unit_of(u: &str, q: Quantity) -> Option<(f64, bool)> {
+    // Returns Some(kelvin) when `base` is the quantity's unit.
+    let base_is = |base: &str| -> Option<bool> {
+        match q {
+            Quantity::OutputVoltage | Quantity::InputVoltage => (base == "V").then_some(false),
+            Quantity::OutputCurrent | Quantity::InputCurrent => (base == "A").then_some(false),
+            Quantity::Temperature => {
+                if base == "K" {
+                    Some(true)
+                } else if ["degC", "\u{b0}C", "C"].contains(&base)
+                    || base.eq_ignore_ascii_case("degc")
+                    || base.eq_ignore_ascii_case("cel")
+                {
+                    Some(false)
+                } else {
+                    None
+                }
+            }
+        }
+    };
+    if let Some(k) = base_is(u) {
+        return Some((1.0, k));
+    }
+    let mut cs = u.chars();
+    let first = cs.next()?;
+    let rest = cs.as_str();
+    let p = si_prefix(first)?;
+    base_is(rest).map(|k| (p, k))
 }
 
 fn eq_any(list: &[String], s: &str) -> bool {
@@ -287,6 +390,47 @@ mod tests {
         assert_eq!(p.parse("hello"), Err(ReplyError::BadNumber("hello".into())));
         assert_eq!(p.parse("1 2 3"), Err(ReplyError::NoMatch));
         assert_eq!(p.parse("12 V!"), Err(ReplyError::BadUnit("V!".into())));
+    }
+
+    // SI Brochure (9th edition, table 7 prefixes; 2.3.1 for kelvin and degC): a reply must
+    // carry its role's unit; a prefixed form scales, anything else is refused.
+    #[test]
+    fn replies_must_carry_the_roles_unit() {
+        let p = bare();
+        let volts = ExpectedUnit::Of(Quantity::OutputVoltage);
+        let amps = ExpectedUnit::Of(Quantity::InputCurrent);
+        let temp = ExpectedUnit::Of(Quantity::Temperature);
+        let v = |line: &str, e: &ExpectedUnit| p.parse_expecting(line, e).map(|(_, r)| r);
+        assert_eq!(v("12.5 V", &volts), Ok(Reading::Value(12.5)));
+        assert_eq!(v("12.5mV", &volts), Ok(Reading::Value(0.0125)));
+        assert_eq!(v("+1.20034E+01", &volts), Ok(Reading::Value(12.0034)));
+        for bad in ["0.5 A", "4.7 kohm", "12 furlongs", "3 degC"] {
+            match v(bad, &volts) {
+                Err(ReplyError::WrongUnit { expected, .. }) => assert_eq!(expected, "V"),
+                other => panic!("{bad}: {other:?}"),
+            }
+        }
+        assert_eq!(v("250 mA", &amps), Ok(Reading::Value(0.25)));
+        assert!(matches!(
+            v("250 mV", &amps),
+            Err(ReplyError::WrongUnit { .. })
+        ));
+        assert_eq!(v("25.5 degC", &temp), Ok(Reading::Value(25.5)));
+        assert_eq!(v("25.5 \u{b0}C", &temp), Ok(Reading::Value(25.5)));
+        // 300 K is 26.85 degC.
+        match v("300 K", &temp) {
+            Ok(Reading::Value(t)) => assert!((t - 26.85).abs() < 1e-9, "{t}"),
+            other => panic!("{other:?}"),
+        }
+        assert!(matches!(v("3 V", &temp), Err(ReplyError::WrongUnit { .. })));
+        let text = ExpectedUnit::Text("VDC".into());
+        assert_eq!(v("12.0 VDC", &text), Ok(Reading::Value(12.0)));
+        assert!(matches!(
+            v("12.0 V", &text),
+            Err(ReplyError::WrongUnit { .. })
+        ));
+        // Overrange stays overrange whatever the unit.
+        assert_eq!(v("9.9E37 V", &volts), Ok(Reading::Overrange));
     }
 
     #[test]

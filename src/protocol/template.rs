@@ -38,7 +38,17 @@ pub enum TemplateError {
     RepeatedValue,
     #[error("value {0} is not a finite number")]
     NotFinite(f64),
+    #[error("value {value} would be sent as '{sent}', which loses it; use more decimals (e.g. {{value:.4}}) or another scale")]
+    Lossy { value: f64, sent: String },
+    #[error("value {value} would be sent as a {digits}-character number; check the scale of the placeholder")]
+    TooLong { value: f64, digits: usize },
 }
+
+/// Longest number a template may write into a command (no instrument takes more).
+pub const MAX_NUMBER_CHARS: usize = 24;
+
+/// Largest relative difference between a setpoint and what a template sends for it (0.5 %).
+pub const LOSSLESS_RELATIVE: f64 = 0.005;
 
 /// How a number is written into a command.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -207,6 +217,90 @@ impl Template {
     }
 }
 
+impl Template {
+    fn value_format(&self) -> Option<&ValueFormat> {
+        self.pieces.iter().find_map(|p| match p {
+            Piece::Value(f) => Some(f),
+            Piece::Text(_) => None,
+        })
+    }
+
+    /// The number text this template writes for `value` (`None` without a placeholder).
+    pub fn number_text(&self, value: f64) -> Result<Option<String>, TemplateError> {
+        let Some(f) = self.value_format() else {
+            return Ok(None);
+        };
+        if !value.is_finite() || !(value * f.scale).is_finite() {
+            return Err(TemplateError::NotFinite(value));
+        }
+        let mut out = String::new();
+        f.write(&mut out, value);
+        Ok(Some(out))
+    }
+
+    /// What the instrument receives for `value`, in the setting's own unit (the number sent,
+    /// divided by the placeholder's scale); `None` without a placeholder.
+    pub fn sent_value(&self, value: f64) -> Result<Option<f64>, TemplateError> {
+        let (Some(f), Some(text)) = (self.value_format(), self.number_text(value)?) else {
+            return Ok(None);
+        };
+        let n: f64 = text
+            .trim_start_matches('+')
+            .parse()
+            .map_err(|_| TemplateError::Lossy {
+                value,
+                sent: text.clone(),
+            })?;
+        Ok(Some(n / f.scale))
+    }
+
+    /// One step of the number this template writes near `value`, in the setting's unit
+    /// (`{value:.4}`: 0.0001; `{value:d}`: 1; `{value:E3}` at 12: 0.01); zero for the
+    /// shortest form (exact).
+    pub fn resolution(&self, value: f64) -> f64 {
+        let Some(f) = self.value_format() else {
+            return 0.0;
+        };
+        let step = match f.style {
+            NumberStyle::Shortest => 0.0,
+            NumberStyle::Fixed(n) => 10f64.powi(-(n as i32)),
+            NumberStyle::Whole => 1.0,
+            NumberStyle::Exponent { decimals, .. } => {
+                let v = (value * f.scale).abs();
+                let e = if v > 0.0 { v.log10().floor() } else { 0.0 };
+                10f64.powf(e - decimals as f64)
+            }
+        };
+        step / f.scale
+    }
+
+    /// Check that `value` is sent without losing it: within [`LOSSLESS_RELATIVE`] of itself
+    /// (a zero must be sent as zero) and in at most [`MAX_NUMBER_CHARS`] characters.
+    pub fn check_lossless(&self, value: f64) -> Result<(), TemplateError> {
+        let Some(text) = self.number_text(value)? else {
+            return Ok(());
+        };
+        if text.len() > MAX_NUMBER_CHARS {
+            return Err(TemplateError::TooLong {
+                value,
+                digits: text.len(),
+            });
+        }
+        let sent = self.sent_value(value)?.unwrap_or(value);
+        let err = (sent - value).abs();
+        let ok = if value == 0.0 {
+            sent == 0.0
+        } else {
+            err <= LOSSLESS_RELATIVE * value.abs()
+        };
+        if ok {
+            Ok(())
+        } else {
+            Err(TemplateError::Lossy { value, sent: text })
+        }
+    }
+}
+
 fn parse_placeholder(inner: &str) -> Result<ValueFormat, TemplateError> {
     let (head, spec) = match inner.split_once(':') {
         Some((h, s)) => (h.trim(), Some(s.trim())),
@@ -301,6 +395,37 @@ mod tests {
         assert_eq!(t.render(1.0).unwrap(), "{raw} 1.0");
         let t = Template::parse("INP ON", Arity::NoValue).unwrap();
         assert_eq!(t.render(f64::NAN).unwrap(), "INP ON");
+    }
+
+    #[test]
+    fn templates_say_what_they_send_and_refuse_losing_it() {
+        let t = Template::parse("CURR {value:.4}", Arity::OneValue).unwrap();
+        assert_eq!(t.sent_value(0.54).unwrap(), Some(0.54));
+        assert!((t.resolution(0.54) - 1e-4).abs() < 1e-15);
+        assert!(t.check_lossless(0.54).is_ok());
+        assert!(t.check_lossless(0.05).is_ok());
+        // `{value:d}` sends 0.54 A as 1 and 0.3 A as 0: both lost.
+        let d = Template::parse("CURR {value:d}", Arity::OneValue).unwrap();
+        assert!(matches!(
+            d.check_lossless(0.54),
+            Err(TemplateError::Lossy { .. })
+        ));
+        assert!(matches!(
+            d.check_lossless(0.3),
+            Err(TemplateError::Lossy { .. })
+        ));
+        assert!(d.check_lossless(12.0).is_ok());
+        // A scale of 1e308 writes a 309-digit number (or overflows).
+        let big = Template::parse("CURR {value*1e308:.4}", Arity::OneValue).unwrap();
+        assert!(big.check_lossless(0.5).is_err());
+        let ma = Template::parse("I {value*1000:.1}", Arity::OneValue).unwrap();
+        assert_eq!(ma.sent_value(0.25).unwrap(), Some(0.25));
+        assert!((ma.resolution(0.25) - 1e-4).abs() < 1e-15);
+        let e = Template::parse("VOLT {value:E3}", Arity::OneValue).unwrap();
+        assert!((e.resolution(12.0) - 0.01).abs() < 1e-12);
+        let none = Template::parse("INP ON", Arity::NoValue).unwrap();
+        assert_eq!(none.sent_value(1.0).unwrap(), None);
+        assert!(none.check_lossless(0.3).is_ok());
     }
 
     #[test]

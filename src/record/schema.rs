@@ -125,15 +125,19 @@ pub enum Flag {
     DwellStart,
     /// Last row of a short-circuit dwell.
     DwellEnd,
+    /// An exchange with an instrument was retried (or its link resynchronised) for this row
+    /// or a setting it depends on: the reading is good, the link was not.
+    Retried,
 }
 
 impl Flag {
-    pub const ALL: [Flag; 5] = [
+    pub const ALL: [Flag; 6] = [
         Flag::Overrange,
         Flag::Interlock,
         Flag::Recovery,
         Flag::DwellStart,
         Flag::DwellEnd,
+        Flag::Retried,
     ];
 
     pub fn as_str(self) -> &'static str {
@@ -143,6 +147,7 @@ impl Flag {
             Flag::Recovery => "recovery",
             Flag::DwellStart => "dwell_start",
             Flag::DwellEnd => "dwell_end",
+            Flag::Retried => "retried",
         }
     }
     pub fn parse(s: &str) -> Option<Flag> {

@@ -74,14 +74,7 @@ impl SimBench {
             for f in &opts.faults {
                 if let Fault::Port(k, pf) = f {
                     if *k == kind {
-                        match *pf {
-                            PortFault::GarbageEvery(e) => faults.garbage_every = Some(e),
-                            PortFault::DropEvery(e) => faults.drop_every = Some(e),
-                            PortFault::SlowMs(ms) => faults.slow_ms = ms,
-                            PortFault::CloseAfter(c) => faults.close_after = Some(c),
-                            PortFault::CloseAtSecs(s) => faults.close_at_s = Some(s),
-                            PortFault::ExceptionEvery(_) => {}
-                        }
+                        pf.apply_to(&mut faults);
                     }
                 }
             }

@@ -41,17 +41,10 @@ pub fn bench_toml(design_name: &str, opts: &SimOptions, ports: &[PortInfo]) -> S
             opts.seed
         ))
     );
-    // Slow-reply faults need a longer whole-reply deadline than the default.
-    let slowest = opts
-        .faults
-        .iter()
-        .filter_map(|f| match f {
-            Fault::Port(_, PortFault::SlowMs(ms)) => Some(*ms),
-            _ => None,
-        })
-        .max()
-        .unwrap_or(0);
-    let timeout_ms = 1000 + opts.latency.as_millis() as u64 + slowest;
+    // The deadline covers the instruments' normal latency only: a slow, lagging or late
+    // instrument (an injected fault) must meet the bench's lockstep as a real one would, not
+    // be hidden by a deadline longer than its fault.
+    let timeout_ms = 1000 + opts.latency.as_millis() as u64;
     for p in ports {
         if p.protocol == PortProtocol::Modbus {
             s.push_str(&super::modbus_map::bench_entry(p, timeout_ms));
@@ -85,6 +78,16 @@ pub fn bench_toml(design_name: &str, opts: &SimOptions, ports: &[PortInfo]) -> S
             }
         }
         let _ = writeln!(s, "reply_timeout_ms = {timeout_ms}");
+        let acknowledges = opts
+            .faults
+            .iter()
+            .any(|f| matches!(f, Fault::Port(k, PortFault::Acknowledge) if *k == p.kind));
+        if acknowledges {
+            let _ = writeln!(
+                s,
+                "acknowledge = {{ success = \"^OK$\", error = \"^ERR\" }}"
+            );
+        }
         if p.kind == InstrumentKind::StreamMeter {
             let _ = writeln!(s, "\n[instrument.reading]");
             let _ = writeln!(s, "style = \"stream\"");

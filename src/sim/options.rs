@@ -63,9 +63,22 @@ pub enum PortFault {
     SlowMs(u64),
     CloseAfter(u32),
     CloseAtSecs(f64),
+    /// Every setting command is answered: `OK`, or `ERR <code>,"<text>"` when refused.
+    Acknowledge,
+    /// The Nth setting command that carries a value is refused (error -222, not applied).
+    RefuseNth(u32),
+    /// Settings take effect this many milliseconds after they arrive, in order; `*OPC?`
+    /// answers once they have.
+    LagMs(u64),
+    /// Every Nth reply is sent [`LATE_MS`] late (beyond the written bench file's deadline).
+    LateEvery(u32),
     /// Every Nth request of a Modbus device is answered with an exception (0x04).
     ExceptionEvery(u32),
 }
+
+/// How late a `late=N` reply is (the bench file `sim --write-bench` writes waits 1 s plus
+/// the latency).
+pub const LATE_MS: u64 = 1500;
 
 impl Fault {
     /// Parse a fault spec. Unit faults: `sense=0.56`, `diodes=+1`, `diodes=-1`, `theta_sa=12`,
@@ -74,6 +87,9 @@ impl Fault {
     /// `dmm:garbage=5` (a garbage line before every 5th reply), `dmm:drop=3` (every 3rd reply
     /// lost), `eload:slow=800` (every reply 800 ms late), `psu:close-after=20` (port closes
     /// after 20 commands; streaming meter: lines), `thermo:close-at=5` (closes 5 s after start),
+    /// `eload:ack=on` (settings answered `OK` / `ERR`), `eload:refuse=4` (the 4th setting with a
+    /// value refused), `eload:lag=300` (settings applied 300 ms late, in order), `dmm:late=3`
+    /// (every 3rd reply 1.5 s late).
     /// `eload:exception=4` (a Modbus device answers every 4th request with an exception).
     pub fn parse(spec: &str) -> Result<Fault, String> {
         let Some((inst, rest)) = spec.split_once(':') else {
@@ -102,6 +118,13 @@ impl Fault {
             "drop" => PortFault::DropEvery(count(value)?),
             "slow" => PortFault::SlowMs(count(value)? as u64),
             "close-after" => PortFault::CloseAfter(count(value)?),
+            "ack" => match value.trim() {
+                "on" | "1" => PortFault::Acknowledge,
+                v => return Err(format!("fault '{spec}': '{v}' is not on")),
+            },
+            "refuse" => PortFault::RefuseNth(count(value)?),
+            "lag" => PortFault::LagMs(count(value)? as u64),
+            "late" => PortFault::LateEvery(count(value)?),
             "exception" => PortFault::ExceptionEvery(count(value)?),
             "close-at" => {
                 let s: f64 = value
@@ -116,11 +139,30 @@ impl Fault {
             other => {
                 return Err(format!(
                     "fault '{spec}': unknown port fault '{other}' \
-                     (garbage, drop, slow, close-after, close-at, exception)"
+                     (garbage, drop, slow, close-after, close-at, ack, refuse, lag, late, exception)"
                 ))
             }
         };
         Ok(Fault::Port(kind, f))
+    }
+}
+
+impl PortFault {
+    /// Add this fault to an instrument's fault set.
+    pub fn apply_to(self, f: &mut super::instruments::PortFaults) {
+        match self {
+            PortFault::GarbageEvery(e) => f.garbage_every = Some(e),
+            PortFault::DropEvery(e) => f.drop_every = Some(e),
+            PortFault::SlowMs(ms) => f.slow_ms = ms,
+            PortFault::CloseAfter(c) => f.close_after = Some(c),
+            PortFault::CloseAtSecs(s) => f.close_at_s = Some(s),
+            PortFault::Acknowledge => f.acknowledge = true,
+            PortFault::RefuseNth(n) => f.refuse_nth = Some(n),
+            PortFault::LagMs(ms) => f.lag_ms = ms,
+            PortFault::LateEvery(n) => f.late_every = Some(n),
+            // Answered by the Modbus devices themselves (`sim::modbus`), not the text ports.
+            PortFault::ExceptionEvery(_) => {}
+        }
     }
 }
 

@@ -106,16 +106,96 @@ struct Outcome {
     close: bool,
 }
 
+/// A command that changes a setting (not a query, not an IEEE 488.2 common command).
+fn is_setting(cmd: &str) -> bool {
+    !cmd.ends_with('?') && !cmd.starts_with('*')
+}
+
+/// Apply the lagging settings whose moment has come, in order.
+fn apply_due(sh: &Shared) {
+    let now = Instant::now();
+    let mut ep = lock(&sh.endpoint);
+    if ep.faults.pending.front().is_none_or(|(t, _)| *t > now) {
+        return;
+    }
+    let snap = lock(&sh.world).sync();
+    let ep = &mut *ep;
+    while let Some((t, cmd)) = ep.faults.pending.front().cloned() {
+        if t > now {
+            break;
+        }
+        ep.faults.pending.pop_front();
+        let mut w = lock(&sh.world);
+        let _ = respond(&mut ep.state, &cmd, &mut w.controls, &snap, &mut ep.noise);
+    }
+}
+
 fn handle_line(sh: &Shared, line: &str) -> Outcome {
+    apply_due(sh);
     let snap = lock(&sh.world).sync();
     let mut ep = lock(&sh.endpoint);
     let ep = &mut *ep;
-    let replies = {
+    let now = Instant::now();
+    let lag = Duration::from_millis(ep.faults.faults.lag_ms);
+    let ack = ep.faults.faults.acknowledge;
+    let mut replies = Vec::new();
+    let mut extra = Duration::ZERO;
+    for cmd in line.split(';').map(str::trim).filter(|c| !c.is_empty()) {
+        if is_setting(cmd) {
+            let has_value = cmd.split_once(char::is_whitespace).is_some();
+            if has_value && ep.faults.refuse_setting() {
+                if ack {
+                    replies.push("ERR -222,\"Data out of range\"".to_string());
+                } else {
+                    ep.state.error(-222, "Data out of range");
+                }
+                continue;
+            }
+            if !lag.is_zero() {
+                ep.faults.pending.push_back((now + lag, cmd.to_string()));
+                if ack {
+                    replies.push("OK".to_string());
+                }
+                continue;
+            }
+            let before = ep.state.errors().len();
+            {
+                let mut w = lock(&sh.world);
+                let _ = respond(&mut ep.state, cmd, &mut w.controls, &snap, &mut ep.noise);
+            }
+            if ack {
+                let refused = if ep.state.errors().len() > before {
+                    ep.state.take_last_error()
+                } else {
+                    None
+                };
+                replies.push(match refused {
+                    Some((code, text)) => format!("ERR {code},\"{text}\""),
+                    None => "OK".to_string(),
+                });
+            }
+            continue;
+        }
+        // IEEE 488.2 *OPC?: answered once every pending operation is complete.
+        if cmd.eq_ignore_ascii_case("*OPC?") {
+            if let Some((t, _)) = ep.faults.pending.back() {
+                extra = extra.max(t.saturating_duration_since(now));
+            }
+        }
         let mut w = lock(&sh.world);
-        respond(&mut ep.state, line, &mut w.controls, &snap, &mut ep.noise)
-    };
+        replies.extend(respond(
+            &mut ep.state,
+            cmd,
+            &mut w.controls,
+            &snap,
+            &mut ep.noise,
+        ));
+    }
     let mut lines = Vec::new();
     for r in replies {
+        if ep.faults.reply_late() {
+            extra = extra.max(Duration::from_millis(super::options::LATE_MS));
+        }
         match ep.faults.next_reply() {
             Fate::Send => lines.push(r),
             Fate::Drop => {}
@@ -128,7 +208,7 @@ fn handle_line(sh: &Shared, line: &str) -> Outcome {
     let close = ep.faults.count_command();
     Outcome {
         lines,
-        delay: ep.latency + Duration::from_millis(ep.faults.faults.slow_ms),
+        delay: ep.latency + Duration::from_millis(ep.faults.faults.slow_ms) + extra,
         close,
     }
 }
@@ -253,6 +333,7 @@ fn pause(sh: &Shared, d: Duration) -> bool {
         if now >= end {
             return true;
         }
+        apply_due(sh);
         std::thread::sleep((end - now).min(POLL));
     }
 }
@@ -266,6 +347,7 @@ fn session<P: Port>(port: &mut P, sh: &Shared, reconnects: bool) {
     let mut peer = false;
     let mut next_stream = Instant::now();
     while !sh.must_end() {
+        apply_due(sh);
         match port.read_some(&mut buf) {
             Got::NoPeer => {
                 if !reconnects {

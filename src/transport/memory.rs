@@ -34,6 +34,8 @@ impl MemoryTransport {
     }
 }
 
+impl super::Transport for MemoryTransport {}
+
 impl AsyncWrite for MemoryTransport {
     fn poll_write(
         self: Pin<&mut Self>,

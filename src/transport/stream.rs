@@ -7,9 +7,35 @@ use std::sync::Arc;
 use tokio::io::{AsyncRead, AsyncWrite};
 
 /// Anything we can read bytes from and write bytes to, as one owned value.
-pub trait Transport: AsyncRead + AsyncWrite + Unpin + Send + 'static {}
+pub trait Transport: AsyncRead + AsyncWrite + Unpin + Send + 'static {
+    /// The operating system's descriptor of the link (serial port, socket), when it has one:
+    /// the guardian process is handed a duplicate of it.
+    fn raw_fd(&self) -> Option<i32> {
+        None
+    }
+}
 
-impl<T: AsyncRead + AsyncWrite + Unpin + Send + 'static> Transport for T {}
+#[cfg(unix)]
+impl Transport for tokio::net::TcpStream {
+    fn raw_fd(&self) -> Option<i32> {
+        Some(std::os::fd::AsRawFd::as_raw_fd(self))
+    }
+}
+
+#[cfg(not(unix))]
+impl Transport for tokio::net::TcpStream {}
+
+#[cfg(unix)]
+impl Transport for tokio_serial::SerialStream {
+    fn raw_fd(&self) -> Option<i32> {
+        Some(std::os::fd::AsRawFd::as_raw_fd(self))
+    }
+}
+
+#[cfg(not(unix))]
+impl Transport for tokio_serial::SerialStream {}
+
+impl Transport for tokio::io::DuplexStream {}
 
 /// A transport behind a box, as the bench holds it.
 pub type BoxTransport = Box<dyn Transport>;

@@ -214,6 +214,9 @@ pub fn classify_open(e: &io::Error) -> OpenError {
     }
 }
 
+// No descriptor for the guardian: a USB-TMC message must go through the link's own writer.
+impl super::Transport for UsbTmcLink {}
+
 /// Open a USB-TMC node for reading and writing.
 pub fn open_usbtmc(path: &str) -> Result<BoxTransport, OpenError> {
     let f = File::options()

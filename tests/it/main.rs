@@ -8,6 +8,7 @@ mod cli;
 mod design;
 mod e2e;
 mod link;
+mod lockstep;
 mod modbus;
 mod report;
 mod runner;

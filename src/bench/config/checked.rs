@@ -4,8 +4,9 @@
 
 use super::keys::CommandKey;
 use crate::measure::Role;
-use crate::protocol::{ReplyParser, Template};
+use crate::protocol::{ExpectedUnit, ReplyParser, Template};
 use crate::transport::LinkConfig;
+use regex::Regex;
 use serde::Deserialize;
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -52,10 +53,72 @@ impl CommandSet {
     }
 }
 
+/// Replies to commands that answer (`ACK` / `NAK` style): every setting, init and safe-state
+/// command is answered by one line matching `success` or `error`.
+#[derive(Debug, Clone)]
+pub struct Acknowledge {
+    pub success: Regex,
+    pub error: Regex,
+}
+
+/// The query that says the settings sent so far are applied, and the reply that means so
+/// (SCPI `*OPC?` -> `1`, IEEE 488.2 section 10.19).
+#[derive(Debug, Clone)]
+pub struct Confirm {
+    pub query: String,
+    pub expect: Regex,
+}
+
+/// How a setting is read back after it is confirmed.
+#[derive(Debug, Clone)]
+pub enum Readback {
+    /// A number compared with the value sent, within the template's resolution (`CURR?`; or
+    /// a status line such as `MODE=CC SET=0.5000 INP=1` with a pattern capturing `value`).
+    Value { query: String, reply: ReplyParser },
+    /// A reply that must match `expect` (`INP?` -> `^1$`).
+    Text { query: String, expect: Regex },
+}
+
+impl Readback {
+    pub fn query(&self) -> &str {
+        match self {
+            Readback::Value { query, .. } | Readback::Text { query, .. } => query,
+        }
+    }
+}
+
+/// The instrument's error queue, read after settings (SCPI `SYST:ERR?`): a reply not matching
+/// `none` is the instrument refusing a command.
+#[derive(Debug, Clone)]
+pub struct ErrorQuery {
+    pub query: String,
+    pub none: Regex,
+}
+
+/// Everything that makes a setting count as applied, per instrument.
+#[derive(Debug, Clone, Default)]
+pub struct Lockstep {
+    pub acknowledge: Option<Acknowledge>,
+    pub confirm: Option<Confirm>,
+    pub readback: BTreeMap<CommandKey, Readback>,
+    pub error_query: Option<ErrorQuery>,
+}
+
+/// Instrument-side limits: sequences sent before a stressful step (short circuit, knee
+/// search) and after it, so the instrument protects the bench on its own.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Limits {
+    pub arm: Vec<String>,
+    pub disarm: Vec<String>,
+}
+
 /// One instrument, checked.
 #[derive(Debug, Clone)]
 pub struct InstrumentConfig {
     pub name: String,
+    /// 1-based line and column of its `[[instrument]]` table in the bench file (for messages
+    /// of checks made later, against a plan).
+    pub place: Option<(usize, usize)>,
     pub roles: Vec<Role>,
     pub preset: Option<String>,
     pub link: LinkConfig,
@@ -66,10 +129,12 @@ pub struct InstrumentConfig {
     pub retries: u32,
     pub init: Vec<String>,
     pub identity_query: Option<String>,
-    /// Sent after setting commands; its reply means the instrument has applied them (SCPI
-    /// `*OPC?`, IEEE 488.2 section 10.19). `None`: settings are not confirmed.
-    pub confirm_query: Option<String>,
+    /// Acknowledgements, confirmation, readback and error queue of settings.
+    pub lockstep: Lockstep,
     pub safe_state: Vec<String>,
+    pub limits: Limits,
+    /// Unit texts configured per measuring role (instead of the role's SI unit).
+    pub units: BTreeMap<Role, String>,
     pub traffic_log: Option<PathBuf>,
     pub commands: CommandSet,
     pub reply: ReplyParser,
@@ -86,6 +151,15 @@ impl InstrumentConfig {
             .copied()
             .filter(|r| r.quantity().is_some())
     }
+
+    /// The unit a reading for `role` must carry.
+    pub fn expected_unit(&self, role: Role) -> ExpectedUnit {
+        match (self.units.get(&role), role.quantity()) {
+            (Some(t), _) => ExpectedUnit::Text(t.clone()),
+            (None, Some(q)) => ExpectedUnit::Of(q),
+            (None, None) => ExpectedUnit::Any,
+        }
+    }
 }
 
 /// A checked bench file.
@@ -99,6 +173,20 @@ pub struct BenchConfig {
 }
 
 impl BenchConfig {
+    /// A configuration error about one instrument, at its table in the bench file.
+    pub fn error_at(
+        &self,
+        inst: &InstrumentConfig,
+        message: impl std::fmt::Display,
+    ) -> crate::config::Located {
+        crate::config::Located {
+            file: self.label.clone(),
+            line: inst.place.map(|p| p.0),
+            column: inst.place.map(|p| p.1),
+            message: format!("instrument '{}': {message}", inst.name),
+        }
+    }
+
     /// The instrument holding `role`, if any.
     pub fn instrument_for(&self, role: Role) -> Option<&InstrumentConfig> {
         self.instruments.iter().find(|i| i.roles.contains(&role))

@@ -2,58 +2,27 @@
 //! [`check_instrument`] in a fixed order (the first broken rule is the one reported). Each rule
 //! turns raw values into checked ones or says, at a file:line:column, what to fix. Pure.
 
-use super::checked::{CommandSet, InstrumentConfig, ReadingStyle, StreamPick};
+use super::checked::{CommandSet, InstrumentConfig, Limits, Lockstep, ReadingStyle, StreamPick};
+use super::context::{Checked, Ctx, FileCtx};
 use super::keys::{CommandKey, Need, ROLE_NEEDS, SAFE_STATE_KEYS};
+use super::lockstep_checks::{
+    check_acknowledge, check_confirm, check_error_query, check_readback, check_sequence,
+    check_units,
+};
 use super::presets::{preset, Preset, PRESET_NAMES};
 use super::raw::{
     RawCommands, RawInstrument, RawReading, RawReply, RawSerial, RawTcp, ReadStyleName,
 };
-use crate::bench::BenchError;
-use crate::config::at_span;
 use crate::measure::Role;
 use crate::protocol::{Arity, PatternError, ReplyParser, Template};
 use crate::transport::{
     DataBits, FlowControl, LinkConfig, Parity, SerialSettings, StopBits, TcpSettings,
 };
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, BTreeSet};
 use std::num::{NonZeroU16, NonZeroU32};
 use std::ops::Range;
 use std::time::Duration;
 use toml::Spanned;
-
-/// The bench file being checked: where messages point.
-#[derive(Clone, Copy)]
-pub(super) struct FileCtx<'a> {
-    pub file: &'a str,
-    pub src: &'a str,
-}
-
-impl FileCtx<'_> {
-    /// A configuration error at a span, or at the start of the file when the place is unknown.
-    pub fn at(&self, span: Option<Range<usize>>, message: impl Into<String>) -> BenchError {
-        BenchError::Config(at_span(
-            self.file,
-            self.src,
-            Some(span.unwrap_or(0..0)),
-            message,
-        ))
-    }
-}
-
-/// One instrument being checked: messages start with its name.
-struct Ctx<'a> {
-    file: FileCtx<'a>,
-    name: &'a str,
-}
-
-impl Ctx<'_> {
-    fn err(&self, span: Option<Range<usize>>, message: impl std::fmt::Display) -> BenchError {
-        self.file
-            .at(span, format!("instrument '{}': {message}", self.name))
-    }
-}
-
-type Checked<T> = Result<T, BenchError>;
 
 /// Check one `[[instrument]]` table (`span`: the whole table), rule by rule.
 pub(super) fn check_instrument(
@@ -82,7 +51,9 @@ pub(super) fn check_instrument(
     let read_terminator = check_read_terminator(&cx, raw.read_terminator)?;
     let reply_timeout = check_reply_timeout(&cx, raw.reply_timeout_ms)?;
     let retries = check_retries(&cx, raw.retries)?;
-    let templates = check_templates(&cx, raw.commands.unwrap_or_default(), preset.as_ref())?;
+    let commands = raw.commands.unwrap_or_default();
+    let user_keys: BTreeSet<CommandKey> = commands.0.keys().copied().collect();
+    let templates = check_templates(&cx, commands, preset.as_ref())?;
     let (reading, reading_span) = check_reading(&cx, raw.reading, preset.as_ref())?;
     let role_queries = raw.role_queries.unwrap_or_default();
     check_role_query_roles(&cx, &role_queries, &roles)?;
@@ -90,19 +61,31 @@ pub(super) fn check_instrument(
         check_measuring_commands(&cx, &roles, &roles_span, role_queries, &templates, &reading)?;
     check_stream_tags(&cx, &reading, reading_span.clone(), &roles, &roles_span)?;
     check_role_needs(&cx, &roles, &roles_span, &templates)?;
-    let (reply, pattern_span) =
-        check_reply(&cx, raw.reply.unwrap_or_default(), preset.as_ref(), &span)?;
-    check_tags_have_a_capture(&cx, &reading, &reply, pattern_span.unwrap_or(span))?;
+    let mut raw_reply = raw.reply.unwrap_or_default();
+    let units = check_units(&cx, raw_reply.units.take(), &roles, &span)?;
+    let (reply, pattern_span) = check_reply(&cx, raw_reply, preset.as_ref(), &span)?;
+    check_tags_have_a_capture(&cx, &reading, &reply, pattern_span.unwrap_or(span.clone()))?;
     let identity_query = query_or_preset(raw.identity_query, || {
         preset.as_ref().and_then(|p| p.identity_query)
     });
     let confirm_query = query_or_preset(raw.confirm_query, || {
         preset.as_ref().and_then(|p| p.confirm_query)
     });
-    let safe_state = raw
-        .safe_state
+    let lockstep = Lockstep {
+        acknowledge: check_acknowledge(&cx, raw.acknowledge)?,
+        confirm: check_confirm(&cx, confirm_query, raw.confirm_reply, &span)?,
+        readback: check_readback(&cx, raw.readback, preset.as_ref(), &user_keys, &templates)?,
+        error_query: check_error_query(&cx, raw.error_query, raw.no_error, preset.as_ref())?,
+    };
+    let init = check_sequence(&cx, "init", raw.init)?.unwrap_or_default();
+    let safe_state = check_sequence(&cx, "safe_state", raw.safe_state)?
         .unwrap_or_else(|| default_safe_state(&roles, &templates));
+    let limits = Limits {
+        arm: check_sequence(&cx, "arm_limits", raw.arm_limits)?.unwrap_or_default(),
+        disarm: check_sequence(&cx, "disarm_limits", raw.disarm_limits)?.unwrap_or_default(),
+    };
     Ok(InstrumentConfig {
+        place: Some(crate::config::line_col(file.src, span.start)),
         name,
         roles,
         preset: raw.preset.map(Spanned::into_inner),
@@ -112,10 +95,12 @@ pub(super) fn check_instrument(
         reply_timeout,
         command_gap: Duration::from_millis(raw.command_gap_ms.unwrap_or(0)),
         retries,
-        init: raw.init.unwrap_or_default(),
+        init,
         identity_query,
-        confirm_query,
+        lockstep,
         safe_state,
+        limits,
+        units,
         traffic_log: raw.traffic_log,
         commands: CommandSet { templates, measure },
         reply,
@@ -292,6 +277,17 @@ fn check_templates(
     }
     let mut out = BTreeMap::new();
     for (key, s) in texts {
+        if s.get_ref().trim().is_empty() {
+            return Err(cx.err(
+                Some(s.span()),
+                format!(
+                    "command {} is blank: an empty command does nothing, so the instrument would \
+                     never {}; write the instrument's command or leave the key out",
+                    key.name(),
+                    key.info().does
+                ),
+            ));
+        }
         let t = Template::parse(s.get_ref(), key.arity()).map_err(|e| {
             cx.err(
                 Some(s.span()),

@@ -3,7 +3,8 @@
 //! role). [`BenchConfig::load`] reads the file; nothing else here does I/O.
 
 use super::checked::{BenchConfig, InstrumentConfig};
-use super::checks::{check_instrument, FileCtx};
+use super::checks::check_instrument;
+use super::context::FileCtx;
 use super::raw::RawFile;
 use crate::bench::{BenchError, IoCause};
 use crate::measure::Role;

@@ -6,9 +6,11 @@
 
 mod checked;
 mod checks;
+mod context;
 mod keys;
 mod link_text;
 mod load;
+mod lockstep_checks;
 mod modbus_checks;
 mod modbus_map;
 mod modbus_raw;
@@ -24,10 +26,15 @@ mod usbtmc_raw;
 pub use crate::transport::{
     FlowControl, LinkConfig, Parity, SerialSettings, TcpSettings, UsbTmcSettings,
 };
-pub use checked::{BenchConfig, CommandSet, InstrumentConfig, ReadingStyle, StreamPick};
+pub use checked::{
+    Acknowledge, BenchConfig, CommandSet, Confirm, ErrorQuery, InstrumentConfig, Limits, Lockstep,
+    Readback, ReadingStyle, StreamPick,
+};
 pub use keys::{CommandKey, KeyInfo, Need, KEYS, KEY_NAMES, ROLE_NEEDS, SAFE_STATE_KEYS};
 pub use modbus_checks::rtu_silence;
-pub use modbus_map::{Confirm, Fixed, Framing, IdentityBlock, ModbusMap, Payload, RegisterAction};
+pub use modbus_map::{
+    Confirm as ModbusConfirm, Fixed, Framing, IdentityBlock, ModbusMap, Payload, RegisterAction,
+};
 pub use presets::{PRESET_NAMES, TAGGED_STREAM_PATTERN};
 
 /// 1-based line and column (in characters) of a byte offset (shared with every config file).

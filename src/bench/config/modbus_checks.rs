@@ -7,7 +7,7 @@
 
 use super::keys::{CommandKey, KEY_NAMES};
 use super::modbus_map::{
-    Confirm, Fixed, Framing, IdentityBlock, ModbusMap, Payload, RegisterAction,
+    Confirm as ModbusConfirm, Fixed, Framing, IdentityBlock, ModbusMap, Payload, RegisterAction,
 };
 use super::modbus_raw::{ConfirmName, RawIdentity, RawRegister};
 use super::raw::{RawCommands, RawInstrument};
@@ -109,8 +109,8 @@ pub(super) fn check_modbus(
         unit,
         frame_gap,
         confirm: match m.confirm.unwrap_or(ConfirmName::Readback) {
-            ConfirmName::Readback => Confirm::Readback,
-            ConfirmName::WriteResponse => Confirm::WriteResponse,
+            ConfirmName::Readback => ModbusConfirm::Readback,
+            ConfirmName::WriteResponse => ModbusConfirm::WriteResponse,
         },
         identity,
         actions,
@@ -446,7 +446,7 @@ fn check_sequences(
     span: Range<usize>,
 ) -> Checked<()> {
     for (list, lines) in [("init", &raw.init), ("safe_state", &raw.safe_state)] {
-        for line in lines.iter().flatten() {
+        for line in lines.iter().flat_map(|l| l.get_ref().iter()) {
             let ok = map.action_for(line).is_some_and(|a| {
                 matches!(a.payload, Payload::Fixed(_)) && line.trim() == a.key.name()
             });

@@ -1,7 +1,7 @@
 //! Register maps in bench files: what parses into which actions, and where mistakes are
 //! reported (file:line:column).
 
-use super::{BenchConfig, CommandKey, Confirm, Fixed, Framing, LinkConfig, Payload};
+use super::{BenchConfig, CommandKey, Fixed, Framing, LinkConfig, ModbusConfirm, Payload};
 use crate::bench::BenchError;
 use crate::protocol::modbus::{DataType, ObjectKind, WordOrder};
 use std::time::Duration;
@@ -36,7 +36,7 @@ fn a_register_map_becomes_actions_and_command_texts() {
     let m = i.modbus.as_ref().unwrap();
     assert_eq!(
         (m.framing, m.unit, m.confirm),
-        (Framing::Rtu, 3, Confirm::Readback)
+        (Framing::Rtu, 3, ModbusConfirm::Readback)
     );
     // 3.5 characters of 11 bits at 9600 baud: 4.01 ms (Modbus over Serial Line V1.02
     // section 2.5.1.1).

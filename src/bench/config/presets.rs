@@ -19,12 +19,25 @@ pub const PRESET_NAMES: [&str; 5] = [
 /// pattern), which the regex engine runs several times faster than an ambiguous one.
 pub const TAGGED_STREAM_PATTERN: &str = r"^[ \t]*(?P<tag>[A-Za-z]+)[ \t]+(?P<value>[-+]?[0-9]+(?:\.[0-9]*)?(?:[eE][-+]?[0-9]+)?)[ \t]+(?P<unit>[A-Za-z%]+)[ \t]+(?P<status>[A-Za-z]+)[ \t]*$";
 
+/// How a preset reads a setting back: a query whose number is compared with the value set,
+/// or a query and the reply (a pattern) that means the setting holds.
+#[derive(Debug, Clone, Copy)]
+pub(super) enum PresetReadback {
+    Value(&'static str),
+    Text(&'static str, &'static str),
+}
+
 /// What a preset fills in.
 #[derive(Debug, Clone)]
 pub(super) struct Preset {
     pub commands: &'static [(CommandKey, &'static str)],
     pub identity_query: Option<&'static str>,
     pub confirm_query: Option<&'static str>,
+    /// Readbacks of the preset's own setting commands (used only for keys whose command the
+    /// file does not replace).
+    pub readback: &'static [(CommandKey, PresetReadback)],
+    /// The error queue (SCPI `SYST:ERR?`) and the reply pattern meaning "no error".
+    pub error_query: Option<(&'static str, &'static str)>,
     pub reply: ReplySpec,
     /// The instrument streams lines unasked (reading style `stream` by default).
     pub stream: bool,
@@ -57,6 +70,32 @@ const SCPI_SOURCE: &[(CommandKey, &str)] = &[
     (MeasureCurrent, "MEAS:CURR?"),
 ];
 
+/// The reply of `*OPC?` (IEEE 488.2 section 10.19: the ASCII character 1).
+pub const OPC_REPLY: &str = r"^\s*\+?1\s*$";
+
+/// SCPI's error queue: `0,"No error"` (SCPI 1999 vol. 2, SYSTem:ERRor, from memory).
+const SCPI_ERROR_QUERY: (&str, &str) = ("SYST:ERR?", r#"^\s*[+-]?0\s*(,|$)"#);
+
+const ON: &str = r"^\s*(1|ON)\s*$";
+const OFF: &str = r"^\s*(0|OFF)\s*$";
+
+const SCPI_LOAD_READBACK: &[(CommandKey, PresetReadback)] = &[
+    (LoadModeCc, PresetReadback::Text("FUNC?", r"^\s*CURR")),
+    (LoadModeCv, PresetReadback::Text("FUNC?", r"^\s*VOLT")),
+    (LoadModeCr, PresetReadback::Text("FUNC?", r"^\s*RES")),
+    (LoadSetCurrent, PresetReadback::Value("CURR?")),
+    (LoadSetVoltage, PresetReadback::Value("VOLT?")),
+    (LoadSetResistance, PresetReadback::Value("RES?")),
+    (LoadInputOn, PresetReadback::Text("INP?", ON)),
+    (LoadInputOff, PresetReadback::Text("INP?", OFF)),
+];
+
+const SCPI_SOURCE_READBACK: &[(CommandKey, PresetReadback)] = &[
+    (SourceSetVoltage, PresetReadback::Value("VOLT?")),
+    (SourceOutputOn, PresetReadback::Text("OUTP?", ON)),
+    (SourceOutputOff, PresetReadback::Text("OUTP?", OFF)),
+];
+
 const SCPI_THERMOMETER: &[(CommandKey, &str)] = &[(MeasureTemperature, "MEAS:TEMP?")];
 
 /// The preset of this name, `None` for an unknown name.
@@ -65,13 +104,23 @@ pub(super) fn preset(name: &str) -> Option<Preset> {
         commands,
         identity_query: Some("*IDN?"),
         confirm_query,
+        readback: &[],
+        error_query: None,
         reply: ReplySpec::default(),
         stream: false,
     };
     Some(match name {
         "scpi_meter" => scpi(SCPI_METER, None),
-        "scpi_load" => scpi(SCPI_LOAD, Some("*OPC?")),
-        "scpi_source" => scpi(SCPI_SOURCE, Some("*OPC?")),
+        "scpi_load" => Preset {
+            readback: SCPI_LOAD_READBACK,
+            error_query: Some(SCPI_ERROR_QUERY),
+            ..scpi(SCPI_LOAD, Some("*OPC?"))
+        },
+        "scpi_source" => Preset {
+            readback: SCPI_SOURCE_READBACK,
+            error_query: Some(SCPI_ERROR_QUERY),
+            ..scpi(SCPI_SOURCE, Some("*OPC?"))
+        },
         "scpi_thermometer" => scpi(SCPI_THERMOMETER, None),
         "tagged_stream_meter" => Preset {
             stream: true,
@@ -98,6 +147,12 @@ mod tests {
             let p = preset(name).unwrap_or_else(|| panic!("{name}"));
             for (key, text) in p.commands {
                 Template::parse(text, key.arity()).unwrap_or_else(|e| panic!("{name}: {e}"));
+            }
+            for (key, rb) in p.readback {
+                assert!(p.commands.iter().any(|(k, _)| k == key), "{name}: {key:?}");
+                if let PresetReadback::Text(_, pat) = rb {
+                    regex::Regex::new(pat).unwrap_or_else(|e| panic!("{name}: {e}"));
+                }
             }
         }
         assert!(preset("fancy").is_none());

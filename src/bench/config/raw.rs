@@ -40,10 +40,17 @@ pub(super) struct RawInstrument {
     pub reply_timeout_ms: Option<Spanned<u64>>,
     pub command_gap_ms: Option<u64>,
     pub retries: Option<Spanned<u32>>,
-    pub init: Option<Vec<String>>,
+    pub init: Option<Spanned<Vec<String>>>,
     pub identity_query: Option<String>,
     pub confirm_query: Option<String>,
-    pub safe_state: Option<Vec<String>>,
+    pub confirm_reply: Option<Spanned<String>>,
+    pub acknowledge: Option<Spanned<RawAcknowledge>>,
+    pub readback: Option<BTreeMap<CommandKey, Spanned<RawReadback>>>,
+    pub error_query: Option<String>,
+    pub no_error: Option<Spanned<String>>,
+    pub safe_state: Option<Spanned<Vec<String>>>,
+    pub arm_limits: Option<Spanned<Vec<String>>>,
+    pub disarm_limits: Option<Spanned<Vec<String>>>,
     pub traffic_log: Option<PathBuf>,
     pub commands: Option<RawCommands>,
     pub role_queries: Option<BTreeMap<Role, Spanned<String>>>,
@@ -145,9 +152,34 @@ impl<'de> Deserialize<'de> for RawCommands {
     }
 }
 
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct RawAcknowledge {
+    pub success: String,
+    pub error: String,
+}
+
+/// A readback: a query whose number is compared with the value set, or a table with a
+/// pattern (`value` capture) or an expected reply.
+#[derive(Debug, Deserialize)]
+#[serde(untagged)]
+pub(super) enum RawReadback {
+    Query(String),
+    Table(RawReadbackTable),
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct RawReadbackTable {
+    pub query: String,
+    pub pattern: Option<String>,
+    pub expect: Option<String>,
+}
+
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub(super) struct RawReply {
+    pub units: Option<BTreeMap<Role, String>>,
     pub pattern: Option<Spanned<String>>,
     pub scale: Option<Spanned<f64>>,
     pub unit_prefixes: Option<bool>,

@@ -264,3 +264,108 @@ fn an_error_without_a_place_points_at_the_file_start() {
     );
     assert!(e.is_config());
 }
+
+const LOAD_HEAD: &str = r#"
+[[instrument]]
+name = "eload"
+roles = ["load"]
+tcp = { host = "127.0.0.1" }
+"#;
+
+// Regression: a blank load_input_off was accepted and the load stayed on after the run.
+#[test]
+fn blank_commands_are_refused_with_their_place() {
+    let t = format!(
+        "{LOAD_HEAD}[instrument.commands]\nload_set_current = \"CURR {{value:.4}}\"\nload_input_on = \"INP ON\"\nload_input_off = \"  \"\n"
+    );
+    let (line, _, msg) = config_err(&t);
+    assert_eq!(line, 9, "{msg}");
+    assert!(msg.contains("load_input_off is blank"), "{msg}");
+    let t = format!("{LOAD_HEAD}preset = \"scpi_load\"\nsafe_state = [\"INP OFF\", \"\"]\n");
+    let (_, _, msg) = config_err(&t);
+    assert!(msg.contains("safe_state entry 2 is blank"), "{msg}");
+}
+
+// IEEE 488.2 section 10.19: *OPC? answers "1"; any other confirm query must say what its
+// reply is, so no other line can confirm a setting.
+#[test]
+fn confirm_queries_have_an_expected_reply() {
+    let c = parse(&format!("{LOAD_HEAD}preset = \"scpi_load\"\n")).unwrap();
+    let confirm = c.instruments[0].lockstep.confirm.clone().unwrap();
+    assert_eq!(confirm.query, "*OPC?");
+    assert!(confirm.expect.is_match("1"));
+    assert!(confirm.expect.is_match("+1"));
+    assert!(!confirm.expect.is_match("+1.20000E+01"));
+    assert!(!confirm.expect.is_match("10"));
+    let (_, _, msg) = config_err(&format!(
+        "{LOAD_HEAD}preset = \"scpi_load\"\nconfirm_query = \"STAT?\"\n"
+    ));
+    assert!(msg.contains("needs confirm_reply"), "{msg}");
+    let c = parse(&format!(
+        "{LOAD_HEAD}preset = \"scpi_load\"\nconfirm_query = \"STAT?\"\nconfirm_reply = \"^READY$\"\n"
+    ))
+    .unwrap();
+    assert!(c.instruments[0]
+        .lockstep
+        .confirm
+        .as_ref()
+        .unwrap()
+        .expect
+        .is_match("READY"));
+}
+
+#[test]
+fn scpi_presets_read_settings_back_and_check_the_error_queue() {
+    let c = parse(&format!("{LOAD_HEAD}preset = \"scpi_load\"\n")).unwrap();
+    let ls = &c.instruments[0].lockstep;
+    assert_eq!(ls.readback[&CommandKey::LoadSetCurrent].query(), "CURR?");
+    assert_eq!(ls.readback[&CommandKey::LoadInputOff].query(), "INP?");
+    let eq = ls.error_query.as_ref().unwrap();
+    assert_eq!(eq.query, "SYST:ERR?");
+    assert!(eq.none.is_match("+0,\"No error\""));
+    assert!(!eq.none.is_match("-222,\"Data out of range\""));
+    // A command the file replaces loses the preset's readback; the file may give its own.
+    let c = parse(&format!(
+        "{LOAD_HEAD}preset = \"scpi_load\"\n[instrument.commands]\nload_set_current = \"ISET {{value:.3}}\"\n[instrument.readback]\nload_input_on = {{ query = \"STAT?\", expect = \"INP=1\" }}\n"
+    ))
+    .unwrap();
+    let ls = &c.instruments[0].lockstep;
+    assert!(!ls.readback.contains_key(&CommandKey::LoadSetCurrent));
+    assert_eq!(ls.readback[&CommandKey::LoadInputOn].query(), "STAT?");
+    // A switch cannot be compared with a number, a value must not be matched as text.
+    let (_, _, msg) = config_err(&format!(
+        "{LOAD_HEAD}preset = \"scpi_load\"\n[instrument.readback]\nload_input_on = \"INP?\"\n"
+    ));
+    assert!(msg.contains("takes no value"), "{msg}");
+}
+
+#[test]
+fn acknowledging_instruments_and_unit_texts_are_checked() {
+    let c = parse(&format!(
+        "{LOAD_HEAD}preset = \"scpi_load\"\nacknowledge = {{ success = \"^ACK$\", error = \"^NAK\" }}\n"
+    ))
+    .unwrap();
+    let ack = c.instruments[0].lockstep.acknowledge.clone().unwrap();
+    assert!(ack.success.is_match("ACK") && ack.error.is_match("NAK 3"));
+    let (_, _, msg) = config_err(&format!(
+        "{LOAD_HEAD}preset = \"scpi_load\"\nacknowledge = {{ success = \"(\", error = \"^NAK\" }}\n"
+    ));
+    assert!(msg.contains("not a valid regular expression"), "{msg}");
+    let c = parse(&format!(
+        "{}[instrument.reply]\nunits = {{ output_voltmeter = \"VDC\" }}\n",
+        MIN
+    ))
+    .unwrap();
+    assert_eq!(
+        c.instruments[0].expected_unit(Role::OutputVoltmeter),
+        crate::protocol::ExpectedUnit::Text("VDC".into())
+    );
+    let (_, _, msg) = config_err(&format!(
+        "{}[instrument.reply]\nunits = {{ thermometer = \"K\" }}\n",
+        MIN
+    ));
+    assert!(
+        msg.contains("not one of this instrument's measuring roles"),
+        "{msg}"
+    );
+}

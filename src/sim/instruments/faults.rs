@@ -2,6 +2,8 @@
 //! serving code asks before each reply.
 
 use serde::Serialize;
+use std::collections::VecDeque;
+use std::time::Instant;
 
 /// Faults injected on one instrument's port.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Default)]
@@ -16,6 +18,14 @@ pub struct PortFaults {
     pub close_after: Option<u32>,
     /// The port closes this many seconds after the bench starts.
     pub close_at_s: Option<f64>,
+    /// Setting commands are answered `OK` or `ERR <code>,"<text>"`.
+    pub acknowledge: bool,
+    /// The Nth setting command with a value is refused.
+    pub refuse_nth: Option<u32>,
+    /// Settings take effect this many milliseconds after they arrive.
+    pub lag_ms: u64,
+    /// Every Nth reply is sent late.
+    pub late_every: Option<u32>,
 }
 
 /// What happens to one reply under the injected faults.
@@ -35,6 +45,11 @@ pub struct FaultSchedule {
     pub faults: PortFaults,
     replies: u32,
     commands: u32,
+    settings: u32,
+    late: u32,
+    /// Settings received but not yet applied (a lagging instrument), oldest first, with the
+    /// moment each takes effect.
+    pub pending: VecDeque<(Instant, String)>,
 }
 
 impl FaultSchedule {
@@ -43,6 +58,9 @@ impl FaultSchedule {
             faults,
             replies: 0,
             commands: 0,
+            settings: 0,
+            late: 0,
+            pending: VecDeque::new(),
         }
     }
 
@@ -63,6 +81,18 @@ impl FaultSchedule {
         } else {
             Fate::Send
         }
+    }
+
+    /// Count one setting command that carries a value; true when it is the one to refuse.
+    pub fn refuse_setting(&mut self) -> bool {
+        self.settings = self.settings.saturating_add(1);
+        matches!(self.faults.refuse_nth, Some(n) if self.settings == n)
+    }
+
+    /// Count one reply sent; true when it is to be sent late.
+    pub fn reply_late(&mut self) -> bool {
+        self.late = self.late.saturating_add(1);
+        matches!(self.faults.late_every, Some(n) if n > 0 && self.late % n == 0)
     }
 
     /// True when the port must close at `elapsed_s` seconds after start.

@@ -23,10 +23,16 @@ impl InstrumentState {
             errors: Vec::new(),
         }
     }
-    pub(super) fn error(&mut self, code: i32, text: &'static str) {
+    /// Queue an error (at most 16 are kept, as the error queue of a real instrument is short).
+    pub fn error(&mut self, code: i32, text: &'static str) {
         if self.errors.len() < 16 {
             self.errors.push((code, text));
         }
+    }
+    /// Take back the newest error (an acknowledging instrument reports it in its reply
+    /// instead of queueing it).
+    pub fn take_last_error(&mut self) -> Option<(i32, &'static str)> {
+        self.errors.pop()
     }
     /// Pending errors (oldest first).
     pub fn errors(&self) -> &[(i32, &'static str)] {

@@ -118,3 +118,71 @@ fn short_dwell_over_the_interlock_is_refused_before_any_port_opens() {
     let (_, _, c) = rig.sim.state();
     assert!(!c.load.input_on && !c.source.in_use);
 }
+
+// The interlocks are watched between recorded readings too: a soak read every 30 s still
+// stops within about a second of the case passing its limit.
+#[test]
+fn max_temperature_trips_between_the_readings_of_a_slow_soak() {
+    let _g = serial();
+    let fault = Fault::parse("theta_sa=12").unwrap();
+    let rig = Rig::start(LAB, SimOptions::default().seed(204).fault(fault));
+    let plan = "name = \"e2e-hot-slow\"\nsettle = \"50 ms\"\nsamples = 1\n\n[interlocks]\n\
+                max_temperature = \"40 degC\"\n\n[[step]]\nkind = \"soak\"\n\
+                load = \"max_load\"\nduration = \"60 s\"\ninterval = \"30 s\"\n";
+    let t0 = std::time::Instant::now();
+    let out = rig.run("E2E-0104", plan);
+    assert!(
+        t0.elapsed() < std::time::Duration::from_secs(29),
+        "{:?}",
+        t0.elapsed()
+    );
+    assert_eq!(out.status.code(), Some(3), "{}", show(&out));
+    let rec = read_run(&rig.run_dir("E2E-0104")).unwrap();
+    let reason = rec.info.reason.clone().unwrap_or_default();
+    assert!(reason.contains("max_temperature"), "{reason}");
+    assert!(reason.contains("between readings"), "{reason}");
+    // Only the soak's first reading was due before the trip.
+    assert_eq!(rec.rows.len(), 1, "{:?}", rec.rows);
+    let (_, _, c) = rig.sim.state();
+    assert!(!c.load.input_on && !c.source.output_on);
+}
+
+// Regression: with every third source reply lost, the interlock cancelling a reading in
+// flight lost the port's reader, and the safe state read "connection closed" although the
+// source had switched off.
+#[test]
+fn a_reading_cancelled_by_an_interlock_keeps_the_link_for_the_safe_state() {
+    let _g = serial();
+    let fault = Fault::parse("psu:drop=3").unwrap();
+    let rig = Rig::start(LAB, SimOptions::default().seed(205).fault(fault));
+    // Retries enough for a link that loses one reply in three (each setting's lockstep takes
+    // three replies).
+    let text = std::fs::read_to_string(&rig.bench).unwrap();
+    std::fs::write(
+        &rig.bench,
+        text.replace("reply_timeout_ms", "retries = 4\nreply_timeout_ms"),
+    )
+    .unwrap();
+    let plan =
+        "name = \"e2e-drop\"\nsource = \"100 % of vin\"\nsettle = \"50 ms\"\nsamples = 3\n\n\
+                [interlocks]\nmax_short_dwell = \"600 ms\"\n\n[[step]]\nkind = \"short_circuit\"\n\
+                dwell = \"500 ms\"\ninterval = \"100 ms\"\nrecovery_time = \"200 ms\"\n";
+    let out = rig.run("E2E-0105", plan);
+    let rec = read_run(&rig.run_dir("E2E-0105")).unwrap();
+    let reason = rec.info.reason.clone().unwrap_or_default();
+    // The dwell limit cut a reading short (a lost reply's deadline is longer than the dwell).
+    assert!(
+        reason.contains("max_short_dwell"),
+        "{reason}\n{}",
+        show(&out)
+    );
+    assert!(
+        !reason.contains("safe state incomplete"),
+        "{reason}\n{}",
+        show(&out)
+    );
+    assert!(!reason.contains("connection closed"), "{reason}");
+    let (_, _, c) = rig.sim.state();
+    assert!(!c.load.input_on, "load input left on");
+    assert!(!c.source.output_on, "source output left on");
+}

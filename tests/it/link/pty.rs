@@ -1,9 +1,7 @@
 //! The bench over real pseudo-terminals (the serial transport end to end): query meters,
 //! a streaming meter with partial lines and garbage, stale lines, missing and busy ports.
 
-use crate::support::link::{
-    pty_pair, pty_responder, pty_streamer, reply, runtime, tcp_responder, Act,
-};
+use crate::support::link::{pty_pair, pty_responder, pty_streamer, reply, runtime, Act};
 use crate::support::lock::serial;
 use regulus::bench::{Bench, BenchConfig, BenchError};
 use regulus::control::BenchControl;
@@ -160,12 +158,8 @@ fn stream_lines_from_before_a_setting_change_are_not_used() {
         false,
         Some("Regulus Simulated Bench,SDMM-1,SN0010,1.0".to_string()),
     );
-    let load = tcp_responder(|line| match line {
-        "*IDN?" => reply("Regulus Simulated Bench,SL-1,SN0011,1.0"),
-        // IEEE 488.2 *OPC? answers 1 once pending operations are complete.
-        "*OPC?" => reply("1"),
-        _ => Act::Silent,
-    });
+    // IEEE 488.2 *OPC? answers 1 once pending operations are complete.
+    let load = super::peer::scpi_peer("Regulus Simulated Bench,SL-1,SN0011,1.0", |_| None);
     let meter_text = serial_instrument(
         "strm",
         "\"output_voltmeter\"",

@@ -1,6 +1,7 @@
 //! The bench over loopback TCP against test-side responders: reply formats, identity,
 //! concurrent reads, garbage, timeouts, closed and refused connections, safe state.
 
+use super::peer::{scpi_peer, settings};
 use crate::support::link::{reply, runtime, tcp_responder, Act};
 use crate::support::lock::serial;
 use regulus::bench::{Bench, BenchConfig, BenchError};
@@ -45,7 +46,7 @@ fn reply_forms_of_scpi_instruments_are_read() {
         ("12", Reading::Value(12.0)),              // NR1
         ("-0.0125", Reading::Value(-0.0125)),      // NR2
         ("5.832E-1", Reading::Value(0.5832)),      // NR3, no exponent sign
-        ("583.2 mA", Reading::Value(0.5832)),      // unit with SI prefix
+        ("583.2 mV", Reading::Value(0.5832)),      // unit with SI prefix
         ("583.2m", Reading::Value(0.5832)),        // engineering suffix
         ("9.9E37", Reading::Overrange),            // SCPI overrange
         ("+9.90000000E+37", Reading::Overrange),   // SCPI overrange, long NR3
@@ -333,18 +334,13 @@ fn a_refused_connection_says_what_to_check() {
 #[test]
 fn safe_state_reaches_every_instrument_when_one_fails() {
     let _g = serial();
-    // Both answer *OPC? as IEEE 488.2 instruments do (the presets confirm settings with it).
-    let load = tcp_responder(|line| match line {
-        "*IDN?" => reply("Regulus Simulated Bench,LOAD-2,SN0002,1.0"),
-        "*OPC?" => reply("1"),
-        "MEAS:CURR?" => Act::Close,
-        _ => Act::Silent,
+    // Both answer *OPC?, their error queue and readbacks as SCPI instruments do (the presets
+    // confirm settings with them).
+    let load = scpi_peer("Regulus Simulated Bench,LOAD-2,SN0002,1.0", |line| {
+        (line == "MEAS:CURR?").then_some(Act::Close)
     });
-    let source = tcp_responder(|line| match line {
-        "*IDN?" => reply("Regulus Simulated Bench,PSU-3,SN0003,1.0"),
-        "*OPC?" => reply("1"),
-        "MEAS:VOLT?" => reply("+1.80000E+01"),
-        _ => Act::Silent,
+    let source = scpi_peer("Regulus Simulated Bench,PSU-3,SN0003,1.0", |line| {
+        (line == "MEAS:VOLT?").then(|| reply("+1.80000E+01"))
     });
     let text = format!(
         "{}{}",
@@ -389,28 +385,39 @@ fn safe_state_reaches_every_instrument_when_one_fails() {
         std::thread::sleep(Duration::from_millis(10));
         got = source.received();
     }
-    // Each setting is confirmed with *OPC? before the next; the safe state is sent as is.
+    // Each setting is confirmed with *OPC?, the error queue read and the setting read back
+    // before the next; the safe state is sent as is.
     assert_eq!(
         got,
         vec![
             "*IDN?",
             "VOLT 18.0000",
             "*OPC?",
+            "SYST:ERR?",
+            "VOLT?",
             "OUTP ON",
             "*OPC?",
+            "SYST:ERR?",
+            "OUTP?",
             "MEAS:VOLT?",
             "OUTP OFF"
         ]
     );
     assert_eq!(
-        &load.received()[..6],
+        &load.received()[..12],
         &[
             "*IDN?",
             "FUNC CURR",
             "CURR 0.2500",
             "*OPC?",
+            "SYST:ERR?",
+            "FUNC?",
+            "CURR?",
             "INP ON",
-            "*OPC?"
+            "*OPC?",
+            "SYST:ERR?",
+            "INP?",
+            "MEAS:CURR?"
         ]
     );
 }
@@ -421,10 +428,7 @@ fn safe_state_reaches_every_instrument_when_one_fails() {
 #[test]
 fn load_modes_render_their_commands() {
     let _g = serial();
-    let load = tcp_responder(|line| match line {
-        "*IDN?" => reply("Regulus Simulated Bench,LOAD-2,SN0002,1.0"),
-        _ => Act::Silent,
-    });
+    let load = scpi_peer("Regulus Simulated Bench,LOAD-2,SN0002,1.0", |_| None);
     let custom = tcp_responder(|_| Act::Silent);
     let text = format!(
         "{}[[instrument]]\nname = \"cc-only\"\nroles = [\"load\"]\ntcp = {{ host = \"127.0.0.1\", port = {} }}\n[instrument.commands]\nload_set_current = \"ISET {{value*1000:d}}\"\nload_input_on = \"ON\"\nload_input_off = \"OFF\"\n",
@@ -433,13 +437,12 @@ fn load_modes_render_their_commands() {
     );
     // Two loads on one bench is refused (one instrument per role): check each on its own.
     assert!(BenchConfig::parse(&text, "x").is_err());
-    // This test checks the rendered commands only: no confirm query.
     let first = config(&instrument(
         "eload",
         "\"load\"",
         "scpi_load",
         &load.address,
-        "confirm_query = \"\"",
+        "",
     ));
     let second = config(&text[text.find("[[instrument]]\nname = \"cc-only\"").unwrap()..]);
     let rt = runtime();
@@ -462,10 +465,11 @@ fn load_modes_render_their_commands() {
         assert!(c.safe_state().await.is_empty());
     });
     std::thread::sleep(Duration::from_millis(50));
+    // The settings in the template's format (the confirmations and readbacks between them are
+    // queries).
     assert_eq!(
-        load.received(),
+        settings(&load.received()),
         vec![
-            "*IDN?",
             "FUNC VOLT",
             "VOLT 11.5000",
             "FUNC RES",
@@ -484,16 +488,13 @@ fn load_modes_render_their_commands() {
 #[test]
 fn command_gap_spaces_commands() {
     let _g = serial();
-    let load = tcp_responder(|line| match line {
-        "*IDN?" => reply("Regulus Simulated Bench,LOAD-2,SN0002,1.0"),
-        _ => Act::Silent,
-    });
+    let load = scpi_peer("Regulus Simulated Bench,LOAD-2,SN0002,1.0", |_| None);
     let cfg = config(&instrument(
         "eload",
         "\"load\"",
         "scpi_load",
         &load.address,
-        "command_gap_ms = 40\nconfirm_query = \"\"",
+        "command_gap_ms = 40",
     ));
     let elapsed = runtime().block_on(async {
         let mut b = Bench::open(&cfg).await.unwrap();

@@ -157,3 +157,42 @@ fn sim_runs_until_interrupted_then_closes_its_ports() {
         "port still open"
     );
 }
+
+// Regression: `sim --write-bench` replaced an existing bench file without a word.
+#[test]
+fn write_bench_keeps_an_existing_file_unless_told() {
+    let _g = serial();
+    let dir = tempfile::tempdir().unwrap();
+    let bench = dir.path().join("bench.toml");
+    std::fs::write(&bench, "# my real bench\n").unwrap();
+    let design = sample("teaching-lab-0-20v.toml");
+    let out = regulus()
+        .args(["sim", "--design", &design, "--run-for", "0"])
+        .arg("--write-bench")
+        .arg(&bench)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--overwrite-bench"));
+    assert_eq!(
+        std::fs::read_to_string(&bench).unwrap(),
+        "# my real bench\n"
+    );
+    let out = regulus()
+        .args([
+            "sim",
+            "--design",
+            &design,
+            "--run-for",
+            "0",
+            "--overwrite-bench",
+        ])
+        .arg("--write-bench")
+        .arg(&bench)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0));
+    assert!(std::fs::read_to_string(&bench)
+        .unwrap()
+        .contains("[[instrument]]"));
+}
