@@ -6,11 +6,14 @@
 
 pub mod analysis;
 pub mod bench;
+pub mod capability;
 pub mod cli;
 pub mod compare;
 pub mod config;
 pub mod control;
 pub mod design;
+pub mod floor;
+pub mod index;
 pub mod measure;
 pub mod pipeline;
 pub mod plan;
@@ -22,6 +25,7 @@ pub mod rng;
 pub mod runner;
 pub mod sim;
 pub mod spice;
+pub mod station;
 #[cfg(any(test, feature = "testkit"))]
 pub mod testkit;
 pub mod transport;

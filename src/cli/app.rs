@@ -1,7 +1,7 @@
 //! The command line's shape: one clap derive `Cli` with one `Subcommand` enum, and
 //! [`dispatch`], which runs the chosen command and returns its exit code.
 
-use super::{compare, demo, design, history, probe, report, run, sim, size};
+use super::{batch, compare, demo, design, history, index, probe, report, run, sim, size};
 use clap::{Parser, Subcommand};
 
 #[derive(Debug, Parser)]
@@ -40,6 +40,10 @@ pub enum Command {
     History(history::Args),
     /// Re-evaluate records against a design (for instance a new revision).
     Compare(compare::Args),
+    /// Test units one after another at a station: scan a serial, test, certificate, tally.
+    Batch(batch::Args),
+    /// Show or rebuild the records folder's index (the folders stay the source of truth).
+    Index(index::Args),
 }
 
 /// Run the chosen command and return its exit code.
@@ -54,5 +58,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<u8> {
         Command::Report(a) => report::run(a),
         Command::History(a) => history::run(a),
         Command::Compare(a) => compare::run(a),
+        Command::Batch(a) => batch::run(a),
+        Command::Index(a) => index::run(a),
     }
 }

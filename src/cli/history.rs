@@ -50,7 +50,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             args.records.display()
         )));
     }
-    let h = crate::report::history(&args.records, &args.unit, &aopts)?;
+    let h = super::index::history(&args.records, &args.unit, &aopts)?;
     let mut out = std::io::stdout().lock();
     if args.json {
         crate::report::write_history_json(&mut out, &h)?;

@@ -4,11 +4,13 @@
 //! This module only declares and re-exports.
 
 mod app;
+pub mod batch;
 pub mod compare;
 pub mod demo;
 pub mod design;
 mod exit;
 pub mod history;
+pub mod index;
 pub mod options;
 pub mod present;
 pub mod probe;
@@ -16,6 +18,7 @@ pub mod report;
 pub mod run;
 pub mod sim;
 pub mod size;
+pub mod station;
 
 pub use app::{dispatch, Cli, Command};
 pub use exit::{

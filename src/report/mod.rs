@@ -6,9 +6,11 @@
 //! [`history`].
 //! This file only declares and re-exports.
 
+pub mod certificate;
 pub mod font;
 mod history;
 pub mod html;
+pub mod pdf;
 pub mod plots;
 mod summary;
 

@@ -7,6 +7,7 @@
 mod cli;
 mod design;
 mod e2e;
+mod floor;
 mod link;
 mod report;
 mod runner;

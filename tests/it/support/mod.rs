@@ -3,6 +3,7 @@
 //! declares them.
 
 pub mod e2e;
+pub mod floor;
 pub mod link;
 pub mod lock;
 pub mod report;

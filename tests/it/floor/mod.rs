@@ -1,0 +1,8 @@
+//! The production floor: station files, `regulus run --station`, the batch loop over stdin
+//! against the simulated bench, certificates rendered in headless Chromium and the records
+//! index.
+
+mod batch;
+mod certificate;
+mod index;
+mod station;
