@@ -13,7 +13,7 @@ const LAYERS: &[&[&str]] = &[
     &["analysis", "station"],
     &["plan", "compare"],
     &["floor"],
-    &["runner", "report", "index"],
+    &["runner", "report", "index", "store"],
     &["pipeline", "testkit"],
     &["cli"],
 ];

@@ -26,6 +26,7 @@ pub mod runner;
 pub mod sim;
 pub mod spice;
 pub mod station;
+pub mod store;
 #[cfg(any(test, feature = "testkit"))]
 pub mod testkit;
 pub mod transport;

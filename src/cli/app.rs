@@ -1,7 +1,7 @@
 //! The command line's shape: one clap derive `Cli` with one `Subcommand` enum, and
 //! [`dispatch`], which runs the chosen command and returns its exit code.
 
-use super::{batch, compare, demo, design, history, index, probe, report, run, sim, size};
+use super::{batch, compare, demo, design, history, index, probe, report, run, sim, size, sync};
 use clap::{Parser, Subcommand};
 
 #[derive(Debug, Parser)]
@@ -44,6 +44,8 @@ pub enum Command {
     Batch(batch::Args),
     /// Show or rebuild the records folder's index (the folders stay the source of truth).
     Index(index::Args),
+    /// Upload finished runs to the shared store (PostgreSQL); queues them while it is away.
+    Sync(sync::Args),
 }
 
 /// Run the chosen command and return its exit code.
@@ -60,5 +62,6 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<u8> {
         Command::Compare(a) => compare::run(a),
         Command::Batch(a) => batch::run(a),
         Command::Index(a) => index::run(a),
+        Command::Sync(a) => sync::run(a),
     }
 }

@@ -17,8 +17,14 @@ pub struct Args {
     #[arg(long, value_name = "FILE")]
     pub design: PathBuf,
     /// Record folders.
-    #[arg(required = true, value_name = "RECORD")]
+    #[arg(required_unless_present = "index", value_name = "RECORD")]
     pub records: Vec<PathBuf>,
+    /// Judge the runs of this records folder's index instead (all, or those of --unit).
+    #[arg(long, value_name = "DIR")]
+    pub index: Option<PathBuf>,
+    /// With --index: only this unit's runs.
+    #[arg(long, value_name = "SERIAL", requires = "index")]
+    pub unit: Option<String>,
     /// Outlier limit on |z| across units.
     #[arg(long, default_value_t = compare::DEFAULT_OUTLIER_Z)]
     pub z_limit: f64,
@@ -54,6 +60,22 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let exp = load_expectation(&args.design)?;
     let mut judged = Vec::new();
     let mut units: Vec<(String, KeyValues)> = Vec::new();
+    if let Some(root) = &args.index {
+        for (record, unit, m, outcome, state) in
+            super::index::indexed_metrics(root, args.unit.as_deref(), &aopts)?
+        {
+            let mut c = compare::compare(&m, &exp);
+            if let Some(v) = compare::record_verdict(outcome, Some(state), Some(c.verdict)) {
+                c.verdict = v;
+            }
+            units.push((unit.clone(), KeyValues::from_metrics(&m)));
+            judged.push(Judged {
+                record,
+                unit,
+                comparison: c,
+            });
+        }
+    }
     for r in &args.records {
         let rec = crate::report::load_record(r)
             .with_context(|| format!("reading record {}", r.display()))?;

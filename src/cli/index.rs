@@ -76,3 +76,53 @@ pub fn history(records: &Path, unit: &str, opts: &AnalysisOptions) -> anyhow::Re
     h.plans = runs.into_iter().map(|r| (r.folder, r.plan_name)).collect();
     Ok(h)
 }
+
+/// One indexed run for `regulus compare --index`: its folder, unit, metrics, outcome and
+/// state.
+pub type IndexedMetrics = (
+    String,
+    String,
+    crate::analysis::Metrics,
+    crate::record::Outcome,
+    crate::record::RecordState,
+);
+
+/// The runs of a records folder's index with their metrics (those without metrics, which
+/// have neither a summary nor readable readings, are left out), for `compare --index`.
+/// The index holds metrics analysed with the default settings, so other settings are
+/// refused.
+pub fn indexed_metrics(
+    records: &Path,
+    unit: Option<&str>,
+    opts: &AnalysisOptions,
+) -> anyhow::Result<Vec<IndexedMetrics>> {
+    if *opts != AnalysisOptions::default() {
+        return Err(usage(
+            "--index uses the metrics the index holds, analysed with the default settings: \
+             give record folders instead to analyse with other settings",
+        ));
+    }
+    if !records.is_dir() {
+        return Err(usage(format!(
+            "{}: no such records folder (check --index)",
+            records.display()
+        )));
+    }
+    let mut idx = Index::open(records)?;
+    if let Some(u) = unit {
+        idx.refresh_unit(u)?;
+    }
+    let runs = idx.runs(&RunFilter {
+        unit: unit.map(str::to_string),
+        ..RunFilter::default()
+    })?;
+    Ok(runs
+        .into_iter()
+        .filter_map(|r| {
+            let m = r.metrics()?;
+            let (outcome, state) = r.record_outcome();
+            let label = r.dir(records).display().to_string();
+            Some((label, r.unit, m, outcome, state))
+        })
+        .collect())
+}

@@ -19,6 +19,7 @@ pub mod run;
 pub mod sim;
 pub mod size;
 pub mod station;
+pub mod sync;
 
 pub use app::{dispatch, Cli, Command};
 pub use exit::{

@@ -1,7 +1,8 @@
 //! The index's row type and its error, shared by the folder scan and the database.
 
+use crate::analysis::Metrics;
 use crate::compare::{HistoryEntry, KeyValues, Verdict};
-use crate::record::RecordError;
+use crate::record::{Outcome, RecordError, RecordState};
 use crate::station::FloorResult;
 use std::path::{Path, PathBuf};
 
@@ -62,6 +63,27 @@ impl IndexedRun {
             verdict: self.verdict,
             values: self.values.clone(),
         }
+    }
+
+    /// run.json's outcome and the record's state, as indexed.
+    pub fn record_outcome(&self) -> (Outcome, RecordState) {
+        let outcome = match self.outcome.as_str() {
+            "completed" => Outcome::Completed,
+            "aborted" => Outcome::Aborted,
+            "failed" => Outcome::Failed,
+            _ => Outcome::Running,
+        };
+        let state = match self.state.as_str() {
+            "finished" => RecordState::Finished(outcome),
+            "running" => RecordState::Running,
+            _ => RecordState::Incomplete,
+        };
+        (outcome, state)
+    }
+
+    /// The summary's full metrics, when the run has them.
+    pub fn metrics(&self) -> Option<Metrics> {
+        serde_json::from_str(self.metrics_json.as_deref()?).ok()
     }
 
     /// The record folder under `records`.

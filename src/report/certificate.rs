@@ -5,11 +5,13 @@
 //! a signature line. Rendering is pure (generic writer); [`write_certificate`] reads the
 //! record's snapshots and writes the page. No scripts, no external files.
 
-use super::html::escape;
+use super::html::{banner_html, escape, BANNER_STYLE};
 use super::{ReportError, Summary};
 use crate::quantity::eng;
 use crate::record::{self, RunInfo};
-use crate::station::{read_station_stamp, FloorResult, StationStamp};
+use crate::station::{
+    calibration_dates, design_revision, read_station_stamp, FloorResult, StationStamp,
+};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
@@ -26,28 +28,6 @@ pub struct Certificate<'a> {
     pub station: Option<StationStamp>,
     /// Instrument name -> calibration due date, as the bench file gives them.
     pub calibration: Vec<(String, String)>,
-}
-
-/// Shared by the certificate and the report: the large verdict banner and its colours.
-pub const BANNER_STYLE: &str =
-    ".banner{border:6px solid #111;padding:10px 18px;margin:10px 0 16px;\
-display:flex;justify-content:space-between;align-items:center}\
-.banner .word{font-size:64px;font-weight:900;letter-spacing:6px;line-height:1}\
-.banner .what{font-size:15px;text-align:right}\
-.r-pass{background:#dff0d8}.r-marginal{background:#fcf3cf}.r-fail{background:#f2d7d5}\
-.r-incomplete{background:#e5e5e5}.r-error{background:#e5e5e5}\
-@media print{.banner{-webkit-print-color-adjust:exact;print-color-adjust:exact}}";
-
-/// The verdict banner as an HTML fragment: the word, large, and what it is about.
-pub fn banner_html(result: FloorResult, unit: &str, detail: &str) -> String {
-    format!(
-        "<div class=\"banner r-{}\" id=\"verdict-banner\"><span class=\"word\">{}</span>\
-<span class=\"what\">unit <b>{}</b><br>{}</span></div>",
-        result.as_str(),
-        result.word(),
-        escape(unit),
-        escape(detail)
-    )
 }
 
 const STYLE: &str = "@page{size:A4;margin:14mm}\
@@ -192,35 +172,6 @@ fn record_folder_label(info: &RunInfo) -> String {
     format!("{} {}", info.started_utc, info.plan_name)
 }
 
-/// Calibration due dates from a bench file's text: `calibration_due` of each
-/// `[[instrument]]`, by instrument name.
-pub fn calibration_dates(bench_toml: &str) -> Vec<(String, String)> {
-    let Ok(v) = bench_toml.parse::<toml::Table>() else {
-        return Vec::new();
-    };
-    let Some(list) = v.get("instrument").and_then(|i| i.as_array()) else {
-        return Vec::new();
-    };
-    list.iter()
-        .filter_map(|i| {
-            let name = i.get("name")?.as_str()?.to_string();
-            let due = i.get("calibration_due")?;
-            let text = match due {
-                toml::Value::Datetime(d) => d.to_string(),
-                toml::Value::String(s) => s.clone(),
-                _ => return None,
-            };
-            Some((name, text))
-        })
-        .collect()
-}
-
-/// Design revision from a design file's text (`[design] revision`).
-pub fn design_revision(design_toml: &str) -> Option<String> {
-    let v = design_toml.parse::<toml::Table>().ok()?;
-    Some(v.get("design")?.get("revision")?.as_str()?.to_string())
-}
-
 /// Write `certificate.html` into a record folder from its run.json, snapshots and station
 /// stamp, with the given result and summary.
 pub fn write_certificate(
@@ -255,22 +206,6 @@ pub fn write_certificate(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn calibration_dates_and_revision_come_from_the_snapshots() {
-        let bench = "[[instrument]]\nname = \"dmm\"\nroles = []\ncalibration_due = 2027-06-30\n\
-[[instrument]]\nname = \"eload\"\nroles = []\n";
-        assert_eq!(
-            calibration_dates(bench),
-            vec![("dmm".to_string(), "2027-06-30".to_string())]
-        );
-        assert!(calibration_dates("not toml [").is_empty());
-        assert_eq!(
-            design_revision("[design]\nname = \"x\"\nrevision = \"B\"\n").as_deref(),
-            Some("B")
-        );
-        assert_eq!(design_revision("[design]\nname = \"x\"\n"), None);
-    }
 
     #[test]
     fn the_banner_shows_the_word_and_never_pass_for_incomplete() {

@@ -9,6 +9,7 @@ mod file;
 mod locate;
 mod result;
 mod serial;
+mod snapshot;
 mod stamp;
 mod tally;
 
@@ -16,5 +17,6 @@ pub use file::{Station, StationError};
 pub use locate::{locate, locate_from_env, Located as StationSource, STATION_ENV};
 pub use result::FloorResult;
 pub use serial::{SerialCheck, SerialGate};
+pub use snapshot::{calibration_dates, design_revision};
 pub use stamp::{read_station_stamp, write_station_stamp, StationStamp, STATION_STAMP};
 pub use tally::{Tally, CPK_MIN_UNITS};

@@ -13,4 +13,5 @@ mod report;
 mod runner;
 mod sim;
 mod spice;
+mod store;
 mod support;

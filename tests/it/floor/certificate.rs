@@ -58,4 +58,20 @@ fn the_certificate_is_one_printable_page_with_what_must_be_on_it() {
     let text = String::from_utf8_lossy(&pdf);
     let pages = text.matches("/Type /Page").count() - text.matches("/Type /Pages").count();
     assert_eq!(pages, 1, "the certificate prints on {pages} pages");
+
+    // The report carries the same banner, and its print stylesheet keeps it to two pages
+    // (it printed on five before the stylesheet).
+    let report = dir.join("report.html");
+    let dom = render(
+        &exe,
+        &report,
+        &f.rig.dir.path().join("report.png"),
+        "1100,1400",
+    );
+    assert!(dom.contains("id=\"verdict-banner\"") && dom.contains(">PASS<"));
+    let printed = f.rig.dir.path().join("report.pdf");
+    regulus::report::pdf::print_to_pdf(&report, &printed).unwrap();
+    let text = String::from_utf8_lossy(&std::fs::read(&printed).unwrap()).into_owned();
+    let pages = text.matches("/Type /Page").count() - text.matches("/Type /Pages").count();
+    assert!(pages <= 2, "the report prints on {pages} pages");
 }
