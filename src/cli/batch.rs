@@ -10,7 +10,7 @@ use super::station::{self as st_run, PdfMode};
 use super::{present, EXIT_ABORTED, EXIT_OK};
 use crate::bench::Bench;
 use crate::runner::CancelToken;
-use crate::station::{SerialCheck, SerialGate, Tally};
+use crate::station::{FloorResult, SerialCheck, SerialGate, Tally};
 use std::io::{BufRead, Write};
 use std::path::PathBuf;
 use std::sync::mpsc;
@@ -109,6 +109,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let mut gate = SerialGate::new();
     let mut tally = Tally::new();
     let mut code = EXIT_OK;
+    let mut bench: Option<Bench> = None;
     loop {
         write!(
             out,
@@ -146,28 +147,37 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         }
         writeln!(out, "testing {serial}")?;
         req.unit = serial.clone();
+        // The bench stays open from unit to unit (its streaming readers keep their ports);
+        // after a unit that did not finish it is opened afresh.
         let done = rt.block_on(async {
-            match Bench::open(&prep.bench).await {
-                Ok(mut bench) => {
-                    st_run::test_unit(&mut bench, &prep, &req, &st, &cancel, pdf, &mut out).await
-                }
-                Err(e) => {
-                    writeln!(
-                        out,
-                        "error: the bench did not open: {}",
-                        present::chain_text(&e)
-                    )?;
-                    st_run::big_verdict(&mut out, crate::station::FloorResult::Error, &serial)?;
-                    Ok(st_run::UnitDone {
-                        result: crate::station::FloorResult::Error,
-                        dir: None,
-                        certificate: None,
-                        values: Vec::new(),
-                        code: super::exit_code_for(&e.into()),
-                    })
+            if bench.is_none() {
+                match Bench::open(&prep.bench).await {
+                    Ok(b) => bench = Some(b),
+                    Err(e) => {
+                        writeln!(
+                            out,
+                            "error: the bench did not open: {}",
+                            present::chain_text(&e)
+                        )?;
+                        st_run::big_verdict(&mut out, FloorResult::Error, &serial)?;
+                        return Ok::<_, anyhow::Error>(st_run::UnitDone {
+                            result: FloorResult::Error,
+                            dir: None,
+                            certificate: None,
+                            values: Vec::new(),
+                            code: super::exit_code_for(&e.into()),
+                        });
+                    }
                 }
             }
+            let Some(b) = bench.as_mut() else {
+                return Err(anyhow::anyhow!("the bench is not open"));
+            };
+            st_run::test_unit(b, &prep, &req, &st, &cancel, pdf, &mut out).await
         })?;
+        if !done.result.judged() {
+            bench = None;
+        }
         gate.tested(&serial);
         tally.add(done.result, &done.values);
         writeln!(out, "{}", tally.line())?;

@@ -114,9 +114,6 @@ pub fn history_from_store(url: &str, unit: &str) -> anyhow::Result<History> {
     })?;
     let mut h =
         report::history_from_entries(unit, runs.iter().map(|r| r.history_entry()).collect());
-    h.plans = runs
-        .into_iter()
-        .map(|r| (r.folder, format!("{} @ {}", r.plan_name, r.station)))
-        .collect();
+    h.plans = runs.into_iter().map(|r| (r.folder, r.plan_name)).collect();
     Ok(h)
 }

@@ -177,6 +177,14 @@ mod tests {
     }
 
     #[test]
+    fn the_template_reads() {
+        let text = include_str!("../../config/station-template.toml");
+        let s = Station::parse(text, Path::new("/st/station.toml")).unwrap();
+        assert_eq!(s.id, "ST-01");
+        assert!(s.store.is_some() && s.serial_matches("TLB-0001"));
+    }
+
+    #[test]
     fn mistakes_are_located() {
         let p = Path::new("station.toml");
         let bad_pattern = GOOD.replace("TLB-[0-9]{4}", "TLB-[0-9");

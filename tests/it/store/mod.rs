@@ -3,3 +3,4 @@
 //! at once while syncs are killed and the server is stopped.
 
 mod roundtrip;
+mod stations;

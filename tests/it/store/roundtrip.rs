@@ -109,7 +109,7 @@ fn sync_uploads_once_and_reruns_change_nothing() {
     assert_eq!(out.status.code(), Some(0), "{}", show(&out));
     let text = String::from_utf8_lossy(&out.stdout);
     assert!(
-        text.contains("unit SN-0300: 3 record(s)") && text.contains("standard @ ST-A"),
+        text.contains("unit SN-0300: 3 record(s)") && text.contains(" standard "),
         "{text}"
     );
 

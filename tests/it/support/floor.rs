@@ -51,8 +51,19 @@ impl Floor {
         Floor::start_with(seed, pattern, SimOptions::default().seed(seed))
     }
 
-    pub fn start_with(_seed: u64, pattern: &str, opts: SimOptions) -> Floor {
+    pub fn start_with(seed: u64, pattern: &str, opts: SimOptions) -> Floor {
+        Floor::start_station("ST-07", seed, pattern, opts)
+    }
+
+    /// A station with its own id, simulated bench and records folder.
+    pub fn start_station(id: &str, _seed: u64, pattern: &str, opts: SimOptions) -> Floor {
         let rig = Rig::start(LAB, opts);
+        // Several stations' children run at once: none may inherit another bench's
+        // pseudo-terminals (an inherited slave keeps a port's exclusive lock alive).
+        {
+            let guard = super::lock::pty();
+            super::lock::cloexec_ptys(&guard);
+        }
         let bench = std::fs::read_to_string(&rig.bench).unwrap();
         let bench = bench.replacen(
             "name = \"dmm\"\n",
@@ -66,7 +77,7 @@ impl Floor {
         std::fs::write(
             &station,
             format!(
-                "id = \"ST-07\"\nbench = \"bench.toml\"\ndesign = \"{}\"\nplan = \"{}\"\n\
+                "id = \"{id}\"\nbench = \"bench.toml\"\ndesign = \"{}\"\nplan = \"{}\"\n\
                  records = \"records\"\noperator = \"Operator One\"\nunit_pattern = \"{pattern}\"\n",
                 rig.design_path,
                 plan.file_name().unwrap().to_string_lossy()
