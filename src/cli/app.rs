@@ -1,7 +1,9 @@
 //! The command line's shape: one clap derive `Cli` with one `Subcommand` enum, and
 //! [`dispatch`], which runs the chosen command and returns its exit code.
 
-use super::{batch, compare, demo, design, history, index, probe, report, run, sim, size, sync};
+use super::{
+    batch, compare, completions, demo, design, history, index, probe, report, run, sim, size, sync,
+};
 use clap::{Parser, Subcommand};
 
 #[derive(Debug, Parser)]
@@ -46,6 +48,10 @@ pub enum Command {
     Index(index::Args),
     /// Upload finished runs to the shared store (PostgreSQL); queues them while it is away.
     Sync(sync::Args),
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
+    Completions(completions::Args),
+    /// Print the manual page (roff), or write one per command with --out DIR.
+    Man(completions::ManArgs),
 }
 
 /// Run the chosen command and return its exit code.
@@ -63,5 +69,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<u8> {
         Command::Batch(a) => batch::run(a),
         Command::Index(a) => index::run(a),
         Command::Sync(a) => sync::run(a),
+        Command::Completions(a) => completions::run(a),
+        Command::Man(a) => completions::man(a),
     }
 }

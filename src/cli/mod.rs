@@ -6,11 +6,13 @@
 mod app;
 pub mod batch;
 pub mod compare;
+pub mod completions;
 pub mod demo;
 pub mod design;
 mod exit;
 pub mod history;
 pub mod index;
+pub mod json_out;
 pub mod options;
 pub mod present;
 pub mod probe;

@@ -218,12 +218,13 @@ pub async fn upload_record(
         .await
         .map_err(sql("start copying the readings"))?;
     futures_util::pin_mut!(sink);
-    let mut buf = String::with_capacity(64 * 1024);
+    let mut buf = String::with_capacity(1024 * 1024 + 512);
     for (seq, row) in rows.iter().enumerate() {
         copy_line(&mut buf, &id, seq, row);
-        if buf.len() >= 60 * 1024 {
+        if buf.len() >= 1024 * 1024 {
+            // Queue the chunk without waiting for the server to take it (finish flushes).
             let chunk = Bytes::from(std::mem::take(&mut buf));
-            sink.send(chunk).await.map_err(sql("copy the readings"))?;
+            sink.feed(chunk).await.map_err(sql("copy the readings"))?;
         }
     }
     if !buf.is_empty() {

@@ -4,5 +4,6 @@
 
 mod batch;
 mod certificate;
+mod conventions;
 mod index;
 mod station;
