@@ -2,7 +2,8 @@
 //! [`dispatch`], which runs the chosen command and returns its exit code.
 
 use super::{
-    batch, compare, completions, demo, design, history, index, probe, report, run, sim, size, sync,
+    batch, compare, completions, dashboard, demo, design, history, index, probe, report, run, sim,
+    size, sync,
 };
 use clap::{Parser, Subcommand};
 
@@ -48,6 +49,8 @@ pub enum Command {
     Index(index::Args),
     /// Upload finished runs to the shared store (PostgreSQL); queues them while it is away.
     Sync(sync::Args),
+    /// Write the batch dashboard page (results, yield, control charts, histograms, Cpk).
+    Dashboard(dashboard::Args),
     /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
     Completions(completions::Args),
     /// Print the manual page (roff), or write one per command with --out DIR.
@@ -69,6 +72,7 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<u8> {
         Command::Batch(a) => batch::run(a),
         Command::Index(a) => index::run(a),
         Command::Sync(a) => sync::run(a),
+        Command::Dashboard(a) => dashboard::run(a),
         Command::Completions(a) => completions::run(a),
         Command::Man(a) => completions::man(a),
     }

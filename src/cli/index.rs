@@ -112,17 +112,12 @@ pub fn indexed_metrics(
     if let Some(u) = unit {
         idx.refresh_unit(u)?;
     }
-    let runs = idx.runs(&RunFilter {
-        unit: unit.map(str::to_string),
-        ..RunFilter::default()
-    })?;
-    Ok(runs
+    Ok(idx
+        .metrics_of_runs(unit)?
         .into_iter()
-        .filter_map(|r| {
-            let m = r.metrics()?;
-            let (outcome, state) = r.record_outcome();
-            let label = r.dir(records).display().to_string();
-            Some((label, r.unit, m, outcome, state))
+        .map(|(u, folder, outcome, state, m)| {
+            let label = records.join(&u).join(&folder).display().to_string();
+            (label, u, m, outcome, state)
         })
         .collect())
 }

@@ -7,6 +7,7 @@ mod app;
 pub mod batch;
 pub mod compare;
 pub mod completions;
+pub mod dashboard;
 pub mod demo;
 pub mod design;
 mod exit;

@@ -4,7 +4,7 @@
 //! write at once (WAL journal, a busy timeout).
 
 use super::scan::{mtime_ns, scan_record};
-use super::types::{IndexError, IndexedRun};
+use super::types::{IndexError, IndexedRun, MetricsRow};
 use crate::compare::{KeyMetric, KeyValues, Verdict};
 use crate::record::{self, RecordError};
 use crate::station::FloorResult;
@@ -281,6 +281,53 @@ impl Index {
             .query_map(rusqlite::params_from_iter(args.iter()), row_to_run)
             .map_err(&sq)?;
         rows.collect::<Result<Vec<_>, _>>().map_err(&sq)
+    }
+
+    /// For re-judging runs: (unit, folder, outcome, state, metrics) of every run with
+    /// metrics (optionally one unit's), oldest first. Only the columns needed are read and
+    /// the metrics are parsed on every core.
+    pub fn metrics_of_runs(&self, unit: Option<&str>) -> Result<Vec<MetricsRow>, IndexError> {
+        let sq = self.sq();
+        let mut st = self
+            .conn
+            .prepare(
+                "SELECT unit, folder, outcome, state, metrics_json FROM runs \
+                 WHERE metrics_json IS NOT NULL AND (?1 IS NULL OR unit = ?1) \
+                 ORDER BY started_utc, unit, folder",
+            )
+            .map_err(&sq)?;
+        let raw: Vec<(String, String, String, String, String)> = st
+            .query_map([unit], |r| {
+                Ok((r.get(0)?, r.get(1)?, r.get(2)?, r.get(3)?, r.get(4)?))
+            })
+            .map_err(&sq)?
+            .collect::<Result<_, _>>()
+            .map_err(&sq)?;
+        let threads = std::thread::available_parallelism()
+            .map_or(1, |n| n.get())
+            .max(1);
+        let chunk = raw.len().div_ceil(threads).max(1);
+        let parsed: Vec<Vec<MetricsRow>> = std::thread::scope(|s| {
+            let handles: Vec<_> = raw
+                .chunks(chunk)
+                .map(|part| {
+                    s.spawn(move || {
+                        part.iter()
+                            .filter_map(|(u, f, o, st, m)| {
+                                let metrics = serde_json::from_str(m).ok()?;
+                                let probe = IndexedRun::outcome_of(o, st);
+                                Some((u.clone(), f.clone(), probe.0, probe.1, metrics))
+                            })
+                            .collect()
+                    })
+                })
+                .collect();
+            handles
+                .into_iter()
+                .map(|h| h.join().unwrap_or_default())
+                .collect()
+        });
+        Ok(parsed.into_iter().flatten().collect())
     }
 
     /// Number of indexed runs.

@@ -67,13 +67,18 @@ impl IndexedRun {
 
     /// run.json's outcome and the record's state, as indexed.
     pub fn record_outcome(&self) -> (Outcome, RecordState) {
-        let outcome = match self.outcome.as_str() {
+        IndexedRun::outcome_of(&self.outcome, &self.state)
+    }
+
+    /// The outcome and state from their indexed words.
+    pub fn outcome_of(outcome: &str, state: &str) -> (Outcome, RecordState) {
+        let outcome = match outcome {
             "completed" => Outcome::Completed,
             "aborted" => Outcome::Aborted,
             "failed" => Outcome::Failed,
             _ => Outcome::Running,
         };
-        let state = match self.state.as_str() {
+        let state = match state {
             "finished" => RecordState::Finished(outcome),
             "running" => RecordState::Running,
             _ => RecordState::Incomplete,
@@ -91,3 +96,6 @@ impl IndexedRun {
         records.join(&self.unit).join(&self.folder)
     }
 }
+
+/// A run's metrics for re-judging: unit, record folder, outcome, state, metrics.
+pub type MetricsRow = (String, String, Outcome, RecordState, Metrics);

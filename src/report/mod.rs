@@ -7,6 +7,7 @@
 //! This file only declares and re-exports.
 
 pub mod certificate;
+pub mod dashboard;
 pub mod font;
 mod history;
 pub mod html;

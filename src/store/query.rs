@@ -103,3 +103,12 @@ pub async fn store_runs(
         })
         .collect())
 }
+
+/// The design file's bytes the store keeps for a content hash.
+pub async fn design_content(client: &Client, sha256: &str) -> Result<Option<Vec<u8>>, StoreError> {
+    let row = client
+        .query_opt("SELECT content FROM design WHERE sha256 = $1", &[&sha256])
+        .await
+        .map_err(sql("read a design"))?;
+    Ok(row.and_then(|r| r.get::<_, Option<Vec<u8>>>(0)))
+}

@@ -4,7 +4,7 @@
 //! store holds every run exactly once and every reading row of every record.
 
 use crate::support::e2e::{serial, show, ChildGuard};
-use crate::support::floor::Floor;
+use crate::support::floor::{chromium_or_skip, render, Floor};
 use crate::support::pg::Pg;
 use regulus::sim::SimOptions;
 use std::io::Write;
