@@ -177,4 +177,92 @@ fn eight_stations_sync_through_killed_syncs_and_a_server_outage() {
         pg.query_i64("SELECT count(*) FROM station"),
         STATIONS as i64
     );
+
+    // The dashboard across all stations, rendered in headless Chromium.
+    let page = floors[0].rig.dir.path().join("dashboard.html");
+    let out = floors[0]
+        .regulus()
+        .args(["dashboard", "--store", &pg.url, "--out"])
+        .arg(&page)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0), "{}", show(&out));
+    assert!(String::from_utf8_lossy(&out.stdout).contains(&format!("({local_runs} run(s))")));
+    let html = std::fs::read_to_string(&page).unwrap();
+    check_histograms(&html);
+    let Some(exe) = chromium_or_skip("the dashboard test") else {
+        return;
+    };
+    let dom = render(
+        &exe,
+        &page,
+        &floors[0].rig.dir.path().join("dashboard.png"),
+        "1100,2400",
+    );
+    for must in [
+        "<table id=\"counts\"",
+        "<table id=\"yield\"",
+        "<table id=\"capability\"",
+        "<table id=\"outliers\"",
+        "id=\"imr-limit_current\"",
+        "id=\"mr-limit_current\"",
+        "id=\"hist-limit_current\"",
+        "id=\"hist-output_voltage\"",
+        "95 % bounds",
+    ] {
+        assert!(dom.contains(must), "dashboard DOM lacks {must:?}");
+    }
+    // Cpk of the limit current over 24 judged units is shown with its bounds.
+    let cap = &dom[dom.find("<table id=\"capability\"").unwrap()..];
+    let row = &cap[cap.find("limit_current").unwrap()..];
+    let row = &row[..row.find("</tr>").unwrap()];
+    assert!(row.contains(" .. "), "{row}");
+}
+
+/// No histogram bar straddles a limit line, and every legend sits below the plotting area.
+fn check_histograms(html: &str) {
+    let attr = |tag: &str, name: &str| -> Option<f64> {
+        let at = tag.find(&format!(" {name}=\""))? + name.len() + 3;
+        tag[at..].split('"').next()?.parse().ok()
+    };
+    let mut rest = html;
+    let mut seen = 0;
+    while let Some(k) = rest.find("<svg id=\"hist-") {
+        let end = rest[k..].find("</svg>").unwrap() + k;
+        let svg = &rest[k..end];
+        let limits: Vec<f64> = svg
+            .split("<line class=\"limit\"")
+            .skip(1)
+            .filter_map(|t| attr(t, "x1"))
+            .collect();
+        let bottom = svg
+            .split("<line class=\"limit\"")
+            .skip(1)
+            .filter_map(|t| attr(t, "y2"))
+            .fold(0.0f64, f64::max);
+        // The first rect is the plotting area.
+        for rect in svg.split("<rect").skip(2) {
+            let (Some(x), Some(w)) = (attr(rect, "x"), attr(rect, "width")) else {
+                continue;
+            };
+            if rect.contains("height=\"3\"") {
+                // A legend swatch: below the plotting area.
+                assert!(
+                    attr(rect, "y").unwrap() > bottom,
+                    "legend over the plot: {rect}"
+                );
+                continue;
+            }
+            for l in &limits {
+                // Coordinates are written to 0.1 px.
+                assert!(
+                    !(x + 0.2 < *l && *l < x + w - 0.2),
+                    "a bar straddles the limit at {l}: {rect}"
+                );
+            }
+        }
+        seen += 1;
+        rest = &rest[end..];
+    }
+    assert!(seen >= 2, "expected histograms, found {seen}");
 }
