@@ -232,8 +232,9 @@ fn draw_vi<DB: DrawingBackend>(
         }
     }
     let imax = if imax > 0.0 { imax * 1.1 } else { 1.0 };
-    // Head room above the curve for the legend.
-    let vmax = if vmax > 0.0 { vmax * 1.5 } else { 1.0 };
+    // Fitted to the design: a little above its highest worst-case output (the legend sits in
+    // the empty lower left, below the regulation line, not in head room above it).
+    let vmax = if vmax > 0.0 { vmax * 1.08 } else { 1.0 };
     let (xr, yr) = ((0.0, imax), (0.0, vmax));
     let keep = |p: &(f64, f64)| inside(*p, xr, yr);
     let mut chart = ChartBuilder::on(root)
@@ -343,7 +344,7 @@ fn draw_vi<DB: DrawingBackend>(
                 });
         }
     }
-    legend(&mut chart, SeriesLabelPosition::UpperRight)
+    legend(&mut chart, SeriesLabelPosition::LowerLeft)
 }
 
 fn draw_regulation<DB: DrawingBackend>(
@@ -441,10 +442,12 @@ fn draw_short_circuit<DB: DrawingBackend>(
         range_of(series.iter().map(|p| p.0)).unwrap_or((0.0, 1.0)),
         0.03,
     );
-    let yr = pad(
-        range_of(series.iter().map(|p| p.1)).unwrap_or((0.0, 1.0)),
-        0.2,
-    );
+    // From zero: a drift of a few percent over the dwell must look like a few percent.
+    let top = range_of(series.iter().map(|p| p.1))
+        .map(|(_, hi)| hi.max(0.0))
+        .filter(|hi| *hi > 0.0)
+        .unwrap_or(1.0);
+    let yr = (0.0, top * 1.15);
     let mut chart = ChartBuilder::on(root)
         .caption("Short-circuit current over the dwell", (FONT, 22))
         .margin(12)
@@ -509,11 +512,22 @@ fn draw_history<DB: DrawingBackend>(
         .first()
         .map(|e| e.started_utc.as_str())
         .unwrap_or("");
-    let xs: Vec<f64> = entries
+    let days: Vec<f64> = entries
         .iter()
         .enumerate()
         .map(|(i, e)| days_since(first, &e.started_utc).unwrap_or(i as f64))
         .collect();
+    // The axis unit follows the span (days, hours or minutes), and the axis is at least two
+    // units wide, so one record or two close together read sensibly.
+    let span = range_of(days.iter().copied()).map_or(0.0, |(lo, hi)| hi - lo);
+    let (per_day, unit_word) = if span >= 2.0 {
+        (1.0, "Days")
+    } else if span * 24.0 >= 2.0 {
+        (24.0, "Hours")
+    } else {
+        (1440.0, "Minutes")
+    };
+    let xs: Vec<f64> = days.iter().map(|d| d * per_day).collect();
     let tracked = [
         (KeyMetric::OutputVoltage, MEASURED, 0usize),
         (KeyMetric::LimitCurrent, KNEE_A, 1),
@@ -533,7 +547,14 @@ fn draw_history<DB: DrawingBackend>(
             .collect();
         series.push((k, c, m, pts));
     }
-    let xr = pad(range_of(xs.iter().copied()).unwrap_or((0.0, 1.0)), 0.05);
+    let (lo, hi) = range_of(xs.iter().copied()).unwrap_or((0.0, 1.0));
+    let (lo, hi) = if hi - lo < 2.0 {
+        let c = (lo + hi) / 2.0;
+        (c - 1.0, c + 1.0)
+    } else {
+        (lo, hi)
+    };
+    let xr = pad((lo, hi), 0.05);
     let yr = pad(
         range_of(
             series
@@ -553,7 +574,7 @@ fn draw_history<DB: DrawingBackend>(
         .map_err(s)?;
     chart
         .configure_mesh()
-        .x_desc("Days since the first record")
+        .x_desc(format!("{unit_word} since the first record"))
         .y_desc("Change from the first record (%)")
         .label_style((FONT, 14))
         .axis_desc_style((FONT, 16))

@@ -6,4 +6,5 @@ mod batch;
 mod certificate;
 mod conventions;
 mod index;
+mod plots;
 mod station;
