@@ -280,6 +280,31 @@ fn draw_vi<DB: DrawingBackend>(
             .map_err(s)?
             .label("design worst-case band")
             .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], fill));
+        // The Monte Carlo band (where most built units fall) inside the worst-case band.
+        let mc_fill = EXPECTED.mix(0.22).filled();
+        let (vm, im) = (e.vout.monte_carlo, e.limit_current.monte_carlo);
+        if [vm.p_low, vm.p_high, im.p_low, im.p_high]
+            .iter()
+            .all(|v| sane(*v))
+        {
+            let clip = |(i, v): (f64, f64)| (i.clamp(xr.0, xr.1), v.clamp(yr.0, yr.1));
+            chart
+                .draw_series([
+                    Rectangle::new(
+                        [clip((0.0, vm.p_low)), clip((im.p_low, vm.p_high))],
+                        mc_fill,
+                    )
+                    .into_dyn(),
+                    Rectangle::new(
+                        [clip((im.p_low, 0.0)), clip((im.p_high, vm.p_high))],
+                        mc_fill,
+                    )
+                    .into_dyn(),
+                ])
+                .map_err(s)?
+                .label("design Monte Carlo band")
+                .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], mc_fill));
+        }
         let pts = if e.curve.len() >= 2 {
             e.curve.clone()
         } else {
