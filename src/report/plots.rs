@@ -57,6 +57,8 @@ pub enum Chart<'a> {
     ShortCircuit {
         series: &'a [(f64, f64)],
         fit: Option<ExpFit>,
+        /// The design's worst-case short-circuit current (lowest, highest), when known.
+        band: Option<(f64, f64)>,
     },
     /// A unit's key metrics over dates, as a change from its first record.
     History {
@@ -141,7 +143,9 @@ impl Chart<'_> {
                 expectation,
             } => draw_vi(root, curve, metrics, *expectation),
             Chart::Regulation { curve, metrics } => draw_regulation(root, curve, metrics),
-            Chart::ShortCircuit { series, fit } => draw_short_circuit(root, series, *fit),
+            Chart::ShortCircuit { series, fit, band } => {
+                draw_short_circuit(root, series, *fit, *band)
+            }
             Chart::History { unit, entries } => draw_history(root, unit, entries),
             Chart::Histogram {
                 metric,
@@ -462,13 +466,15 @@ fn draw_short_circuit<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
     series: &[(f64, f64)],
     fit: Option<ExpFit>,
+    band: Option<(f64, f64)>,
 ) -> DrawResult {
     let xr = pad(
         range_of(series.iter().map(|p| p.0)).unwrap_or((0.0, 1.0)),
         0.03,
     );
     // From zero: a drift of a few percent over the dwell must look like a few percent.
-    let top = range_of(series.iter().map(|p| p.1))
+    let band = band.filter(|(lo, hi)| sane(*lo) && sane(*hi) && lo <= hi);
+    let top = range_of(series.iter().map(|p| p.1).chain(band.map(|b| b.1)))
         .map(|(_, hi)| hi.max(0.0))
         .filter(|hi| *hi > 0.0)
         .unwrap_or(1.0);
@@ -488,6 +494,17 @@ fn draw_short_circuit<DB: DrawingBackend>(
         .axis_desc_style((FONT, 16))
         .draw()
         .map_err(s)?;
+    if let Some((lo, hi)) = band {
+        let fill = BAND.mix(0.35).filled();
+        chart
+            .draw_series([Rectangle::new(
+                [(xr.0, lo.max(yr.0)), (xr.1, hi.min(yr.1))],
+                fill,
+            )])
+            .map_err(s)?
+            .label("design worst-case band")
+            .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], fill));
+    }
     chart
         .draw_series(
             series

@@ -293,6 +293,9 @@ pub fn charts_for<'a>(
         v.push(plots::Chart::ShortCircuit {
             series: dwell,
             fit: metrics.short_circuit.and_then(|s| s.time_constant),
+            band: exp
+                .and_then(|e| e.short_circuit_current)
+                .map(|b| (b.worst_case.min, b.worst_case.max)),
         });
     }
     v

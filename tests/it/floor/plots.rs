@@ -75,12 +75,16 @@ fn short_circuit_axis_starts_at_zero() {
     let svg = Chart::ShortCircuit {
         series: &series,
         fit: None,
+        band: Some((1.15, 2.21)),
     }
     .to_svg(SIZE)
     .unwrap();
     let ticks = tick_numbers(&svg);
     assert!(ticks.contains(&0.0), "{ticks:?}");
     assert!(ticks.iter().all(|t| *t >= 0.0), "{ticks:?}");
+    // The design's worst-case band is drawn and named, and the axis covers its top.
+    assert!(svg.contains("design worst-case band"), "{svg}");
+    assert!(ticks.iter().any(|t| *t >= 2.2), "{ticks:?}");
 }
 
 #[test]
@@ -108,4 +112,5 @@ fn the_vi_axis_is_fitted_to_the_design() {
         highest >= top * 0.9 && highest <= top * 1.1,
         "ticks {ticks:?}, design top {top}"
     );
+    assert!(svg.contains("design Monte Carlo band"), "{svg}");
 }
