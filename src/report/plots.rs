@@ -38,6 +38,44 @@ const EXPECTED: RGBColor = RGBColor(30, 80, 160);
 const KNEE_A: RGBColor = RGBColor(190, 30, 30);
 const KNEE_B: RGBColor = RGBColor(20, 120, 40);
 const BAND: RGBColor = RGBColor(150, 150, 150);
+const KNEE_SEARCH: RGBColor = RGBColor(200, 110, 0);
+
+/// The V-I points the adaptive knee search took, to draw them apart from the sweep's.
+pub fn knee_search_points(rows: &[crate::record::Row]) -> Vec<CurvePoint> {
+    use crate::measure::Quantity;
+    rows.iter()
+        .filter(|r| r.step_kind == crate::record::StepKind::KneeSearch && !r.load_mode.is_off())
+        .filter_map(|r| {
+            let v = r.value(Quantity::OutputVoltage)?;
+            let i = r.value(Quantity::OutputCurrent)?;
+            (v.is_finite() && i.is_finite()).then_some(CurvePoint {
+                current: i,
+                voltage: v,
+            })
+        })
+        .collect()
+}
+
+/// The charts with the knee search's points set on the V-I chart.
+pub fn with_knee_search<'a>(charts: Vec<Chart<'a>>, points: &'a [CurvePoint]) -> Vec<Chart<'a>> {
+    charts
+        .into_iter()
+        .map(|c| match c {
+            Chart::VoltageCurrent {
+                curve,
+                metrics,
+                expectation,
+                ..
+            } => Chart::VoltageCurrent {
+                curve,
+                metrics,
+                expectation,
+                knee_search: points,
+            },
+            other => other,
+        })
+        .collect()
+}
 
 /// Something that can be drawn.
 #[derive(Debug, Clone)]
@@ -47,6 +85,8 @@ pub enum Chart<'a> {
         curve: &'a [CurvePoint],
         metrics: &'a Metrics,
         expectation: Option<&'a DesignExpectation>,
+        /// The points the adaptive knee search took (drawn apart from the sweep's).
+        knee_search: &'a [CurvePoint],
     },
     /// Output voltage change from no load against load current, with the fitted line.
     Regulation {
@@ -141,7 +181,8 @@ impl Chart<'_> {
                 curve,
                 metrics,
                 expectation,
-            } => draw_vi(root, curve, metrics, *expectation),
+                knee_search,
+            } => draw_vi(root, curve, metrics, *expectation, knee_search),
             Chart::Regulation { curve, metrics } => draw_regulation(root, curve, metrics),
             Chart::ShortCircuit { series, fit, band } => {
                 draw_short_circuit(root, series, *fit, *band)
@@ -210,6 +251,7 @@ fn draw_vi<DB: DrawingBackend>(
     curve: &[CurvePoint],
     metrics: &Metrics,
     exp: Option<&DesignExpectation>,
+    knee_search: &[CurvePoint],
 ) -> DrawResult {
     let mut imax = range_of(curve.iter().map(|p| p.current))
         .map(|r| r.1)
@@ -326,11 +368,13 @@ fn draw_vi<DB: DrawingBackend>(
                 DashedPathElement::new(vec![(x, y), (x + 18, y)], 5, 3, EXPECTED.stroke_width(2))
             });
     }
+    let searched = |p: &CurvePoint| knee_search.iter().any(|k| k == p);
+    let swept: Vec<&CurvePoint> = curve.iter().filter(|p| !searched(p)).collect();
     chart
         .draw_series(
-            curve
+            swept
                 .iter()
-                .step_by(stride(curve.len()))
+                .step_by(stride(swept.len()))
                 .map(|p| (p.current, p.voltage))
                 .filter(keep)
                 .map(|p| Circle::new(p, 3, MEASURED.stroke_width(1))),
@@ -338,6 +382,19 @@ fn draw_vi<DB: DrawingBackend>(
         .map_err(s)?
         .label("measured (circles)")
         .legend(|(x, y)| Circle::new((x + 9, y), 3, MEASURED.stroke_width(1)));
+    if !knee_search.is_empty() {
+        chart
+            .draw_series(
+                knee_search
+                    .iter()
+                    .map(|p| (p.current, p.voltage))
+                    .filter(keep)
+                    .map(|p| Cross::new(p, 4, KNEE_SEARCH.stroke_width(2))),
+            )
+            .map_err(s)?
+            .label("knee search points (crosses)")
+            .legend(|(x, y)| Cross::new((x + 9, y), 4, KNEE_SEARCH.stroke_width(2)));
+    }
     if let Some(k) = &metrics.knee {
         if let Some(p) = k.fixed_drop.filter(|p| keep(&(p.current, p.voltage))) {
             chart

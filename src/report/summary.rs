@@ -229,7 +229,8 @@ pub fn write_report(
 
     let curve = analysis::curve_points(&rec.rows);
     let dwell = analysis::dwell_series(&rec.rows);
-    let charts = charts_for(&curve, &dwell, &summary.metrics, exp);
+    let knee = plots::knee_search_points(&rec.rows);
+    let charts = plots::with_knee_search(charts_for(&curve, &dwell, &summary.metrics, exp), &knee);
     let plots_dir = dir.join("plots");
     std::fs::create_dir_all(&plots_dir).map_err(|source| ReportError::Write {
         path: plots_dir.clone(),
@@ -286,6 +287,7 @@ pub fn charts_for<'a>(
             curve,
             metrics,
             expectation: exp,
+            knee_search: &[],
         });
         v.push(plots::Chart::Regulation { curve, metrics });
     }

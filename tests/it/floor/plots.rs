@@ -100,6 +100,7 @@ fn the_vi_axis_is_fitted_to_the_design() {
         curve: &curve,
         metrics: &metrics,
         expectation: Some(&exp),
+        knee_search: &[],
     }
     .to_svg(SIZE)
     .unwrap();
@@ -113,4 +114,44 @@ fn the_vi_axis_is_fitted_to_the_design() {
         "ticks {ticks:?}, design top {top}"
     );
     assert!(svg.contains("design Monte Carlo band"), "{svg}");
+}
+
+#[test]
+fn knee_search_points_are_drawn_apart_from_the_sweep() {
+    use regulus::analysis::CurvePoint;
+    let curve = [
+        CurvePoint {
+            current: 0.0,
+            voltage: 12.0,
+        },
+        CurvePoint {
+            current: 0.5,
+            voltage: 11.99,
+        },
+        CurvePoint {
+            current: 1.4,
+            voltage: 11.7,
+        },
+    ];
+    let knee = [curve[2]];
+    let metrics = regulus::analysis::analyse(&[], &regulus::analysis::AnalysisOptions::default());
+    let draw = |knee: &[CurvePoint]| {
+        Chart::VoltageCurrent {
+            curve: &curve,
+            metrics: &metrics,
+            expectation: None,
+            knee_search: knee,
+        }
+        .to_svg(SIZE)
+        .unwrap()
+    };
+    let with = draw(&knee);
+    let without = draw(&[]);
+    assert!(with.contains("knee search points (crosses)"));
+    assert!(!without.contains("knee search points"));
+    // The knee point is drawn as a cross, not also as a sweep circle.
+    assert_eq!(
+        with.matches("<circle").count() + 1,
+        without.matches("<circle").count()
+    );
 }
