@@ -105,3 +105,49 @@ fn a_failing_unit_reads_fail_and_lowers_the_yield() {
         show(&out)
     );
 }
+
+#[test]
+fn ctrl_c_between_units_ends_the_batch_cleanly() {
+    let _g = serial();
+    let f = Floor::start(46, "TLB-[0-9]{4}");
+    let child = f
+        .regulus()
+        .args(["batch", "--yes", "--no-pdf", "--station"])
+        .arg(&f.station)
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut guard = crate::support::e2e::ChildGuard(child);
+    // stdin stays open: the batch waits for a serial. Wait for its prompt, then Ctrl-C.
+    let mut stdout = guard.0.stdout.take().unwrap();
+    let mut seen = String::new();
+    let mut buf = [0u8; 4096];
+    let t0 = std::time::Instant::now();
+    while !seen.contains("next unit serial") {
+        let n = std::io::Read::read(&mut stdout, &mut buf).unwrap();
+        assert!(n > 0, "the batch ended before asking: {seen}");
+        seen.push_str(&String::from_utf8_lossy(&buf[..n]));
+        assert!(t0.elapsed() < std::time::Duration::from_secs(60), "{seen}");
+    }
+    guard.signal(libc::SIGINT);
+    let mut rest = String::new();
+    std::io::Read::read_to_string(&mut stdout, &mut rest).unwrap();
+    let (code, _, err) = guard.finish();
+    assert_eq!(code, Some(0), "{seen}{rest}{err}");
+    assert!(
+        rest.contains("batch ended: tally: 0 unit(s)"),
+        "{seen}{rest}{err}"
+    );
+    // Nothing was tested: no unit folder was made.
+    let records = f.rig.dir.path().join("records");
+    let units = std::fs::read_dir(&records)
+        .map(|d| {
+            d.filter_map(|e| e.ok())
+                .filter(|e| !e.file_name().to_string_lossy().starts_with('.'))
+                .count()
+        })
+        .unwrap_or(0);
+    assert_eq!(units, 0);
+}
