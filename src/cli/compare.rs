@@ -17,13 +17,16 @@ pub struct Args {
     #[arg(long, value_name = "FILE")]
     pub design: PathBuf,
     /// Record folders.
-    #[arg(required_unless_present = "index", value_name = "RECORD")]
+    #[arg(required_unless_present_any = ["index", "store"], value_name = "RECORD")]
     pub records: Vec<PathBuf>,
     /// Judge the runs of this records folder's index instead (all, or those of --unit).
     #[arg(long, value_name = "DIR")]
     pub index: Option<PathBuf>,
-    /// With --index: only this unit's runs.
-    #[arg(long, value_name = "SERIAL", requires = "index")]
+    /// Judge the runs of every station in this store instead (PostgreSQL URL).
+    #[arg(long, value_name = "URL", conflicts_with = "index")]
+    pub store: Option<String>,
+    /// With --index or --store: only this unit's runs.
+    #[arg(long, value_name = "SERIAL")]
     pub unit: Option<String>,
     /// Outlier limit on |z| across units.
     #[arg(long, default_value_t = compare::DEFAULT_OUTLIER_Z)]
@@ -60,10 +63,13 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let exp = load_expectation(&args.design)?;
     let mut judged = Vec::new();
     let mut units: Vec<(String, KeyValues)> = Vec::new();
-    if let Some(root) = &args.index {
-        for (record, unit, m, outcome, state) in
-            super::index::indexed_metrics(root, args.unit.as_deref(), &aopts)?
-        {
+    let indexed = match (&args.index, &args.store) {
+        (Some(root), _) => super::index::indexed_metrics(root, args.unit.as_deref(), &aopts)?,
+        (None, Some(url)) => super::sync::store_metrics(url, args.unit.as_deref(), &aopts)?,
+        (None, None) => Vec::new(),
+    };
+    {
+        for (record, unit, m, outcome, state) in indexed {
             let mut c = compare::compare(&m, &exp);
             if let Some(v) = compare::record_verdict(outcome, Some(state), Some(c.verdict)) {
                 c.verdict = v;

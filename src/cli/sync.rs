@@ -117,3 +117,31 @@ pub fn history_from_store(url: &str, unit: &str) -> anyhow::Result<History> {
     h.plans = runs.into_iter().map(|r| (r.folder, r.plan_name)).collect();
     Ok(h)
 }
+
+/// Every run's metrics from the store (or one unit's), for `regulus compare --store`, in the
+/// shape `compare --index` uses: (run id, unit, metrics, outcome, state). The store holds the
+/// metrics its stations analysed with the default settings, so other settings are refused.
+pub fn store_metrics(
+    url: &str,
+    unit: Option<&str>,
+    opts: &crate::analysis::AnalysisOptions,
+) -> anyhow::Result<Vec<super::index::IndexedMetrics>> {
+    if *opts != crate::analysis::AnalysisOptions::default() {
+        return Err(usage(
+            "--store uses the metrics the store holds, analysed with the default settings: \
+             give record folders instead to analyse with other settings",
+        ));
+    }
+    let rt = tokio::runtime::Builder::new_current_thread()
+        .enable_all()
+        .build()
+        .context("cannot start the async runtime")?;
+    let runs = rt.block_on(async {
+        let client = store::connect(url).await?;
+        store::store_metrics(&client, unit).await
+    })?;
+    Ok(runs
+        .into_iter()
+        .map(|(id, unit, outcome, state, m)| (id, unit, m, outcome, state))
+        .collect())
+}

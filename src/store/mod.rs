@@ -15,6 +15,6 @@ mod upload;
 
 pub use error::StoreError;
 pub use migrations::{migrate, MIGRATIONS};
-pub use query::{design_content, store_runs, StoreRun};
+pub use query::{design_content, store_metrics, store_runs, StoreMetrics, StoreRun};
 pub use sync::{connect, pending, sync_folder, SyncReport, SYNCED_FILE};
 pub use upload::{run_id, upload_record, Uploaded};

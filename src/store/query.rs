@@ -112,3 +112,50 @@ pub async fn design_content(client: &Client, sha256: &str) -> Result<Option<Vec<
         .map_err(sql("read a design"))?;
     Ok(row.and_then(|r| r.get::<_, Option<Vec<u8>>>(0)))
 }
+
+/// One run's metrics from the store, for judging against a design: run id, unit, outcome,
+/// record state and the metrics of its summary.
+pub type StoreMetrics = (
+    String,
+    String,
+    crate::record::Outcome,
+    crate::record::RecordState,
+    crate::analysis::Metrics,
+);
+
+/// The metrics of every run (or one unit's) that the store holds a summary for, oldest first.
+pub async fn store_metrics(
+    client: &Client,
+    unit: Option<&str>,
+) -> Result<Vec<StoreMetrics>, StoreError> {
+    use crate::record::{Outcome, RecordState};
+    let rows = client
+        .query(
+            "SELECT r.run_id, r.unit_serial, r.outcome, r.record_state, a.content \
+             FROM run r JOIN artifact a ON a.run_id = r.run_id AND a.name = 'summary.json' \
+             WHERE ($1::text IS NULL OR r.unit_serial = $1) ORDER BY r.started_utc, r.run_id",
+            &[&unit],
+        )
+        .await
+        .map_err(sql("read run summaries"))?;
+    Ok(rows
+        .iter()
+        .filter_map(|r| {
+            let content: Vec<u8> = r.get(4);
+            let v: serde_json::Value = serde_json::from_slice(&content).ok()?;
+            let metrics = serde_json::from_value(v.get("metrics")?.clone()).ok()?;
+            let outcome = match r.get::<_, String>(2).as_str() {
+                "completed" => Outcome::Completed,
+                "aborted" => Outcome::Aborted,
+                "failed" => Outcome::Failed,
+                _ => Outcome::Running,
+            };
+            let state = match r.get::<_, String>(3).as_str() {
+                "finished" => RecordState::Finished(outcome),
+                "running" => RecordState::Running,
+                _ => RecordState::Incomplete,
+            };
+            Some((r.get(0), r.get(1), outcome, state, metrics))
+        })
+        .collect())
+}

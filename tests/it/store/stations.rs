@@ -178,6 +178,41 @@ fn eight_stations_sync_through_killed_syncs_and_a_server_outage() {
         STATIONS as i64
     );
 
+    // compare across stations (from the store) and for one station (from its index) judges
+    // every run, the same way.
+    let design = crate::support::e2e::sample(crate::support::floor::LAB);
+    let judged = |extra: &[&str]| -> serde_json::Value {
+        let out = floors[0]
+            .regulus()
+            .args(["compare", "--json", "--design", &design])
+            .args(extra)
+            .output()
+            .unwrap();
+        assert!(matches!(out.status.code(), Some(0 | 1)), "{}", show(&out));
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let all = judged(&["--store", &pg.url]);
+    assert_eq!(all["records"].as_array().unwrap().len() as i64, local_runs);
+    let records0 = floors[0].rig.dir.path().join("records");
+    let one = judged(&["--index", &records0.display().to_string()]);
+    assert_eq!(one["records"].as_array().unwrap().len(), 3);
+    for r in one["records"].as_array().unwrap() {
+        let unit = r["unit"].as_str().unwrap();
+        let same = all["records"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|x| {
+                x["unit"] == unit
+                    && x["record"]
+                        .as_str()
+                        .unwrap()
+                        .ends_with(r["record"].as_str().unwrap().rsplit('/').next().unwrap())
+            })
+            .expect("the same run in the store");
+        assert_eq!(same["comparison"]["verdict"], r["comparison"]["verdict"]);
+    }
+
     // The dashboard across all stations, rendered in headless Chromium.
     let page = floors[0].rig.dir.path().join("dashboard.html");
     let out = floors[0]
