@@ -60,6 +60,14 @@ fn bench_index(c: &mut Criterion) {
             h
         })
     });
+    g.bench_function("read and parse every indexed run's metrics", |b| {
+        b.iter(|| {
+            let idx = Index::open(black_box(root)).expect("index");
+            let rows = idx.metrics_of_runs(None).expect("rows");
+            assert_eq!(rows.len(), RUNS);
+            rows.len()
+        })
+    });
     g.bench_function("compare every indexed run against the design", |b| {
         b.iter(|| {
             let runs = regulus::cli::index::indexed_metrics(
