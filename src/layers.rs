@@ -7,12 +7,13 @@
 
 /// Layers, lowest first.
 const LAYERS: &[&[&str]] = &[
-    &["quantity", "measure", "config", "rng"],
+    &["quantity", "measure", "config", "rng", "capability"],
     &["design", "protocol", "transport", "control", "guardian"],
     &["record", "bench", "sim", "spice"],
-    &["analysis"],
+    &["analysis", "station"],
     &["plan", "compare"],
-    &["runner", "report"],
+    &["floor"],
+    &["runner", "report", "index", "store"],
     &["pipeline", "testkit"],
     &["cli"],
 ];

@@ -6,12 +6,15 @@
 
 pub mod analysis;
 pub mod bench;
+pub mod capability;
 pub mod cli;
 pub mod compare;
 pub mod config;
 pub mod control;
 pub mod design;
 pub mod guardian;
+pub mod floor;
+pub mod index;
 pub mod measure;
 pub mod pipeline;
 pub mod plan;
@@ -23,6 +26,8 @@ pub mod rng;
 pub mod runner;
 pub mod sim;
 pub mod spice;
+pub mod station;
+pub mod store;
 #[cfg(any(test, feature = "testkit"))]
 pub mod testkit;
 pub mod transport;

@@ -1,7 +1,10 @@
 //! The command line's shape: one clap derive `Cli` with one `Subcommand` enum, and
 //! [`dispatch`], which runs the chosen command and returns its exit code.
 
-use super::{compare, demo, design, history, ports, probe, report, run, sim, size};
+use super::{
+    batch, compare, completions, dashboard, demo, design, history, index, ports, probe, report, run, sim,
+    size, sync,
+};
 use clap::{Parser, Subcommand};
 
 #[derive(Debug, Parser)]
@@ -46,6 +49,18 @@ pub enum Command {
     /// (internal) The guardian process a run starts to make the bench safe if regulus dies.
     #[command(name = "__guardian", hide = true)]
     Guardian,
+    /// Test units one after another at a station: scan a serial, test, certificate, tally.
+    Batch(batch::Args),
+    /// Show or rebuild the records folder's index (the folders stay the source of truth).
+    Index(index::Args),
+    /// Upload finished runs to the shared store (PostgreSQL); queues them while it is away.
+    Sync(sync::Args),
+    /// Write the batch dashboard page (results, yield, control charts, histograms, Cpk).
+    Dashboard(dashboard::Args),
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
+    Completions(completions::Args),
+    /// Print the manual page (roff), or write one per command with --out DIR.
+    Man(completions::ManArgs),
 }
 
 /// Run the chosen command and return its exit code.
@@ -66,5 +81,11 @@ pub fn dispatch(cli: Cli) -> anyhow::Result<u8> {
         Command::Report(a) => report::run(a),
         Command::History(a) => history::run(a),
         Command::Compare(a) => compare::run(a),
+        Command::Batch(a) => batch::run(a),
+        Command::Index(a) => index::run(a),
+        Command::Sync(a) => sync::run(a),
+        Command::Dashboard(a) => dashboard::run(a),
+        Command::Completions(a) => completions::run(a),
+        Command::Man(a) => completions::man(a),
     }
 }

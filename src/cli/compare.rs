@@ -21,11 +21,20 @@ pub struct Args {
     #[arg(long, value_name = "FILE")]
     pub design: PathBuf,
     /// Record folders, unit folders (every record in them) or a records folder (every unit).
-    #[arg(required = true, value_name = "RECORD")]
+    #[arg(required_unless_present_any = ["index", "store"], value_name = "RECORD")]
     pub records: Vec<PathBuf>,
     /// Judge every record given, not only each unit's latest finished run.
     #[arg(long)]
     pub every_record: bool,
+    /// Judge the runs this records folder's index lists (all, or those of --unit).
+    #[arg(long, value_name = "DIR")]
+    pub index: Option<PathBuf>,
+    /// Judge the runs of every station in this store instead (PostgreSQL URL).
+    #[arg(long, value_name = "URL", conflicts_with = "index")]
+    pub store: Option<String>,
+    /// With --index or --store: only this unit's runs.
+    #[arg(long, value_name = "SERIAL")]
+    pub unit: Option<String>,
     /// Outlier limit on |z| across units.
     #[arg(long, default_value_t = compare::DEFAULT_OUTLIER_Z)]
     pub z_limit: f64,
@@ -137,6 +146,17 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     for r in &args.records {
         dirs.extend(expand(r)?);
     }
+    // The index lists local record folders: they are judged from their files, by the same
+    // rule as folders given by hand (the metrics the plan promised included).
+    if let Some(root) = &args.index {
+        for (record, ..) in super::index::indexed_metrics(root, args.unit.as_deref(), &aopts)? {
+            dirs.push(PathBuf::from(record));
+        }
+    }
+    let stored = match &args.store {
+        Some(url) => super::sync::store_metrics(url, args.unit.as_deref(), &aopts)?,
+        None => Vec::new(),
+    };
     let mut ao = aopts.clone();
     ao.nominal_voltage.get_or_insert(exp.vout.nominal);
     let opts = crate::report::ReportOptions {
@@ -157,6 +177,21 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         });
         summaries.push(s);
     }
+    // Runs from the store carry their metrics and outcome, not their files: judged by the one
+    // rule on run.json's outcome and the record's state.
+    let mut stored_judged = Vec::new();
+    for (record, unit, m, outcome, state) in stored {
+        let c = compare::compare(&m, &exp);
+        let verdict = compare::record_verdict(outcome, Some(state), Some(c.verdict));
+        let finished = compare::finished(outcome, Some(state));
+        candidates.push(compare::Candidate {
+            record: record.clone(),
+            unit: unit.clone(),
+            started_utc: String::new(),
+            finished,
+        });
+        stored_judged.push((candidates.len() - 1, unit, m, verdict, c));
+    }
     let selection = if args.every_record {
         Selection::Every
     } else {
@@ -166,7 +201,21 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let mut judged = Vec::new();
     let mut units: Vec<(String, KeyValues)> = Vec::new();
     for &i in &chosen.judged {
-        let s = &summaries[i];
+        let Some(s) = summaries.get(i) else {
+            if let Some((_, unit, m, verdict, c)) = stored_judged.iter().find(|e| e.0 == i) {
+                if candidates[i].finished {
+                    units.push((unit.clone(), KeyValues::from_metrics(m)));
+                }
+                judged.push(Judged {
+                    record: candidates[i].record.clone(),
+                    unit: unit.clone(),
+                    verdict: *verdict,
+                    reasons: vec!["judged from the store's metrics and outcome".to_string()],
+                    comparison: Some(c.clone()),
+                });
+            }
+            continue;
+        };
         // Only units judged on a finished run enter the population statistics.
         if candidates[i].finished {
             units.push((s.unit.clone(), KeyValues::from_metrics(&s.metrics)));

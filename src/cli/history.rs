@@ -15,6 +15,9 @@ pub struct Args {
     /// Records folder.
     #[arg(long, value_name = "DIR", default_value = "records")]
     pub records: PathBuf,
+    /// Read the unit's runs from every station in this store instead (PostgreSQL URL).
+    #[arg(long, value_name = "URL")]
+    pub store: Option<String>,
     /// Print JSON instead of a table.
     #[arg(long, conflicts_with = "csv")]
     pub json: bool,
@@ -43,14 +46,17 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         },
         None => None,
     };
-    if !args.records.join(&args.unit).is_dir() {
+    if args.store.is_none() && !args.records.join(&args.unit).is_dir() {
         return Err(usage(format!(
             "no records for unit '{}' under {} (check --records and the unit serial)",
             args.unit,
             args.records.display()
         )));
     }
-    let h = crate::report::history(&args.records, &args.unit, &aopts)?;
+    let h = match &args.store {
+        Some(url) => super::sync::history_from_store(url, &args.unit)?,
+        None => super::index::history(&args.records, &args.unit, &aopts)?,
+    };
     let mut out = std::io::stdout().lock();
     if args.json {
         crate::report::write_history_json(&mut out, &h)?;

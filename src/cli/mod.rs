@@ -4,11 +4,16 @@
 //! This module only declares and re-exports.
 
 mod app;
+pub mod batch;
 pub mod compare;
+pub mod completions;
+pub mod dashboard;
 pub mod demo;
 pub mod design;
 mod exit;
 pub mod history;
+pub mod index;
+pub mod json_out;
 pub mod options;
 pub mod ports;
 pub mod present;
@@ -17,6 +22,8 @@ pub mod report;
 pub mod run;
 pub mod sim;
 pub mod size;
+pub mod station;
+pub mod sync;
 
 pub use app::{dispatch, Cli, Command};
 pub use exit::{

@@ -16,6 +16,9 @@ pub struct Args {
     /// Probe only this instrument (its name in the bench file).
     #[arg(long, value_name = "NAME")]
     pub instrument: Option<String>,
+    /// Print JSON instead of a table.
+    #[arg(long)]
+    pub json: bool,
 }
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
@@ -28,7 +31,12 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let report = rt.block_on(probe(&cfg, args.instrument.as_deref()))?;
     let stdout = std::io::stdout();
     let mut out = stdout.lock();
-    write_probe_table(&mut out, &report).context("cannot write the probe table")?;
+    if args.json {
+        super::json_out::write_probe_json(&mut out, &report)
+            .context("cannot write the probe JSON")?;
+    } else {
+        write_probe_table(&mut out, &report).context("cannot write the probe table")?;
+    }
     if report.failed() {
         return Err(CodedError::new(
             EXIT_ERROR,

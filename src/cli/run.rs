@@ -16,21 +16,25 @@ use std::path::PathBuf;
 #[derive(Debug, Clone, clap::Args)]
 #[command(after_help = super::exit::exit_codes_help())]
 pub struct Args {
-    /// Bench file (instruments by role).
+    /// Bench file (instruments by role); default: the station file's.
     #[arg(long, value_name = "FILE")]
-    pub bench: PathBuf,
-    /// Design file the unit was built to.
+    pub bench: Option<PathBuf>,
+    /// Design file the unit was built to; default: the station file's.
     #[arg(long, value_name = "FILE")]
-    pub design: PathBuf,
-    /// Test plan file.
+    pub design: Option<PathBuf>,
+    /// Test plan file; default: the station file's.
     #[arg(long, value_name = "FILE")]
-    pub plan: PathBuf,
+    pub plan: Option<PathBuf>,
     /// Unit identifier (serial); names the unit's record folder.
     #[arg(long, value_name = "ID")]
     pub unit: String,
-    /// Records root folder.
-    #[arg(long, value_name = "DIR", default_value = "records")]
-    pub records: PathBuf,
+    /// Records root folder (default: the station file's, else `records`).
+    #[arg(long, value_name = "DIR")]
+    pub records: Option<PathBuf>,
+    /// Station file (also found through REGULUS_STATION or the configuration folder when
+    /// --bench, --design or --plan is left out).
+    #[arg(long, value_name = "FILE")]
+    pub station: Option<PathBuf>,
     /// Who runs the test (stored in the record).
     #[arg(long, value_name = "NAME")]
     pub operator: Option<String>,
@@ -54,11 +58,11 @@ impl Args {
     /// The pipeline's view of these options.
     pub fn request(&self) -> RunRequest {
         RunRequest {
-            bench: self.bench.clone(),
-            design: self.design.clone(),
-            plan: self.plan.clone(),
+            bench: self.bench.clone().unwrap_or_default(),
+            design: self.design.clone().unwrap_or_default(),
+            plan: self.plan.clone().unwrap_or_default(),
             unit: self.unit.clone(),
-            records: self.records.clone(),
+            records: self.records.clone().unwrap_or_else(|| "records".into()),
             operator: self.operator.clone(),
             note: self.note.clone(),
         }
@@ -114,7 +118,16 @@ pub fn confirm_short_circuit(
     }
 }
 
-pub fn run(args: Args) -> anyhow::Result<u8> {
+pub fn run(mut args: Args) -> anyhow::Result<u8> {
+    let station = super::station::for_run(super::station::RunFiles {
+        station: args.station.as_deref(),
+        unit: &args.unit,
+        bench: &mut args.bench,
+        design: &mut args.design,
+        plan: &mut args.plan,
+        records: &mut args.records,
+        operator: &mut args.operator,
+    })?;
     let prep = prepare(&args)?;
     for note in prep.plan.beyond_design_notes() {
         eprintln!("CAUTION: {note}");
@@ -131,7 +144,12 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let (cancel, rt) = present::interruptible_runtime()?;
     rt.block_on(async {
         let mut bench = Bench::open(&prep.bench).await?;
-        execute(&mut bench, &prep, &args, &cancel).await
+        match &station {
+            Some(st) => {
+                super::station::run_unit(&mut bench, &prep, &args.request(), st, &cancel).await
+            }
+            None => execute(&mut bench, &prep, &args, &cancel).await,
+        }
     })
 }
 

@@ -85,6 +85,9 @@ pub struct Args {
     /// Monte Carlo samples for the resulting bands.
     #[arg(long, value_name = "N", default_value_t = 10_000)]
     pub samples: usize,
+    /// Print JSON instead of text (SI units).
+    #[arg(long, conflicts_with = "write")]
+    pub json: bool,
 }
 
 const TEMPLATE: &str = include_str!("../../config/design-template.toml");
@@ -175,6 +178,20 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
 
     let stdout = std::io::stdout();
     let mut w = stdout.lock();
+    if args.json {
+        let asked = super::json_out::SizeAsked {
+            max_current_a: args.current,
+            margin_pct: args.margin,
+            clamp: clamp.as_str(),
+            stage: match stage {
+                Stage::Single => "single",
+                Stage::Darlington => "darlington",
+            },
+            series: args.series.to_string(),
+        };
+        super::json_out::write_size_json(&mut w, &asked, &choice, &e)?;
+        return Ok(super::EXIT_OK);
+    }
     writeln!(
         w,
         "sizing for {} with {} % margin (target limit {}), {}, {} pass stage, {} (+-{} % parts)",

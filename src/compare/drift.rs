@@ -348,25 +348,25 @@ pub fn population_with_floors(
             spec,
             cpk,
         });
-        if xs.len() >= MIN_UNITS_FOR_OUTLIERS {
-            for (i, (unit, x)) in vals.iter().enumerate() {
-                let others: Vec<f64> = xs
-                    .iter()
-                    .enumerate()
-                    .filter(|(j, _)| *j != i)
-                    .map(|(_, v)| *v)
-                    .collect();
-                if let Some((m, s)) = mean_sd(&others) {
-                    if s > 0.0 {
-                        let z = (x - m) / s;
-                        if z.abs() > z_limit && (x - m).abs() > floor {
-                            outliers.push(Outlier {
-                                unit: unit.to_string(),
-                                metric: k,
-                                value: *x,
-                                z,
-                            });
-                        }
+        if xs.len() >= MIN_UNITS_FOR_OUTLIERS && xs.len() > 2 {
+            // Each unit against the others: their mean and sample deviation follow from the
+            // whole set's (leave-one-out update of the mean and the sum of squares), so the
+            // population costs one pass, not one pass per unit.
+            let n = xs.len() as f64;
+            let ss: f64 = xs.iter().map(|v| (v - mean).powi(2)).sum();
+            for (unit, x) in vals.iter() {
+                let d = x - mean;
+                let m = mean - d / (n - 1.0);
+                let s = ((ss - d * d * n / (n - 1.0)).max(0.0) / (n - 2.0)).sqrt();
+                if s > 0.0 {
+                    let z = (x - m) / s;
+                    if z.abs() > z_limit && (x - m).abs() > floor {
+                        outliers.push(Outlier {
+                            unit: unit.to_string(),
+                            metric: k,
+                            value: *x,
+                            z,
+                        });
                     }
                 }
             }

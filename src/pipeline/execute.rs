@@ -15,6 +15,9 @@ use crate::runner::{self, CancelToken, Observer, RunReport, RunSetup};
 pub struct Finished {
     pub report: RunReport,
     pub written: Result<Written, ReportError>,
+    /// Whether the run was added to its records folder's index (a cache: the record is
+    /// complete either way, and `regulus index --rebuild` makes the index again).
+    pub indexed: Result<(), crate::index::IndexError>,
 }
 
 impl Finished {
@@ -74,7 +77,12 @@ pub async fn execute<B: BenchControl, O: Observer>(
         }
     };
     let written = write_derived(&report, prep);
-    Ok(Finished { report, written })
+    let indexed = crate::index::run_finished(&report.dir);
+    Ok(Finished {
+        report,
+        written,
+        indexed,
+    })
 }
 
 /// Write summary.json, plots (SVG and PNG) and report.html for a finished run, with drift

@@ -40,6 +40,9 @@ pub struct History {
     pub drift: Vec<DriftFlag>,
     /// Record folders that could not be read, with the reason.
     pub unreadable: Vec<String>,
+    /// The plan each record ran, by record folder name (when known).
+    #[serde(skip_serializing_if = "std::collections::BTreeMap::is_empty")]
+    pub plans: std::collections::BTreeMap<String, String>,
 }
 
 /// Build the history from entries (pure): sorts by start time and computes drift flags.
@@ -55,6 +58,7 @@ pub fn history_from_entries(unit: &str, mut entries: Vec<HistoryEntry>) -> Histo
         entries,
         drift,
         unreadable: Vec::new(),
+        plans: Default::default(),
     }
 }
 
@@ -66,6 +70,7 @@ pub fn history(records: &Path, unit: &str, opts: &AnalysisOptions) -> Result<His
     let runs = record::list_runs(records, unit)?;
     let mut entries = Vec::with_capacity(runs.len());
     let mut unreadable = Vec::new();
+    let mut plans = std::collections::BTreeMap::new();
     for run in runs {
         let name = run
             .dir
@@ -74,6 +79,7 @@ pub fn history(records: &Path, unit: &str, opts: &AnalysisOptions) -> Result<His
             .unwrap_or_default();
         let result = match run.info {
             Ok(info) => entry_from_dir(&run.dir, &name, &info, opts).map(|mut e| {
+                plans.insert(name.clone(), info.plan_name.clone());
                 if run.state == Some(RecordState::Incomplete) {
                     e.outcome = "incomplete".to_string();
                 }
@@ -88,6 +94,7 @@ pub fn history(records: &Path, unit: &str, opts: &AnalysisOptions) -> Result<His
     }
     let mut h = history_from_entries(unit, entries);
     h.unreadable = unreadable;
+    h.plans = plans;
     Ok(h)
 }
 
@@ -187,8 +194,8 @@ pub fn write_history_table<W: Write>(mut w: W, h: &History) -> std::io::Result<(
     writeln!(w, "unit {}: {} record(s)", h.unit, h.entries.len())?;
     writeln!(
         w,
-        "{:<20} {:<10} {:<9} {:>10} {:>9} {:>10} {:>10} {:>8}  drift",
-        "started (UTC)", "outcome", "verdict", "V out", "reg %", "I limit", "I sc", "sc %"
+        "{:<20} {:<14} {:<10} {:<9} {:>10} {:>9} {:>10} {:>10} {:>8}  drift",
+        "started (UTC)", "plan", "outcome", "verdict", "V out", "reg %", "I limit", "I sc", "sc %"
     )?;
     for e in &h.entries {
         let g = |k| e.values.get(k);
@@ -198,8 +205,9 @@ pub fn write_history_table<W: Write>(mut w: W, h: &History) -> std::io::Result<(
         };
         writeln!(
             w,
-            "{:<20} {:<10} {:<9} {:>10} {:>9} {:>10} {:>10} {:>8}  {}",
+            "{:<20} {:<14} {:<10} {:<9} {:>10} {:>9} {:>10} {:>10} {:>8}  {}",
             e.started_utc.chars().take(19).collect::<String>(),
+            h.plans.get(&e.record).map(String::as_str).unwrap_or("-"),
             e.outcome,
             e.verdict.map(|v| v.as_str()).unwrap_or("-"),
             eng(g(compare::KeyMetric::OutputVoltage), "V"),

@@ -7,6 +7,7 @@ use super::Summary;
 use crate::compare::Verdict;
 use crate::quantity::eng;
 use crate::record::RunInfo;
+use crate::station::FloorResult;
 use std::io::Write;
 
 /// Escape text for HTML element content and attribute values.
@@ -35,6 +36,51 @@ th{background:#eee}td.num{text-align:right;font-variant-numeric:tabular-nums}\
 .caution{border:2px solid #444;padding:8px 12px;background:#f7f7f7}\
 figure{margin:12px 0}figcaption{font-size:.9em;color:#333}svg{max-width:100%;height:auto}";
 
+/// Shared by the certificate and the report: the large verdict banner and its colours.
+pub const BANNER_STYLE: &str =
+    ".banner{border:6px solid #111;padding:10px 18px;margin:10px 0 16px;\
+display:flex;justify-content:space-between;align-items:center}\
+.banner .word{font-size:64px;font-weight:900;letter-spacing:6px;line-height:1}\
+.banner .what{font-size:15px;text-align:right}\
+.r-pass{background:#dff0d8}.r-marginal{background:#fcf3cf}.r-fail{background:#f2d7d5}\
+.r-incomplete{background:#e5e5e5}.r-error{background:#e5e5e5}\
+@media print{.banner{-webkit-print-color-adjust:exact;print-color-adjust:exact}}";
+
+/// The verdict banner as an HTML fragment: the word, large, and what it is about.
+pub fn banner_html(result: FloorResult, unit: &str, detail: &str) -> String {
+    format!(
+        "<div class=\"banner r-{}\" id=\"verdict-banner\"><span class=\"word\">{}</span>\
+<span class=\"what\">unit <b>{}</b><br>{}</span></div>",
+        result.as_str(),
+        result.word(),
+        escape(unit),
+        escape(detail)
+    )
+}
+
+/// Printing: A4, smaller type, the plots two to a row and nothing split across pages, so a
+/// report prints on two pages or so instead of five.
+const PRINT_STYLE: &str = "@page{size:A4;margin:12mm}@media print{body{margin:0;max-width:none;\
+font-size:10px}h2{margin-top:10px;font-size:12px}td,th{padding:2px 5px}\
+figure{display:inline-block;width:48%;margin:4px 0;vertical-align:top;page-break-inside:avoid}\
+table,.caution,ul{page-break-inside:avoid}.caution{padding:4px 8px}\
+th,td[class^=v-]{-webkit-print-color-adjust:exact;print-color-adjust:exact}}";
+
+/// The floor result a summary stands for, through the one mapping in `crate::floor`.
+fn floor_result_of(s: &Summary) -> FloorResult {
+    use crate::record::RecordState;
+    let state = match s.record_state.as_str() {
+        "running" => RecordState::Running,
+        "incomplete" => RecordState::Incomplete,
+        _ => RecordState::Finished(s.outcome),
+    };
+    crate::floor::floor_result(
+        s.outcome,
+        Some(state),
+        s.comparison.as_ref().map(|c| c.verdict),
+    )
+}
+
 fn verdict_cell(v: Verdict) -> String {
     let word = v.label();
     format!("<td class=\"v-{}\">{word}</td>", v.as_str())
@@ -59,9 +105,10 @@ pub fn write_html<W: Write>(
     )?;
     writeln!(
         w,
-        "<title>regulus report: unit {} / {}</title><style>{STYLE}</style></head><body>",
+        "<title>regulus report: unit {} / {}</title><style>{STYLE}{PRINT_STYLE}{}</style></head><body>",
         e(&info.unit),
-        e(&info.plan_name)
+        e(&info.plan_name),
+        BANNER_STYLE
     )?;
     let mut overall = match s.verdict {
         Some(v) => format!(
@@ -81,9 +128,14 @@ pub fn write_html<W: Write>(
     }
     writeln!(
         w,
-        "<h1>Unit {} &mdash; plan {}</h1>\n{overall}",
+        "<h1>Unit {} &mdash; plan {}</h1>\n{}\n{overall}",
         e(&info.unit),
-        e(&info.plan_name)
+        e(&info.plan_name),
+        banner_html(
+            floor_result_of(s),
+            &info.unit,
+            &format!("design {}", info.design.name)
+        )
     )?;
     match s.record_state.as_str() {
         "incomplete" => writeln!(

@@ -6,9 +6,12 @@
 //! [`history`].
 //! This file only declares and re-exports.
 
+pub mod certificate;
+pub mod dashboard;
 pub mod font;
 mod history;
 pub mod html;
+pub mod pdf;
 pub mod plots;
 mod summary;
 

@@ -38,6 +38,44 @@ const EXPECTED: RGBColor = RGBColor(30, 80, 160);
 const KNEE_A: RGBColor = RGBColor(190, 30, 30);
 const KNEE_B: RGBColor = RGBColor(20, 120, 40);
 const BAND: RGBColor = RGBColor(150, 150, 150);
+const KNEE_SEARCH: RGBColor = RGBColor(200, 110, 0);
+
+/// The V-I points the adaptive knee search took, to draw them apart from the sweep's.
+pub fn knee_search_points(rows: &[crate::record::Row]) -> Vec<CurvePoint> {
+    use crate::measure::Quantity;
+    rows.iter()
+        .filter(|r| r.step_kind == crate::record::StepKind::KneeSearch && !r.load_mode.is_off())
+        .filter_map(|r| {
+            let v = r.value(Quantity::OutputVoltage)?;
+            let i = r.value(Quantity::OutputCurrent)?;
+            (v.is_finite() && i.is_finite()).then_some(CurvePoint {
+                current: i,
+                voltage: v,
+            })
+        })
+        .collect()
+}
+
+/// The charts with the knee search's points set on the V-I chart.
+pub fn with_knee_search<'a>(charts: Vec<Chart<'a>>, points: &'a [CurvePoint]) -> Vec<Chart<'a>> {
+    charts
+        .into_iter()
+        .map(|c| match c {
+            Chart::VoltageCurrent {
+                curve,
+                metrics,
+                expectation,
+                ..
+            } => Chart::VoltageCurrent {
+                curve,
+                metrics,
+                expectation,
+                knee_search: points,
+            },
+            other => other,
+        })
+        .collect()
+}
 
 /// Something that can be drawn.
 #[derive(Debug, Clone)]
@@ -47,6 +85,8 @@ pub enum Chart<'a> {
         curve: &'a [CurvePoint],
         metrics: &'a Metrics,
         expectation: Option<&'a DesignExpectation>,
+        /// The points the adaptive knee search took (drawn apart from the sweep's).
+        knee_search: &'a [CurvePoint],
     },
     /// Output voltage change from no load against load current, with the fitted line.
     Regulation {
@@ -57,6 +97,8 @@ pub enum Chart<'a> {
     ShortCircuit {
         series: &'a [(f64, f64)],
         fit: Option<ExpFit>,
+        /// The design's worst-case short-circuit current (lowest, highest), when known.
+        band: Option<(f64, f64)>,
     },
     /// A unit's key metrics over dates, as a change from its first record.
     History {
@@ -139,9 +181,12 @@ impl Chart<'_> {
                 curve,
                 metrics,
                 expectation,
-            } => draw_vi(root, curve, metrics, *expectation),
+                knee_search,
+            } => draw_vi(root, curve, metrics, *expectation, knee_search),
             Chart::Regulation { curve, metrics } => draw_regulation(root, curve, metrics),
-            Chart::ShortCircuit { series, fit } => draw_short_circuit(root, series, *fit),
+            Chart::ShortCircuit { series, fit, band } => {
+                draw_short_circuit(root, series, *fit, *band)
+            }
             Chart::History { unit, entries } => draw_history(root, unit, entries),
             Chart::Histogram {
                 metric,
@@ -206,6 +251,7 @@ fn draw_vi<DB: DrawingBackend>(
     curve: &[CurvePoint],
     metrics: &Metrics,
     exp: Option<&DesignExpectation>,
+    knee_search: &[CurvePoint],
 ) -> DrawResult {
     let mut imax = range_of(curve.iter().map(|p| p.current))
         .map(|r| r.1)
@@ -232,8 +278,9 @@ fn draw_vi<DB: DrawingBackend>(
         }
     }
     let imax = if imax > 0.0 { imax * 1.1 } else { 1.0 };
-    // Head room above the curve for the legend.
-    let vmax = if vmax > 0.0 { vmax * 1.5 } else { 1.0 };
+    // Fitted to the design: a little above its highest worst-case output (the legend sits in
+    // the empty lower left, below the regulation line, not in head room above it).
+    let vmax = if vmax > 0.0 { vmax * 1.08 } else { 1.0 };
     let (xr, yr) = ((0.0, imax), (0.0, vmax));
     let keep = |p: &(f64, f64)| inside(*p, xr, yr);
     let mut chart = ChartBuilder::on(root)
@@ -279,6 +326,31 @@ fn draw_vi<DB: DrawingBackend>(
             .map_err(s)?
             .label("design worst-case band")
             .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], fill));
+        // The Monte Carlo band (where most built units fall) inside the worst-case band.
+        let mc_fill = EXPECTED.mix(0.22).filled();
+        let (vm, im) = (e.vout.monte_carlo, e.limit_current.monte_carlo);
+        if [vm.p_low, vm.p_high, im.p_low, im.p_high]
+            .iter()
+            .all(|v| sane(*v))
+        {
+            let clip = |(i, v): (f64, f64)| (i.clamp(xr.0, xr.1), v.clamp(yr.0, yr.1));
+            chart
+                .draw_series([
+                    Rectangle::new(
+                        [clip((0.0, vm.p_low)), clip((im.p_low, vm.p_high))],
+                        mc_fill,
+                    )
+                    .into_dyn(),
+                    Rectangle::new(
+                        [clip((im.p_low, 0.0)), clip((im.p_high, vm.p_high))],
+                        mc_fill,
+                    )
+                    .into_dyn(),
+                ])
+                .map_err(s)?
+                .label("design Monte Carlo band")
+                .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], mc_fill));
+        }
         let pts = if e.curve.len() >= 2 {
             e.curve.clone()
         } else {
@@ -296,11 +368,13 @@ fn draw_vi<DB: DrawingBackend>(
                 DashedPathElement::new(vec![(x, y), (x + 18, y)], 5, 3, EXPECTED.stroke_width(2))
             });
     }
+    let searched = |p: &CurvePoint| knee_search.iter().any(|k| k == p);
+    let swept: Vec<&CurvePoint> = curve.iter().filter(|p| !searched(p)).collect();
     chart
         .draw_series(
-            curve
+            swept
                 .iter()
-                .step_by(stride(curve.len()))
+                .step_by(stride(swept.len()))
                 .map(|p| (p.current, p.voltage))
                 .filter(keep)
                 .map(|p| Circle::new(p, 3, MEASURED.stroke_width(1))),
@@ -308,6 +382,19 @@ fn draw_vi<DB: DrawingBackend>(
         .map_err(s)?
         .label("measured (circles)")
         .legend(|(x, y)| Circle::new((x + 9, y), 3, MEASURED.stroke_width(1)));
+    if !knee_search.is_empty() {
+        chart
+            .draw_series(
+                knee_search
+                    .iter()
+                    .map(|p| (p.current, p.voltage))
+                    .filter(keep)
+                    .map(|p| Cross::new(p, 4, KNEE_SEARCH.stroke_width(2))),
+            )
+            .map_err(s)?
+            .label("knee search points (crosses)")
+            .legend(|(x, y)| Cross::new((x + 9, y), 4, KNEE_SEARCH.stroke_width(2)));
+    }
     if let Some(k) = &metrics.knee {
         if let Some(p) = k.fixed_drop.filter(|p| keep(&(p.current, p.voltage))) {
             chart
@@ -343,7 +430,7 @@ fn draw_vi<DB: DrawingBackend>(
                 });
         }
     }
-    legend(&mut chart, SeriesLabelPosition::UpperRight)
+    legend(&mut chart, SeriesLabelPosition::LowerLeft)
 }
 
 fn draw_regulation<DB: DrawingBackend>(
@@ -436,15 +523,19 @@ fn draw_short_circuit<DB: DrawingBackend>(
     root: &DrawingArea<DB, Shift>,
     series: &[(f64, f64)],
     fit: Option<ExpFit>,
+    band: Option<(f64, f64)>,
 ) -> DrawResult {
     let xr = pad(
         range_of(series.iter().map(|p| p.0)).unwrap_or((0.0, 1.0)),
         0.03,
     );
-    let yr = pad(
-        range_of(series.iter().map(|p| p.1)).unwrap_or((0.0, 1.0)),
-        0.2,
-    );
+    // From zero: a drift of a few percent over the dwell must look like a few percent.
+    let band = band.filter(|(lo, hi)| sane(*lo) && sane(*hi) && lo <= hi);
+    let top = range_of(series.iter().map(|p| p.1).chain(band.map(|b| b.1)))
+        .map(|(_, hi)| hi.max(0.0))
+        .filter(|hi| *hi > 0.0)
+        .unwrap_or(1.0);
+    let yr = (0.0, top * 1.15);
     let mut chart = ChartBuilder::on(root)
         .caption("Short-circuit current over the dwell", (FONT, 22))
         .margin(12)
@@ -460,6 +551,17 @@ fn draw_short_circuit<DB: DrawingBackend>(
         .axis_desc_style((FONT, 16))
         .draw()
         .map_err(s)?;
+    if let Some((lo, hi)) = band {
+        let fill = BAND.mix(0.35).filled();
+        chart
+            .draw_series([Rectangle::new(
+                [(xr.0, lo.max(yr.0)), (xr.1, hi.min(yr.1))],
+                fill,
+            )])
+            .map_err(s)?
+            .label("design worst-case band")
+            .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], fill));
+    }
     chart
         .draw_series(
             series
@@ -509,11 +611,22 @@ fn draw_history<DB: DrawingBackend>(
         .first()
         .map(|e| e.started_utc.as_str())
         .unwrap_or("");
-    let xs: Vec<f64> = entries
+    let days: Vec<f64> = entries
         .iter()
         .enumerate()
         .map(|(i, e)| days_since(first, &e.started_utc).unwrap_or(i as f64))
         .collect();
+    // The axis unit follows the span (days, hours or minutes), and the axis is at least two
+    // units wide, so one record or two close together read sensibly.
+    let span = range_of(days.iter().copied()).map_or(0.0, |(lo, hi)| hi - lo);
+    let (per_day, unit_word) = if span >= 2.0 {
+        (1.0, "Days")
+    } else if span * 24.0 >= 2.0 {
+        (24.0, "Hours")
+    } else {
+        (1440.0, "Minutes")
+    };
+    let xs: Vec<f64> = days.iter().map(|d| d * per_day).collect();
     let tracked = [
         (KeyMetric::OutputVoltage, MEASURED, 0usize),
         (KeyMetric::LimitCurrent, KNEE_A, 1),
@@ -533,7 +646,14 @@ fn draw_history<DB: DrawingBackend>(
             .collect();
         series.push((k, c, m, pts));
     }
-    let xr = pad(range_of(xs.iter().copied()).unwrap_or((0.0, 1.0)), 0.05);
+    let (lo, hi) = range_of(xs.iter().copied()).unwrap_or((0.0, 1.0));
+    let (lo, hi) = if hi - lo < 2.0 {
+        let c = (lo + hi) / 2.0;
+        (c - 1.0, c + 1.0)
+    } else {
+        (lo, hi)
+    };
+    let xr = pad((lo, hi), 0.05);
     let yr = pad(
         range_of(
             series
@@ -553,7 +673,7 @@ fn draw_history<DB: DrawingBackend>(
         .map_err(s)?;
     chart
         .configure_mesh()
-        .x_desc("Days since the first record")
+        .x_desc(format!("{unit_word} since the first record"))
         .y_desc("Change from the first record (%)")
         .label_style((FONT, 14))
         .axis_desc_style((FONT, 16))

@@ -401,7 +401,8 @@ pub fn write_derived_files(
 
     let curve = analysis::curve_points(&rec.rows);
     let dwell = analysis::dwell_series(&rec.rows);
-    let charts = charts_for(&curve, &dwell, &summary.metrics, exp);
+    let knee = plots::knee_search_points(&rec.rows);
+    let charts = plots::with_knee_search(charts_for(&curve, &dwell, &summary.metrics, exp), &knee);
     let plots_dir = dir.join("plots");
     std::fs::create_dir_all(&plots_dir).map_err(|source| ReportError::Write {
         path: plots_dir.clone(),
@@ -460,6 +461,7 @@ pub fn charts_for<'a>(
             curve,
             metrics,
             expectation: exp,
+            knee_search: &[],
         });
         v.push(plots::Chart::Regulation { curve, metrics });
     }
@@ -467,6 +469,9 @@ pub fn charts_for<'a>(
         v.push(plots::Chart::ShortCircuit {
             series: dwell,
             fit: metrics.short_circuit.and_then(|s| s.time_constant),
+            band: exp
+                .and_then(|e| e.short_circuit_current)
+                .map(|b| (b.worst_case.min, b.worst_case.max)),
         });
     }
     v

@@ -7,6 +7,7 @@
 mod cli;
 mod design;
 mod e2e;
+mod floor;
 mod link;
 mod lockstep;
 mod modbus;
@@ -14,4 +15,5 @@ mod report;
 mod runner;
 mod sim;
 mod spice;
+mod store;
 mod support;

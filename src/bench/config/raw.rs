@@ -52,6 +52,10 @@ pub(super) struct RawInstrument {
     pub arm_limits: Option<Spanned<Vec<String>>>,
     pub disarm_limits: Option<Spanned<Vec<String>>>,
     pub traffic_log: Option<PathBuf>,
+    /// Date the instrument's calibration falls due (a TOML date); the bench does not use it,
+    /// certificates read it from the record's bench snapshot.
+    #[allow(dead_code)]
+    pub calibration_due: Option<toml::value::Datetime>,
     pub commands: Option<RawCommands>,
     pub role_queries: Option<BTreeMap<Role, Spanned<String>>>,
     pub reply: Option<RawReply>,

@@ -78,11 +78,12 @@ fn search(design_name: &str, seed: u64, fault: Option<&str>) -> Found {
     let plan_path = dir.path().join("plan.toml");
     std::fs::write(&plan_path, PLAN).unwrap();
     let args = Args {
-        bench: bench_path.clone(),
-        design: sample(design_name).into(),
-        plan: plan_path,
+        bench: Some(bench_path.clone()),
+        design: Some(sample(design_name).into()),
+        plan: Some(plan_path),
         unit: format!("KNEE-{seed}"),
-        records: dir.path().join("records"),
+        records: Some(dir.path().join("records")),
+        station: None,
         operator: None,
         note: None,
         yes: true,
@@ -99,7 +100,7 @@ fn search(design_name: &str, seed: u64, fault: Option<&str>) -> Found {
     let report = rt.block_on(async {
         let mut bench = Bench::open(&cfg).await.unwrap();
         let setup = RunSetup {
-            records: &args.records,
+            records: args.records.as_deref().unwrap(),
             unit: args.unit.clone(),
             operator: None,
             note: None,

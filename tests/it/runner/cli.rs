@@ -12,11 +12,12 @@ fn args(tmp: &std::path::Path, plan: &str) -> Args {
     let plan_path = tmp.join("plan.toml");
     std::fs::write(&plan_path, plan).unwrap();
     Args {
-        bench: PathBuf::from("config/bench-loopback-example.toml"),
-        design: PathBuf::from("samples/fixed-12v-3a-foldback.toml"),
-        plan: plan_path,
+        bench: Some(PathBuf::from("config/bench-loopback-example.toml")),
+        design: Some(PathBuf::from("samples/fixed-12v-3a-foldback.toml")),
+        plan: Some(plan_path),
         unit: "FX-0001".into(),
-        records: tmp.join("records"),
+        records: Some(tmp.join("records")),
+        station: None,
         operator: Some("line 3".into()),
         note: Some("first article".into()),
         yes: true,
@@ -49,7 +50,7 @@ async fn execute_completes_with_exit_0_and_a_full_record() {
         .await
         .expect("runs");
     assert_eq!(code, 0);
-    let runs = list_runs(&a.records, "FX-0001").unwrap();
+    let runs = list_runs(a.records.as_deref().unwrap(), "FX-0001").unwrap();
     assert_eq!(runs.len(), 1);
     let rec = read_run(&runs[0].dir).unwrap();
     assert_eq!(rec.state, RecordState::Finished(Outcome::Completed));

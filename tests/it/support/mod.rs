@@ -3,8 +3,10 @@
 //! declares them.
 
 pub mod e2e;
+pub mod floor;
 pub mod link;
 pub mod lock;
+pub mod pg;
 pub mod report;
 pub mod sim;
 pub mod spice_designs;

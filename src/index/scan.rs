@@ -1,0 +1,117 @@
+//! Reading one record folder into an index row: run.json, the record's state, the station
+//! stamp and, when present, summary.json (metrics and verdict, derived from the readings).
+//! Reads only.
+
+use super::types::{IndexError, IndexedRun};
+use crate::analysis::Metrics;
+use crate::compare::{KeyValues, Verdict};
+use crate::floor::floor_result;
+use crate::record::{self, Outcome, RecordState};
+use crate::station::read_station_stamp;
+use serde::Deserialize;
+use std::path::Path;
+
+#[derive(Deserialize)]
+struct SummaryPart {
+    metrics: Metrics,
+    verdict: Option<Verdict>,
+    #[serde(default)]
+    comparison: Option<ComparisonPart>,
+}
+
+#[derive(Deserialize)]
+struct ComparisonPart {
+    verdict: Verdict,
+}
+
+pub(super) fn mtime_ns(path: &Path) -> i64 {
+    std::fs::metadata(path)
+        .and_then(|m| m.modified())
+        .ok()
+        .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
+        .map(|d| d.as_nanos() as i64)
+        .unwrap_or(0)
+}
+
+/// Read a record folder `<root>/<unit>/<folder>` into an index row.
+pub(super) fn scan_record(dir: &Path) -> Result<IndexedRun, IndexError> {
+    let info = record::read_info(dir).map_err(|e| IndexError::Record(Box::new(e)))?;
+    let state = record::record_state(dir, &info);
+    let folder = dir
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .ok_or_else(|| IndexError::NotARecord(dir.to_path_buf()))?;
+    let summary: Option<SummaryPart> = std::fs::read_to_string(dir.join("summary.json"))
+        .ok()
+        .and_then(|t| serde_json::from_str(&t).ok());
+    let (values, metrics_json, comparison) = match &summary {
+        Some(s) => (
+            KeyValues::from_metrics(&s.metrics),
+            serde_json::to_string(&s.metrics).ok(),
+            s.comparison.as_ref().map(|c| c.verdict),
+        ),
+        // No summary (its derived files were never written): analyse the readings with the
+        // default settings, as the folder history does.
+        None => match record::read_rows(&dir.join(record::READINGS_FILE)) {
+            Ok(rows) => {
+                let m =
+                    crate::analysis::analyse(&rows, &crate::analysis::AnalysisOptions::default());
+                (
+                    KeyValues::from_metrics(&m),
+                    serde_json::to_string(&m).ok(),
+                    None,
+                )
+            }
+            Err(_) => (KeyValues(Vec::new()), None, None),
+        },
+    };
+    // The verdict as the summary judged it (summary.json applies the same finished rule);
+    // without a summary, only what run.json alone decides.
+    let verdict = match &summary {
+        Some(s) => s.verdict,
+        None => crate::compare::record_verdict(info.outcome, None, None),
+    };
+    let result = floor_result(info.outcome, Some(state), comparison.or(verdict));
+    let stamp = read_station_stamp(dir);
+    let state_word = match state {
+        RecordState::Finished(_) => "finished",
+        RecordState::Running => "running",
+        RecordState::Incomplete => "incomplete",
+    };
+    let mut outcome = outcome_word(info.outcome).to_string();
+    if state == RecordState::Incomplete {
+        outcome = "incomplete".into();
+    }
+    Ok(IndexedRun {
+        unit: info.unit.clone(),
+        folder,
+        station: stamp.as_ref().map(|s| s.station.clone()),
+        operator: info
+            .operator
+            .clone()
+            .or_else(|| stamp.and_then(|s| s.operator)),
+        design_name: info.design.name.clone(),
+        design_sha256: info.design.sha256.clone(),
+        plan_name: info.plan_name.clone(),
+        started_utc: info.started_utc.clone(),
+        ended_utc: info.ended_utc.clone(),
+        outcome,
+        state: state_word.to_string(),
+        verdict,
+        result,
+        rows: info.rows as i64,
+        values,
+        metrics_json,
+        run_mtime: mtime_ns(&dir.join(record::RUN_FILE)),
+        summary_mtime: mtime_ns(&dir.join("summary.json")),
+    })
+}
+
+fn outcome_word(o: Outcome) -> &'static str {
+    match o {
+        Outcome::Running => "running",
+        Outcome::Completed => "completed",
+        Outcome::Aborted => "aborted",
+        Outcome::Failed => "failed",
+    }
+}

@@ -1,0 +1,161 @@
+//! Reading runs back from the store across stations: a unit's runs for its history, or a
+//! design's runs for the dashboard and compare, with their key metrics.
+
+use super::error::{sql, StoreError};
+use crate::compare::{HistoryEntry, KeyMetric, KeyValues, Verdict};
+use crate::station::FloorResult;
+use tokio_postgres::Client;
+
+/// One run as the store holds it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StoreRun {
+    pub run_id: String,
+    pub station: String,
+    pub unit: String,
+    pub folder: String,
+    pub plan_name: String,
+    pub design_name: String,
+    pub design_sha256: String,
+    /// RFC 3339 UTC with milliseconds.
+    pub started_utc: String,
+    pub outcome: String,
+    pub record_state: String,
+    pub verdict: Option<Verdict>,
+    pub result: FloorResult,
+    pub readings: i64,
+    pub values: KeyValues,
+}
+
+impl StoreRun {
+    pub fn history_entry(&self) -> HistoryEntry {
+        let outcome = if self.record_state == "incomplete" {
+            "incomplete".to_string()
+        } else {
+            self.outcome.clone()
+        };
+        HistoryEntry {
+            record: self.folder.clone(),
+            started_utc: self.started_utc.clone(),
+            outcome,
+            verdict: self.verdict,
+            values: self.values.clone(),
+        }
+    }
+}
+
+/// Runs of a unit (`unit`) and/or a design (`design`: name or content hash), oldest first.
+pub async fn store_runs(
+    client: &Client,
+    unit: Option<&str>,
+    design: Option<&str>,
+) -> Result<Vec<StoreRun>, StoreError> {
+    let mut metric_cols = String::new();
+    for k in KeyMetric::ALL {
+        metric_cols.push_str(&format!(
+            ", (SELECT value FROM metric m WHERE m.run_id = r.run_id AND m.name = '{}')",
+            k.as_str()
+        ));
+    }
+    let q = format!(
+        "SELECT r.run_id, r.station_id, r.unit_serial, r.folder, r.plan_name, d.name, \
+         r.design_sha256, to_char(r.started_utc AT TIME ZONE 'UTC', \
+         'YYYY-MM-DD\"T\"HH24:MI:SS.MS\"Z\"'), r.outcome, r.record_state, r.verdict, r.result, \
+         (SELECT count(*) FROM reading g WHERE g.run_id = r.run_id){metric_cols} \
+         FROM run r JOIN design d ON d.sha256 = r.design_sha256 \
+         WHERE ($1::text IS NULL OR r.unit_serial = $1) \
+         AND ($2::text IS NULL OR d.name = $2 OR d.sha256 = $2) \
+         ORDER BY r.started_utc, r.run_id"
+    );
+    let rows = client
+        .query(&q, &[&unit, &design])
+        .await
+        .map_err(sql("read runs"))?;
+    Ok(rows
+        .iter()
+        .map(|r| {
+            let verdict: Option<String> = r.get(10);
+            let result: String = r.get(11);
+            let values = KeyMetric::ALL
+                .iter()
+                .enumerate()
+                .map(|(i, k)| (*k, r.get::<_, Option<f64>>(13 + i)))
+                .collect();
+            StoreRun {
+                run_id: r.get(0),
+                station: r.get(1),
+                unit: r.get(2),
+                folder: r.get(3),
+                plan_name: r.get(4),
+                design_name: r.get(5),
+                design_sha256: r.get(6),
+                started_utc: r.get(7),
+                outcome: r.get(8),
+                record_state: r.get(9),
+                verdict: verdict.as_deref().and_then(|v| {
+                    [Verdict::Pass, Verdict::Marginal, Verdict::Fail]
+                        .into_iter()
+                        .find(|x| x.as_str() == v)
+                }),
+                result: FloorResult::parse(&result).unwrap_or(FloorResult::Incomplete),
+                readings: r.get(12),
+                values: KeyValues(values),
+            }
+        })
+        .collect())
+}
+
+/// The design file's bytes the store keeps for a content hash.
+pub async fn design_content(client: &Client, sha256: &str) -> Result<Option<Vec<u8>>, StoreError> {
+    let row = client
+        .query_opt("SELECT content FROM design WHERE sha256 = $1", &[&sha256])
+        .await
+        .map_err(sql("read a design"))?;
+    Ok(row.and_then(|r| r.get::<_, Option<Vec<u8>>>(0)))
+}
+
+/// One run's metrics from the store, for judging against a design: run id, unit, outcome,
+/// record state and the metrics of its summary.
+pub type StoreMetrics = (
+    String,
+    String,
+    crate::record::Outcome,
+    crate::record::RecordState,
+    crate::analysis::Metrics,
+);
+
+/// The metrics of every run (or one unit's) that the store holds a summary for, oldest first.
+pub async fn store_metrics(
+    client: &Client,
+    unit: Option<&str>,
+) -> Result<Vec<StoreMetrics>, StoreError> {
+    use crate::record::{Outcome, RecordState};
+    let rows = client
+        .query(
+            "SELECT r.run_id, r.unit_serial, r.outcome, r.record_state, a.content \
+             FROM run r JOIN artifact a ON a.run_id = r.run_id AND a.name = 'summary.json' \
+             WHERE ($1::text IS NULL OR r.unit_serial = $1) ORDER BY r.started_utc, r.run_id",
+            &[&unit],
+        )
+        .await
+        .map_err(sql("read run summaries"))?;
+    Ok(rows
+        .iter()
+        .filter_map(|r| {
+            let content: Vec<u8> = r.get(4);
+            let v: serde_json::Value = serde_json::from_slice(&content).ok()?;
+            let metrics = serde_json::from_value(v.get("metrics")?.clone()).ok()?;
+            let outcome = match r.get::<_, String>(2).as_str() {
+                "completed" => Outcome::Completed,
+                "aborted" => Outcome::Aborted,
+                "failed" => Outcome::Failed,
+                _ => Outcome::Running,
+            };
+            let state = match r.get::<_, String>(3).as_str() {
+                "finished" => RecordState::Finished(outcome),
+                "running" => RecordState::Running,
+                _ => RecordState::Incomplete,
+            };
+            Some((r.get(0), r.get(1), outcome, state, metrics))
+        })
+        .collect())
+}
