@@ -9,27 +9,27 @@ use crate::compare::{self, Verdict};
 use crate::record::{Outcome, RecordState};
 use crate::station::FloorResult;
 
-/// The floor result of a record. `verdict` is the comparison's verdict against the design
-/// (`None` when there was no design to judge against).
+/// The floor result of an overall verdict decided by the one rule (`compare::judge`, as
+/// summary.json holds it): the five outcomes map one to one; no verdict at all (nothing was
+/// judged) is INCOMPLETE, never PASS.
+pub fn from_verdict(verdict: Option<Verdict>) -> FloorResult {
+    match verdict {
+        Some(Verdict::Pass) => FloorResult::Pass,
+        Some(Verdict::Marginal) => FloorResult::Marginal,
+        Some(Verdict::Fail) => FloorResult::Fail,
+        Some(Verdict::Incomplete) | None => FloorResult::Incomplete,
+        Some(Verdict::Error) => FloorResult::Error,
+    }
+}
+
+/// The floor result of a record known only by run.json's outcome, its state and a
+/// comparison's verdict (no summary): through `compare::record_verdict`, the same rule.
 pub fn floor_result(
     outcome: Outcome,
     state: Option<RecordState>,
     verdict: Option<Verdict>,
 ) -> FloorResult {
-    match outcome {
-        // The record could not be written: the station failed, not the unit.
-        Outcome::Failed => FloorResult::Error,
-        // Interlock, operator interrupt, instrument failure: the test did not finish.
-        Outcome::Aborted | Outcome::Running => FloorResult::Incomplete,
-        Outcome::Completed if !compare::finished(outcome, state) => FloorResult::Incomplete,
-        Outcome::Completed => match compare::record_verdict(outcome, state, verdict) {
-            Some(Verdict::Pass) => FloorResult::Pass,
-            Some(Verdict::Marginal) => FloorResult::Marginal,
-            Some(Verdict::Fail) => FloorResult::Fail,
-            // Measured but judged against nothing: it cannot read PASS.
-            None => FloorResult::Incomplete,
-        },
-    }
+    from_verdict(compare::record_verdict(outcome, state, verdict))
 }
 
 #[cfg(test)]

@@ -121,10 +121,7 @@ pub async fn test_unit<B: BenchControl>(
             dir.display()
         )?;
     }
-    let summary = finished.written.as_ref().ok().map(|w| &w.summary);
-    let comparison = summary.and_then(|s| s.comparison.as_ref().map(|c| c.verdict));
-    let state = (report.finish_error.is_none()).then_some(RecordState::Finished(report.outcome));
-    let result = crate::floor::floor_result(report.outcome, state, comparison);
+    let result = crate::floor::from_verdict(finished.verdict());
     match &finished.written {
         Ok(w) => present::print_outcome(&mut *out, w)?,
         Err(e) => writeln!(

@@ -71,7 +71,10 @@ pub(super) fn scan_record(dir: &Path) -> Result<IndexedRun, IndexError> {
         Some(s) => s.verdict,
         None => crate::compare::record_verdict(info.outcome, None, None),
     };
-    let result = floor_result(info.outcome, Some(state), comparison.or(verdict));
+    let result = match &summary {
+        Some(s) => crate::floor::from_verdict(s.verdict),
+        None => floor_result(info.outcome, Some(state), comparison.or(verdict)),
+    };
     let stamp = read_station_stamp(dir);
     let state_word = match state {
         RecordState::Finished(_) => "finished",

@@ -66,19 +66,9 @@ figure{display:inline-block;width:48%;margin:4px 0;vertical-align:top;page-break
 table,.caution,ul{page-break-inside:avoid}.caution{padding:4px 8px}\
 th,td[class^=v-]{-webkit-print-color-adjust:exact;print-color-adjust:exact}}";
 
-/// The floor result a summary stands for, through the one mapping in `crate::floor`.
+/// The floor result a summary stands for: its overall verdict, by the one rule.
 fn floor_result_of(s: &Summary) -> FloorResult {
-    use crate::record::RecordState;
-    let state = match s.record_state.as_str() {
-        "running" => RecordState::Running,
-        "incomplete" => RecordState::Incomplete,
-        _ => RecordState::Finished(s.outcome),
-    };
-    crate::floor::floor_result(
-        s.outcome,
-        Some(state),
-        s.comparison.as_ref().map(|c| c.verdict),
-    )
+    crate::floor::from_verdict(s.verdict)
 }
 
 fn verdict_cell(v: Verdict) -> String {

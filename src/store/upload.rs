@@ -93,11 +93,14 @@ pub async fn upload_record(
         .as_ref()
         .and_then(|s| s.get("comparison"))
         .and_then(|c| serde_json::from_value::<crate::compare::Comparison>(c.clone()).ok());
-    let result = crate::floor::floor_result(
-        info.outcome,
-        Some(state),
-        comparison.as_ref().map(|c| c.verdict).or(verdict),
-    );
+    let result = match &summary {
+        Some(_) => crate::floor::from_verdict(verdict),
+        None => crate::floor::floor_result(
+            info.outcome,
+            Some(state),
+            comparison.as_ref().map(|c| c.verdict),
+        ),
+    };
     let state_word = match state {
         RecordState::Finished(_) => "finished",
         RecordState::Running => "running",
