@@ -469,6 +469,7 @@ mod tests {
                 path: "s".into(),
                 source: no_space(),
             }),
+            indexed: Ok(()),
         };
         assert_eq!(f.verdict(), Some(Verdict::Error));
         assert_eq!(super::super::for_verdict(f.verdict()), 4);
@@ -492,6 +493,7 @@ mod tests {
                 path: "records/U1/x/summary.json".into(),
                 source: no_space(),
             }),
+            indexed: Ok(()),
         };
         assert_eq!(f.verdict(), Some(Verdict::Error));
         assert!(

@@ -8,7 +8,6 @@ use super::usage;
 use crate::control::BenchControl;
 use crate::index;
 use crate::pipeline::{self, PipelineError, Prepared, RunRequest};
-use crate::record::RecordState;
 use crate::report::{certificate, pdf};
 use crate::runner::CancelToken;
 use crate::station::{self, FloorResult, Station, StationStamp};
@@ -121,6 +120,7 @@ pub async fn test_unit<B: BenchControl>(
             dir.display()
         )?;
     }
+    let summary = finished.written.as_ref().ok().map(|w| &w.summary);
     let result = crate::floor::from_verdict(finished.verdict());
     match &finished.written {
         Ok(w) => present::print_outcome(&mut *out, w)?,
@@ -172,13 +172,13 @@ pub async fn test_unit<B: BenchControl>(
             }
         }
     }
-    let verdict = summary.and_then(|s| s.verdict);
+    let verdict = finished.verdict();
     Ok(UnitDone {
         result,
         dir: Some(dir),
         certificate: cert,
         values,
-        code: super::for_run(report.outcome, verdict),
+        code: super::for_verdict(verdict),
     })
 }
 

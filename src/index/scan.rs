@@ -116,5 +116,6 @@ fn outcome_word(o: Outcome) -> &'static str {
         Outcome::Completed => "completed",
         Outcome::Aborted => "aborted",
         Outcome::Failed => "failed",
+        Outcome::Error => "error",
     }
 }

@@ -128,7 +128,8 @@ fn max_temperature_trips_between_the_readings_of_a_slow_soak() {
     let rig = Rig::start(LAB, SimOptions::default().seed(204).fault(fault));
     let plan = "name = \"e2e-hot-slow\"\nsettle = \"50 ms\"\nsamples = 1\n\n[interlocks]\n\
                 max_temperature = \"40 degC\"\n\n[[step]]\nkind = \"soak\"\n\
-                load = \"max_load\"\nduration = \"60 s\"\ninterval = \"30 s\"\n";
+                load = \"max_load\"\nduration = \"60 s\"\ninterval = \"30 s\"\n\
+                beyond_design = \"interlock test: full rated load on a poor heatsink\"\n";
     let t0 = std::time::Instant::now();
     let out = rig.run("E2E-0104", plan);
     assert!(

@@ -42,7 +42,7 @@ fn the_certificate_is_one_printable_page_with_what_must_be_on_it() {
         "Operator One",
         "Started (UTC)",
         "2027-06-30",
-        "Regulus Simulated Bench,SV-61",
+        "Regulus Simulated Bench,Gnomon query voltmeter",
         "limit_current",
         "short_circuit_current",
         "lower limit",

@@ -16,7 +16,7 @@ fn bench(commands: &str) -> String {
     )
 }
 
-const CR_PLAN: &str = "name = \"cr\"\nsettle = \"50 ms\"\n\n[[step]]\nkind = \"load_sweep\"\nfrom = \"10 % of max_load\"\nto = \"max_load\"\npoints = 3\n\n[[step]]\nkind = \"limit_trace\"\nmode = \"cr\"\nfrom = \"100 ohm\"\nto = \"10 ohm\"\npoints = 4\n";
+const CR_PLAN: &str = "name = \"cr\"\nsettle = \"50 ms\"\n\n[[step]]\nkind = \"load_sweep\"\nfrom = \"10 % of max_load\"\nto = \"95 % of max_load\"\npoints = 3\n\n[[step]]\nkind = \"limit_trace\"\nmode = \"cr\"\nfrom = \"100 ohm\"\nto = \"10 ohm\"\npoints = 4\n";
 
 fn run(bench_text: &str, plan_text: &str) -> (Option<i32>, String) {
     let dir = tempfile::tempdir().unwrap();
@@ -57,7 +57,7 @@ fn a_step_needing_a_missing_command_is_refused_before_the_run() {
 // `{value*1e308:.4}` sent a 307-digit number.
 #[test]
 fn templates_that_lose_setpoints_are_refused_before_the_run() {
-    let plan = "name = \"cc\"\nsettle = \"50 ms\"\n\n[[step]]\nkind = \"load_sweep\"\nfrom = \"10 % of max_load\"\nto = \"max_load\"\npoints = 3\n";
+    let plan = "name = \"cc\"\nsettle = \"50 ms\"\n\n[[step]]\nkind = \"load_sweep\"\nfrom = \"10 % of max_load\"\nto = \"95 % of max_load\"\npoints = 3\n";
     let (code, err) = run(&bench("load_set_current = \"CURR {value:d}\"\n"), plan);
     assert_eq!(code, Some(2), "{err}");
     assert!(err.contains("loses it"), "{err}");
@@ -69,7 +69,7 @@ fn templates_that_lose_setpoints_are_refused_before_the_run() {
     assert_eq!(code, Some(2), "{err}");
     assert!(err.contains("load_set_current"), "{err}");
     // The same bench with a template that keeps the setpoints passes the check and fails
-    // only when it tries to connect (nothing listens): exit 3.
+    // only when it tries to connect (nothing listens): exit 4, a station error.
     let (code, err) = run(&bench("load_set_current = \"CURR {value:.4}\"\n"), plan);
-    assert_eq!(code, Some(3), "{err}");
+    assert_eq!(code, Some(4), "{err}");
 }

@@ -27,7 +27,7 @@ max_short_dwell = "3 s"
 [[step]]
 kind = "load_sweep"
 from = "10 % of max_load"
-to = "max_load"
+to = "95 % of max_load"
 points = 6
 
 [[step]]

@@ -20,7 +20,7 @@ max_short_dwell = "2 s"
 
 /// One plan per step kind (the simulated bench supports all of them).
 const STEPS: [(&str, &str); 6] = [
-    ("load_sweep", "kind = \"load_sweep\"\nfrom = \"0 A\"\nto = \"max_load\"\npoints = 8"),
+    ("load_sweep", "kind = \"load_sweep\"\nfrom = \"0 A\"\nto = \"95 % of max_load\"\npoints = 8"),
     ("limit_trace", "kind = \"limit_trace\"\nmode = \"cv\"\nfrom = \"95 % of vout\"\nto = \"10 % of vout\"\npoints = 8"),
     ("knee_search", "kind = \"knee_search\"\ndrop = \"2 %\"\nresolution = \"1 %\""),
     ("short_circuit", "kind = \"short_circuit\"\ndwell = \"1 s\"\ninterval = \"100 ms\"\nrecovery_time = \"300 ms\""),
@@ -38,11 +38,11 @@ fn a_meter_port_closing_in_each_kind_of_step_stops_the_run_safely() {
         cloexec_ptys(&pty());
         let unit = format!("LP-{n:04}");
         let out = rig.run(&unit, &format!("{HEAD}\n[[step]]\n{step}\n"));
-        assert_eq!(out.status.code(), Some(3), "{kind}: {}", show(&out));
+        assert_eq!(out.status.code(), Some(4), "{kind}: {}", show(&out));
         let dir = rig.run_dir(&unit);
         let plan = rig.dir.path().join("plan.toml");
         let rec = check_record(&dir, &rig.design_path, &rig.bench, &plan);
-        assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted), "{kind}");
+        assert_eq!(rec.state, RecordState::Finished(Outcome::Error), "{kind}");
         let reason = rec.info.reason.clone().unwrap_or_default();
         assert!(reason.contains("instrument failure"), "{kind}: {reason}");
         assert!(reason.contains("'dmm'"), "{kind}: {reason}");
@@ -65,11 +65,11 @@ fn the_load_port_closing_in_each_kind_of_step_switches_the_source_off() {
         cloexec_ptys(&pty());
         let unit = format!("LL-{n:04}");
         let out = rig.run(&unit, &format!("{HEAD}\n[[step]]\n{step}\n"));
-        assert_eq!(out.status.code(), Some(3), "{kind}: {}", show(&out));
+        assert_eq!(out.status.code(), Some(4), "{kind}: {}", show(&out));
         let dir = rig.run_dir(&unit);
         let plan = rig.dir.path().join("plan.toml");
         let rec = check_record(&dir, &rig.design_path, &rig.bench, &plan);
-        assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted), "{kind}");
+        assert_eq!(rec.state, RecordState::Finished(Outcome::Error), "{kind}");
         let reason = rec.info.reason.clone().unwrap_or_default();
         assert!(reason.contains("instrument failure"), "{kind}: {reason}");
         assert!(reason.contains("'eload'"), "{kind}: {reason}");

@@ -88,7 +88,7 @@ fn aborts(
     assert_eq!(out.status.code(), Some(4), "{}", show(&out));
     let dir = rig.run_dir(unit);
     let rec = read_run(&dir).unwrap();
-    assert_eq!(rec.state, RecordState::Finished(Outcome::Aborted));
+    assert_eq!(rec.state, RecordState::Finished(Outcome::Error));
     assert_eq!(rec.info.rows as usize, rec.rows.len());
     assert!(rec.rows.len() < 200);
     (rec.info.reason.clone().unwrap_or_default(), rig)

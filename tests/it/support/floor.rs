@@ -25,7 +25,7 @@ max_short_dwell = "1 s"
 [[step]]
 kind = "load_sweep"
 from = "0 A"
-to = "max_load"
+to = "95 % of max_load"
 points = 4
 
 [[step]]
