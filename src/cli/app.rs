@@ -2,8 +2,8 @@
 //! [`dispatch`], which runs the chosen command and returns its exit code.
 
 use super::{
-    batch, compare, completions, dashboard, demo, design, history, index, ports, probe, report, run, sim,
-    size, sync,
+    batch, compare, completions, dashboard, demo, design, history, index, ports, probe, report,
+    run, sim, size, sync,
 };
 use clap::{Parser, Subcommand};
 

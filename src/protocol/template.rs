@@ -38,7 +38,7 @@ pub enum TemplateError {
     RepeatedValue,
     #[error("value {0} is not a finite number")]
     NotFinite(f64),
-    #[error("value {value} would be sent as '{sent}', which loses it; use more decimals (e.g. {{value:.4}}) or another scale")]
+    #[error("value {value} would be sent as '{sent}', which loses it; give the placeholder more decimals (e.g. {{value:.6}}) or a scale")]
     Lossy { value: f64, sent: String },
     #[error("value {value} would be sent as a {digits}-character number; check the scale of the placeholder")]
     TooLong { value: f64, digits: usize },
@@ -49,6 +49,12 @@ pub const MAX_NUMBER_CHARS: usize = 24;
 
 /// Largest relative difference between a setpoint and what a template sends for it (0.5 %).
 pub const LOSSLESS_RELATIVE: f64 = 0.005;
+
+/// Rounding always allowed, as a fraction of the largest setpoint of the same step (0.01 %
+/// of full scale: finer than the setting resolution of common bench instruments, common
+/// practice). A 2.86 mA point of a sweep to 1.1 A sent as 2.9 mA is kept; 0.54 A sent as 0
+/// or 1 is not.
+pub const LOSSLESS_FULL_SCALE: f64 = 1e-4;
 
 /// How a number is written into a command.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -277,6 +283,12 @@ impl Template {
     /// Check that `value` is sent without losing it: within [`LOSSLESS_RELATIVE`] of itself
     /// (a zero must be sent as zero) and in at most [`MAX_NUMBER_CHARS`] characters.
     pub fn check_lossless(&self, value: f64) -> Result<(), TemplateError> {
+        self.check_lossless_in(value, 0.0)
+    }
+
+    /// As [`Template::check_lossless`], for a setpoint of a step whose largest setpoint is
+    /// `full_scale`: a rounding within [`LOSSLESS_FULL_SCALE`] of it is accepted too.
+    pub fn check_lossless_in(&self, value: f64, full_scale: f64) -> Result<(), TemplateError> {
         let Some(text) = self.number_text(value)? else {
             return Ok(());
         };
@@ -291,7 +303,7 @@ impl Template {
         let ok = if value == 0.0 {
             sent == 0.0
         } else {
-            err <= LOSSLESS_RELATIVE * value.abs()
+            err <= LOSSLESS_RELATIVE * value.abs() || err <= LOSSLESS_FULL_SCALE * full_scale.abs()
         };
         if ok {
             Ok(())
@@ -403,6 +415,13 @@ mod tests {
         assert_eq!(t.sent_value(0.54).unwrap(), Some(0.54));
         assert!((t.resolution(0.54) - 1e-4).abs() < 1e-15);
         assert!(t.check_lossless(0.54).is_ok());
+        // A small point of a large sweep may round by a little of the sweep's full scale
+        // (0.0029 for 0.002857 in a sweep to 1.09 A), not by a lot of it.
+        let four = Template::parse("CURR {value:.4}", Arity::OneValue).unwrap();
+        assert!(four.check_lossless(0.002857).is_err());
+        assert!(four.check_lossless_in(0.002857, 1.09).is_ok());
+        let two = Template::parse("CURR {value:.2}", Arity::OneValue).unwrap();
+        assert!(two.check_lossless_in(0.002857, 1.09).is_err());
         assert!(t.check_lossless(0.05).is_ok());
         // `{value:d}` sends 0.54 A as 1 and 0.3 A as 0: both lost.
         let d = Template::parse("CURR {value:d}", Arity::OneValue).unwrap();

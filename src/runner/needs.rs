@@ -100,8 +100,9 @@ pub fn check_bench_for_plan(bench: &BenchConfig, plan: &Plan) -> Result<(), Benc
                 ),
             )));
         };
+        let full_scale = need.values.iter().fold(0.0f64, |m, v| m.max(v.abs()));
         for v in &need.values {
-            if let Err(e) = t.check_lossless(*v) {
+            if let Err(e) = t.check_lossless_in(*v, full_scale) {
                 return Err(BenchError::Config(bench.error_at(
                     inst,
                     format!(

@@ -68,10 +68,27 @@ fn meter(msg: &str) -> Option<String> {
     }
 }
 
+/// A SCPI load as the stand-in plays it: it keeps its mode, setpoint and input, and answers
+/// the readback queries and the error queue (SCPI-1999 style replies, common practice).
 fn load(msg: &str) -> Option<String> {
+    use std::sync::atomic::{AtomicBool, AtomicU64, Ordering::SeqCst};
+    static CURR: AtomicU64 = AtomicU64::new(0);
+    static INP: AtomicBool = AtomicBool::new(false);
+    if let Some(v) = msg.strip_prefix("CURR ") {
+        CURR.store(v.trim().parse::<f64>().unwrap_or(0.0).to_bits(), SeqCst);
+    }
+    match msg {
+        "INP ON" => INP.store(true, SeqCst),
+        "INP OFF" => INP.store(false, SeqCst),
+        _ => {}
+    }
     match msg {
         "*IDN?" => Some("Regulus Simulated Bench,UT-2 load,UT0002,1.0\n".into()),
         "*OPC?" => Some("1\n".into()),
+        "FUNC?" => Some("CURR\n".into()),
+        "CURR?" => Some(format!("{:.4}\n", f64::from_bits(CURR.load(SeqCst)))),
+        "INP?" => Some(if INP.load(SeqCst) { "1\n" } else { "0\n" }.into()),
+        "SYST:ERR?" => Some("+0,\"No error\"\n".into()),
         "MEAS:VOLT?" => Some("+1.19000E+01\n".into()),
         "MEAS:CURR?" => Some("+1.50000E+00\n".into()),
         _ => None,
@@ -153,13 +170,20 @@ fn presets_work_over_usbtmc_with_one_read_per_query() {
     );
     assert_eq!(
         l,
+        // Each setting in lockstep: the commands, the confirm query, the error queue, then the
+        // readback of what was set; the safe state goes out unconfirmed.
         vec![
             "*IDN?\n",
             "FUNC CURR\n",
             "CURR 1.5000\n",
             "*OPC?\n",
+            "SYST:ERR?\n",
+            "FUNC?\n",
+            "CURR?\n",
             "INP ON\n",
             "*OPC?\n",
+            "SYST:ERR?\n",
+            "INP?\n",
             "INP OFF\n"
         ]
     );
