@@ -411,7 +411,8 @@ pub fn plan_limit_checks(m: &Metrics, l: &MetricLimits) -> Vec<Check> {
 /// What the diagnosis fits: the no-load output (2 mV or 100 ppm, whichever is larger: about a
 /// 4.5-digit meter's reading; project choice), the limit knee (0.5 %, or half the distance
 /// between the two knee methods when larger), the short-circuit current at the start of the
-/// dwell (0.5 %), and the pass junction temperature at the knee from the case reading.
+/// dwell (0.5 %), and where the pass junction is at the knee: between the case reading and the
+/// case reading plus dissipation times theta_jc (settled against the case).
 pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observations {
     use super::Observed;
     let vout = m.no_load.map(|p| Observed {
@@ -435,6 +436,7 @@ pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observatio
     let pass_junction_c = m
         .knee_conditions
         .and_then(|k| Some(k.case_temperature? + k.pass_watts.unwrap_or(0.0) * d.pass.theta_jc));
+    let pass_case_c = m.knee_conditions.and_then(|k| k.case_temperature);
     let limit_at_least = match limit {
         Some(_) => None,
         None => m.knee.and_then(|k| k.highest_regulating).map(|p| Observed {
@@ -447,6 +449,7 @@ pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observatio
         limit,
         short,
         pass_junction_c,
+        pass_case_c,
         limit_at_least,
     }
 }

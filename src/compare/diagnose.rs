@@ -26,8 +26,13 @@ pub struct Observations {
     pub vout: Option<Observed>,
     pub limit: Option<Observed>,
     pub short: Option<Observed>,
-    /// Estimated pass junction temperature at the knee (case reading plus P theta_jc).
+    /// Estimated pass junction temperature at the knee once settled against the case (case
+    /// reading plus P theta_jc): the upper end of where the junction can be while heating.
     pub pass_junction_c: Option<f64>,
+    /// The case reading at the knee: the lower end (heat flows from the junction to the
+    /// case, so the junction is never cooler). With both, the junction is taken anywhere in
+    /// between (uniform), since a case reading cannot tell how far the junction has settled.
+    pub pass_case_c: Option<f64>,
     /// When the limit was not reached: the highest current at which the output still
     /// regulated (the limit lies above it).
     pub limit_at_least: Option<Observed>,
@@ -96,6 +101,36 @@ fn predict(d: &Design, p: &Params) -> [f64; 3] {
     [pt.vout_set, pt.limit_current, pt.short_circuit_current]
 }
 
+/// Where the pass junction may be: `(low, high)` degC, both ends included.
+type JunctionRange = Option<(f64, f64)>;
+
+/// A prediction with the pass junction at the middle of its range, and the standard spread
+/// per metric that the range leaves (uniform over the range: width / sqrt 12).
+fn predict_in(d: &Design, p: &Params, tj: JunctionRange) -> ([f64; 3], [f64; 3]) {
+    match tj {
+        Some((lo, hi)) if hi > lo => {
+            let at = |t: f64| {
+                let mut q = p.clone();
+                q.pass_junction_c = t;
+                predict(d, &q)
+            };
+            let (a, b) = (at(lo), at(hi));
+            let mid = at(0.5 * (lo + hi));
+            let mut s = [0.0; 3];
+            for k in 0..3 {
+                s[k] = (b[k] - a[k]).abs() / 12f64.sqrt();
+            }
+            (mid, s)
+        }
+        Some((t, _)) => {
+            let mut q = p.clone();
+            q.pass_junction_c = t;
+            (predict(d, &q), [0.0; 3])
+        }
+        None => (predict(d, p), [0.0; 3]),
+    }
+}
+
 struct Scorer {
     obs: [Option<Observed>; 3],
     spread: [(f64, f64); 3],
@@ -103,14 +138,15 @@ struct Scorer {
 }
 
 impl Scorer {
-    /// (score, worst z) of a prediction.
-    fn score(&self, pred: [f64; 3], free: usize) -> (f64, f64) {
+    /// (score, worst z) of a prediction with the extra spread `temp` per metric (from the
+    /// junction's temperature range).
+    fn score(&self, (pred, temp): ([f64; 3], [f64; 3]), free: usize) -> (f64, f64) {
         let mut chi2 = 0.0;
         let mut worst: f64 = 0.0;
-        for ((obs, (rel, abs)), p) in self.obs.iter().zip(self.spread).zip(pred) {
+        for (((obs, (rel, abs)), p), t) in self.obs.iter().zip(self.spread).zip(pred).zip(temp) {
             if let Some(o) = obs {
                 let tol = (rel * p).abs().max(abs);
-                let s = (o.u.powi(2) + tol.powi(2)).sqrt();
+                let s = (o.u.powi(2) + tol.powi(2) + t.powi(2)).sqrt();
                 let z = if s > 0.0 { (o.value - p) / s } else { 0.0 };
                 chi2 += z * z;
                 worst = worst.max(z.abs());
@@ -119,7 +155,8 @@ impl Scorer {
         // A one-sided observation: only a predicted limit below the bound is a residual.
         if let Some(b) = self.limit_at_least {
             let (rel, abs) = self.spread[1];
-            let s = (b.u.powi(2) + ((rel * pred[1]).abs().max(abs)).powi(2)).sqrt();
+            let s =
+                (b.u.powi(2) + ((rel * pred[1]).abs().max(abs)).powi(2) + temp[1].powi(2)).sqrt();
             if pred[1] < b.value && s > 0.0 {
                 let z = (b.value - pred[1]) / s;
                 chi2 += z * z;
@@ -186,25 +223,33 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         spread,
         limit_at_least: obs.limit_at_least,
     };
-    let mut base = Params::nominal(d);
-    if let Some(t) = obs.pass_junction_c {
-        base.pass_junction_c = t;
-    }
-    let (nominal_score, nominal_z) = scorer.score(predict(d, &base), 0);
-    let mut out = Vec::new();
-    let mut push = |part: String, d2: &Design, p: &Params, free: usize, prior: f64| {
-        let pred = predict(d2, p);
-        let (score, worst_z) = scorer.score(pred, free);
-        let score = score + prior;
-        if worst_z <= FIT_Z && score < nominal_score {
-            out.push(Hypothesis {
-                part,
-                score,
-                worst_z,
-                predicted: pred,
-            });
-        }
+    // The pass junction lies between the case reading and its settled value above it.
+    let tj: JunctionRange = match (obs.pass_case_c, obs.pass_junction_c) {
+        (Some(c), Some(j)) => Some((c.min(j), c.max(j))),
+        (None, Some(j)) => Some((j, j)),
+        _ => None,
     };
+    let mut base = Params::nominal(d);
+    if let Some((lo, hi)) = tj {
+        base.pass_junction_c = 0.5 * (lo + hi);
+    }
+    let (nominal_score, nominal_z) = scorer.score(predict_in(d, &base, tj), 0);
+    let mut out = Vec::new();
+    let mut push =
+        |part: String, d2: &Design, p: &Params, free: usize, prior: f64, at: JunctionRange| {
+            let pred = predict_in(d2, p, at);
+            let (score, worst_z) = scorer.score(pred, free);
+            let pred = pred.0;
+            let score = score + prior;
+            if worst_z <= FIT_Z && score < nominal_score {
+                out.push(Hypothesis {
+                    part,
+                    score,
+                    worst_z,
+                    predicted: pred,
+                });
+            }
+        };
 
     // Sense resistor at each neighbouring preferred value (E24 within a factor of two).
     let r0 = d.limit.sense.ohms;
@@ -230,6 +275,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
             &p,
             0,
             prior,
+            tj,
         );
     }
     // One clamp junction more or fewer; the other pass stage (diode-string clamp).
@@ -251,6 +297,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &p,
                 0,
                 0.0,
+                tj,
             );
         }
     }
@@ -275,6 +322,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &base,
                 0,
                 0.0,
+                tj,
             );
         }
     }
@@ -292,6 +340,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
             &p,
             0,
             0.0,
+            tj,
         );
     }
     // The output setting off: the reference, or either feedback resistor (the measurements
@@ -300,7 +349,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         let f = |x: f64| {
             let mut p = base.clone();
             p.vref = base.vref * x;
-            scorer.score(predict(d, &p), 1).0
+            scorer.score(predict_in(d, &p, tj), 1).0
         };
         let x = fit_free(0.8, 1.2, f);
         let mut p = base.clone();
@@ -331,6 +380,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &p,
                 1,
                 0.0,
+                tj,
             );
         }
     }
@@ -339,7 +389,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         let f = |x: f64| {
             let mut p = base.clone();
             p.fold_bottom = base.fold_bottom * x;
-            scorer.score(predict(d, &p), 1).0
+            scorer.score(predict_in(d, &p, tj), 1).0
         };
         let x = fit_free(0.5, 2.0, f);
         if (x - 1.0).abs() > 0.01 {
@@ -359,6 +409,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &p,
                 1,
                 0.0,
+                tj,
             );
         }
     }
@@ -374,7 +425,9 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
             p.clamp_junction_c = base.ambient_c + (t - t0) * 0.5;
             p
         };
-        let t = fit_free(t0, t_max, |t| scorer.score(predict(d, &hot(t)), 1).0);
+        let t = fit_free(t0, t_max, |t| {
+            scorer.score(predict_in(d, &hot(t), None), 1).0
+        });
         if t > t0 + 5.0 && t < t_max - 0.5 {
             push(
                 format!(
@@ -386,6 +439,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &hot(t),
                 1,
                 0.0,
+                None,
             );
         }
     }
@@ -463,6 +517,7 @@ mod tests {
             limit: Some(o(pred[1], 0.005 * pred[1])),
             short: Some(o(pred[2], 0.005 * pred[2])),
             pass_junction_c: None,
+            pass_case_c: None,
             limit_at_least: None,
         }
     }
@@ -613,6 +668,7 @@ mod tests {
                 u: 0.01,
             }),
             pass_junction_c: None,
+            pass_case_c: None,
             limit_at_least: None,
         };
         let diag = diagnose(&d, &x, &obs);
