@@ -649,6 +649,55 @@ mod tests {
     }
 
     #[test]
+    fn a_junction_not_yet_settled_against_the_case_is_not_read_as_a_different_part() {
+        // Heat flows from the junction to the case, so while the pass device heats its
+        // junction lies between the case reading and the case reading plus P theta_jc (the
+        // value it settles at; thermal Ohm's law, textbook). The demo's unit (seed 2027, a
+        // 0.68 ohm sense resistor on the teaching-lab design) read its knee with the case at
+        // 28.3 degC and 15.9 W in the pass device (theta_jc 0.7 degC/W: 28.3 to 39.4 degC)
+        // while its junction was at about 32.5 degC. Read at 39.4 degC the Darlington's two
+        // junctions raise the predicted threshold by 2 x 2 mV x 6.9 = 28 mV (4 %), and a
+        // 0.75 ohm part fitted better; anywhere in the range the right part must rank first.
+        let (d, x) = sample("lab");
+        let mut p = Params::draw(&d, &mut Rng::new(2027));
+        p.set_ambient(d.environment.ambient_c);
+        p.r_sense = 0.68;
+        let (case, watts) = (28.3, 15.86);
+        let settled = case + watts * d.pass.theta_jc;
+        for share in [0.0, 0.4, 1.0] {
+            let mut hot = p.clone();
+            hot.pass_junction_c = case + share * (settled - case);
+            let pred = predict(&d, &hot);
+            let obs = Observations {
+                vout: Some(Observed {
+                    value: pred[0],
+                    u: 2e-3,
+                }),
+                limit: Some(Observed {
+                    value: pred[1],
+                    u: 0.005 * pred[1],
+                }),
+                short: Some(Observed {
+                    value: pred[2],
+                    u: 0.005 * pred[2],
+                }),
+                pass_junction_c: Some(settled),
+                pass_case_c: Some(case),
+                limit_at_least: None,
+            };
+            let diag = diagnose(&d, &x, &obs);
+            let first = diag.fits.first().map(|h| h.part.clone());
+            assert!(
+                first
+                    .as_deref()
+                    .is_some_and(|h| h.contains("a 0.68 ohm sense resistor")),
+                "settled {share}: {:#?}",
+                diag.fits
+            );
+        }
+    }
+
+    #[test]
     fn nothing_that_fits_is_said_so() {
         // The output at half the design and the limit at three times: no single part does
         // both.
