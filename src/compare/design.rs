@@ -117,6 +117,11 @@ pub struct DesignExpectation {
     /// design model); `None` when only the bands are known.
     #[serde(skip)]
     pub design: Option<Box<crate::design::Design>>,
+    /// The design's as-built bands (part tolerances only, at its nominal ambient and input):
+    /// the spread the diagnosis scores a bench measurement against; `None` when only the
+    /// bands above are known (the diagnosis then uses those).
+    #[serde(skip)]
+    pub as_built: Option<crate::design::AsBuiltBands>,
 }
 
 impl DesignExpectation {
@@ -157,6 +162,7 @@ impl DesignExpectation {
             curve_high: e.curve_high.clone(),
             rated_load_a: Some(d.load.max_current_a).filter(|i| i.is_finite() && *i > 0.0),
             design: Some(Box::new(d.clone())),
+            as_built: Some(e.as_built.clone()),
         }
     }
 }
@@ -731,6 +737,7 @@ mod tests {
             curve_high: vec![],
             rated_load_a: None,
             design: None,
+            as_built: None,
         };
         let checks = vec![check("limit_current", "A", 0.6 / 0.68, &exp.limit_current)];
         assert_eq!(checks[0].verdict, Verdict::Fail);
@@ -770,6 +777,7 @@ mod tests {
             curve_high: vec![],
             rated_load_a: None,
             design: None,
+            as_built: None,
         };
         let checks = vec![check("limit_current", "A", 1.95, &exp.limit_current)];
         let m = crate::analysis::analyse(&[], &Default::default());
@@ -841,6 +849,7 @@ mod tests {
             curve_high: vec![],
             rated_load_a: None,
             design: None,
+            as_built: None,
         };
         let measured = 0.71 / 0.68;
         let checks = vec![check("limit_current", "A", measured, &exp.limit_current)];

@@ -67,7 +67,9 @@ pub struct Diagnosis {
 
 /// The spread the remaining tolerances leave on each metric, in the order vout, limit,
 /// short: relative (Monte Carlo sigma over nominal) and absolute (the Monte Carlo sigma; a
-/// clamp's threshold spreads by the junctions' tolerances whatever the hypothesis).
+/// clamp's threshold spreads by the junctions' tolerances whatever the hypothesis). From the
+/// as-built bands when known (part tolerances at the bench's room and input: what a bench
+/// measurement varies by), else from the operating envelope's bands.
 fn tolerance_spread(exp: &DesignExpectation) -> [(f64, f64); 3] {
     let rel = |b: &super::ExpectedBand| {
         let r = if b.nominal != 0.0 {
@@ -77,6 +79,13 @@ fn tolerance_spread(exp: &DesignExpectation) -> [(f64, f64); 3] {
         };
         (r, b.monte_carlo.sigma.abs())
     };
+    if let Some(a) = &exp.as_built {
+        return [
+            (rel(&a.vout).0, 0.0),
+            rel(&a.limit_current),
+            rel(&a.short_circuit_current),
+        ];
+    }
     [
         (rel(&exp.vout).0, 0.0),
         rel(&exp.limit_current),
