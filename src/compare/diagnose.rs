@@ -487,16 +487,27 @@ pub fn diagnosis_lines(diag: &Diagnosis) -> Vec<String> {
     if diag.fits.is_empty() {
         return vec!["no single-part explanation fits the measurements".to_string()];
     }
+    let best = diag.fits[0].score;
     diag.fits
         .iter()
-        .map(|h| {
+        .enumerate()
+        .map(|(k, h)| {
+            let tie = if k > 0 && h.score - best < TIE_SCORE {
+                "; fits about as well as the first: these measurements cannot tell them apart"
+            } else {
+                ""
+            };
             format!(
-                "{} (score {:.1}, worst residual {:.1} sigma)",
+                "{} (score {:.1}, worst residual {:.1} sigma{tie})",
                 h.part, h.score, h.worst_z
             )
         })
         .collect()
 }
+
+/// Score difference under which two hypotheses are said to fit equally well (a chi-square
+/// difference of 1 bounds one standard deviation for one parameter; common practice).
+pub const TIE_SCORE: f64 = 1.0;
 
 #[cfg(test)]
 mod tests {
@@ -704,6 +715,26 @@ mod tests {
                 diag.fits
             );
         }
+    }
+
+    #[test]
+    fn hypotheses_within_one_of_the_best_score_are_said_to_be_indistinguishable() {
+        // A chi-square difference under 1 is within one standard deviation (common
+        // practice): the second is flagged, the third (2.0 above the best) is not.
+        let h = |part: &str, score: f64| Hypothesis {
+            part: part.to_string(),
+            score,
+            worst_z: 0.5,
+            predicted: [0.0; 3],
+        };
+        let diag = Diagnosis {
+            nominal_fits: false,
+            fits: vec![h("a", 0.9), h("b", 1.8), h("c", 2.9)],
+        };
+        let lines = diagnosis_lines(&diag);
+        assert!(!lines[0].contains("cannot tell"), "{lines:?}");
+        assert!(lines[1].contains("cannot tell them apart"), "{lines:?}");
+        assert!(!lines[2].contains("cannot tell"), "{lines:?}");
     }
 
     #[test]
