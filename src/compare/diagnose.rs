@@ -10,7 +10,7 @@
 use super::DesignExpectation;
 use crate::design::eseries::{next_up, Series};
 use crate::design::model::{evaluate, Point};
-use crate::design::{Clamp, Design, Params, Stage};
+use crate::design::{Clamp, ClampMount, Design, Params, Stage};
 use serde::{Deserialize, Serialize};
 
 /// One measured value with its standard uncertainty.
@@ -242,6 +242,18 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
     if let Some((lo, hi)) = tj {
         base.pass_junction_c = 0.5 * (lo + hi);
     }
+    // Clamp parts sit at ambient unless the design mounts them on the heatsink; there they
+    // are at the sink, T_case - P theta_cs (thermal Ohm's law), never below ambient.
+    if let (ClampMount::Heatsink, Some(case), Some(j)) =
+        (d.limit.clamp_mount, obs.pass_case_c, obs.pass_junction_c)
+    {
+        let watts = if d.pass.theta_jc > 0.0 {
+            (j - case).max(0.0) / d.pass.theta_jc
+        } else {
+            0.0
+        };
+        base.clamp_junction_c = (case - watts * d.pass.theta_cs).max(base.ambient_c);
+    }
     let (nominal_score, nominal_z) = scorer.score(predict_in(d, &base, tj), 0);
     let mut out = Vec::new();
     let mut push =
@@ -431,7 +443,6 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         let hot = |t: f64| {
             let mut p = base.clone();
             p.pass_junction_c = t;
-            p.clamp_junction_c = base.ambient_c + (t - t0) * 0.5;
             p
         };
         let t = fit_free(t0, t_max, |t| {
@@ -735,6 +746,51 @@ mod tests {
         assert!(!lines[0].contains("cannot tell"), "{lines:?}");
         assert!(lines[1].contains("cannot tell them apart"), "{lines:?}");
         assert!(!lines[2].contains("cannot tell"), "{lines:?}");
+    }
+
+    #[test]
+    fn clamp_diodes_on_the_heatsink_are_read_at_the_sink() {
+        // A diode string mounted on the heatsink sits at T_sink = T_case - P theta_cs (thermal
+        // Ohm's law, textbook): with the case at 40 degC and 20 W (theta_cs 0.2 degC/W) at
+        // 36 degC, 11 degC above the room, its three drops are 3 x 2 mV x 11 = 66 mV (10 %)
+        // lower than at ambient. A 0.68 ohm unit read so must still be named right.
+        let (mut d, _) = sample("lab");
+        d.limit.clamp_mount = ClampMount::Heatsink;
+        let e = crate::design::expect_with(&d, 2000, 7);
+        let x = DesignExpectation::from_design(&d, &e);
+        let (case, watts) = (40.0, 20.0);
+        let settled = case + watts * d.pass.theta_jc;
+        let mut p = Params::nominal(&d);
+        p.r_sense = 0.68;
+        p.pass_junction_c = 0.5 * (case + settled);
+        p.clamp_junction_c = case - watts * d.pass.theta_cs;
+        let pred = predict(&d, &p);
+        let obs = Observations {
+            vout: Some(Observed {
+                value: pred[0],
+                u: 2e-3,
+            }),
+            limit: Some(Observed {
+                value: pred[1],
+                u: 0.005 * pred[1],
+            }),
+            short: Some(Observed {
+                value: pred[2],
+                u: 0.005 * pred[2],
+            }),
+            pass_junction_c: Some(settled),
+            pass_case_c: Some(case),
+            limit_at_least: None,
+        };
+        let diag = diagnose(&d, &x, &obs);
+        let first = diag.fits.first().map(|h| (h.part.clone(), h.worst_z));
+        assert!(
+            first
+                .as_ref()
+                .is_some_and(|(h, z)| h.contains("a 0.68 ohm sense resistor") && *z < 0.5),
+            "{:#?}",
+            diag.fits
+        );
     }
 
     #[test]
