@@ -117,6 +117,11 @@ pub struct DesignExpectation {
     /// design model); `None` when only the bands are known.
     #[serde(skip)]
     pub design: Option<Box<crate::design::Design>>,
+    /// The design's as-built bands (part tolerances only, at its nominal ambient and input):
+    /// the spread the diagnosis scores a bench measurement against; `None` when only the
+    /// bands above are known (the diagnosis then uses those).
+    #[serde(skip)]
+    pub as_built: Option<crate::design::AsBuiltBands>,
 }
 
 impl DesignExpectation {
@@ -157,6 +162,7 @@ impl DesignExpectation {
             curve_high: e.curve_high.clone(),
             rated_load_a: Some(d.load.max_current_a).filter(|i| i.is_finite() && *i > 0.0),
             design: Some(Box::new(d.clone())),
+            as_built: Some(e.as_built.clone()),
         }
     }
 }
@@ -411,7 +417,8 @@ pub fn plan_limit_checks(m: &Metrics, l: &MetricLimits) -> Vec<Check> {
 /// What the diagnosis fits: the no-load output (2 mV or 100 ppm, whichever is larger: about a
 /// 4.5-digit meter's reading; project choice), the limit knee (0.5 %, or half the distance
 /// between the two knee methods when larger), the short-circuit current at the start of the
-/// dwell (0.5 %), and the pass junction temperature at the knee from the case reading.
+/// dwell (0.5 %), and where the pass junction is at the knee: between the case reading and the
+/// case reading plus dissipation times theta_jc (settled against the case).
 pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observations {
     use super::Observed;
     let vout = m.no_load.map(|p| Observed {
@@ -435,6 +442,7 @@ pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observatio
     let pass_junction_c = m
         .knee_conditions
         .and_then(|k| Some(k.case_temperature? + k.pass_watts.unwrap_or(0.0) * d.pass.theta_jc));
+    let pass_case_c = m.knee_conditions.and_then(|k| k.case_temperature);
     let limit_at_least = match limit {
         Some(_) => None,
         None => m.knee.and_then(|k| k.highest_regulating).map(|p| Observed {
@@ -447,6 +455,7 @@ pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observatio
         limit,
         short,
         pass_junction_c,
+        pass_case_c,
         limit_at_least,
     }
 }
@@ -728,6 +737,7 @@ mod tests {
             curve_high: vec![],
             rated_load_a: None,
             design: None,
+            as_built: None,
         };
         let checks = vec![check("limit_current", "A", 0.6 / 0.68, &exp.limit_current)];
         assert_eq!(checks[0].verdict, Verdict::Fail);
@@ -767,6 +777,7 @@ mod tests {
             curve_high: vec![],
             rated_load_a: None,
             design: None,
+            as_built: None,
         };
         let checks = vec![check("limit_current", "A", 1.95, &exp.limit_current)];
         let m = crate::analysis::analyse(&[], &Default::default());
@@ -838,6 +849,7 @@ mod tests {
             curve_high: vec![],
             rated_load_a: None,
             design: None,
+            as_built: None,
         };
         let measured = 0.71 / 0.68;
         let checks = vec![check("limit_current", "A", measured, &exp.limit_current)];

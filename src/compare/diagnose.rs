@@ -10,7 +10,7 @@
 use super::DesignExpectation;
 use crate::design::eseries::{next_up, Series};
 use crate::design::model::{evaluate, Point};
-use crate::design::{Clamp, Design, Params, Stage};
+use crate::design::{Clamp, ClampMount, Design, Params, Stage};
 use serde::{Deserialize, Serialize};
 
 /// One measured value with its standard uncertainty.
@@ -26,8 +26,13 @@ pub struct Observations {
     pub vout: Option<Observed>,
     pub limit: Option<Observed>,
     pub short: Option<Observed>,
-    /// Estimated pass junction temperature at the knee (case reading plus P theta_jc).
+    /// Estimated pass junction temperature at the knee once settled against the case (case
+    /// reading plus P theta_jc): the upper end of where the junction can be while heating.
     pub pass_junction_c: Option<f64>,
+    /// The case reading at the knee: the lower end (heat flows from the junction to the
+    /// case, so the junction is never cooler). With both, the junction is taken anywhere in
+    /// between (uniform), since a case reading cannot tell how far the junction has settled.
+    pub pass_case_c: Option<f64>,
     /// When the limit was not reached: the highest current at which the output still
     /// regulated (the limit lies above it).
     pub limit_at_least: Option<Observed>,
@@ -62,7 +67,9 @@ pub struct Diagnosis {
 
 /// The spread the remaining tolerances leave on each metric, in the order vout, limit,
 /// short: relative (Monte Carlo sigma over nominal) and absolute (the Monte Carlo sigma; a
-/// clamp's threshold spreads by the junctions' tolerances whatever the hypothesis).
+/// clamp's threshold spreads by the junctions' tolerances whatever the hypothesis). From the
+/// as-built bands when known (part tolerances at the bench's room and input: what a bench
+/// measurement varies by), else from the operating envelope's bands.
 fn tolerance_spread(exp: &DesignExpectation) -> [(f64, f64); 3] {
     let rel = |b: &super::ExpectedBand| {
         let r = if b.nominal != 0.0 {
@@ -72,6 +79,13 @@ fn tolerance_spread(exp: &DesignExpectation) -> [(f64, f64); 3] {
         };
         (r, b.monte_carlo.sigma.abs())
     };
+    if let Some(a) = &exp.as_built {
+        return [
+            (rel(&a.vout).0, 0.0),
+            rel(&a.limit_current),
+            rel(&a.short_circuit_current),
+        ];
+    }
     [
         (rel(&exp.vout).0, 0.0),
         rel(&exp.limit_current),
@@ -96,6 +110,36 @@ fn predict(d: &Design, p: &Params) -> [f64; 3] {
     [pt.vout_set, pt.limit_current, pt.short_circuit_current]
 }
 
+/// Where the pass junction may be: `(low, high)` degC, both ends included.
+type JunctionRange = Option<(f64, f64)>;
+
+/// A prediction with the pass junction at the middle of its range, and the standard spread
+/// per metric that the range leaves (uniform over the range: width / sqrt 12).
+fn predict_in(d: &Design, p: &Params, tj: JunctionRange) -> ([f64; 3], [f64; 3]) {
+    match tj {
+        Some((lo, hi)) if hi > lo => {
+            let at = |t: f64| {
+                let mut q = p.clone();
+                q.pass_junction_c = t;
+                predict(d, &q)
+            };
+            let (a, b) = (at(lo), at(hi));
+            let mid = at(0.5 * (lo + hi));
+            let mut s = [0.0; 3];
+            for k in 0..3 {
+                s[k] = (b[k] - a[k]).abs() / 12f64.sqrt();
+            }
+            (mid, s)
+        }
+        Some((t, _)) => {
+            let mut q = p.clone();
+            q.pass_junction_c = t;
+            (predict(d, &q), [0.0; 3])
+        }
+        None => (predict(d, p), [0.0; 3]),
+    }
+}
+
 struct Scorer {
     obs: [Option<Observed>; 3],
     spread: [(f64, f64); 3],
@@ -103,14 +147,15 @@ struct Scorer {
 }
 
 impl Scorer {
-    /// (score, worst z) of a prediction.
-    fn score(&self, pred: [f64; 3], free: usize) -> (f64, f64) {
+    /// (score, worst z) of a prediction with the extra spread `temp` per metric (from the
+    /// junction's temperature range).
+    fn score(&self, (pred, temp): ([f64; 3], [f64; 3]), free: usize) -> (f64, f64) {
         let mut chi2 = 0.0;
         let mut worst: f64 = 0.0;
-        for ((obs, (rel, abs)), p) in self.obs.iter().zip(self.spread).zip(pred) {
+        for (((obs, (rel, abs)), p), t) in self.obs.iter().zip(self.spread).zip(pred).zip(temp) {
             if let Some(o) = obs {
                 let tol = (rel * p).abs().max(abs);
-                let s = (o.u.powi(2) + tol.powi(2)).sqrt();
+                let s = (o.u.powi(2) + tol.powi(2) + t.powi(2)).sqrt();
                 let z = if s > 0.0 { (o.value - p) / s } else { 0.0 };
                 chi2 += z * z;
                 worst = worst.max(z.abs());
@@ -119,7 +164,8 @@ impl Scorer {
         // A one-sided observation: only a predicted limit below the bound is a residual.
         if let Some(b) = self.limit_at_least {
             let (rel, abs) = self.spread[1];
-            let s = (b.u.powi(2) + ((rel * pred[1]).abs().max(abs)).powi(2)).sqrt();
+            let s =
+                (b.u.powi(2) + ((rel * pred[1]).abs().max(abs)).powi(2) + temp[1].powi(2)).sqrt();
             if pred[1] < b.value && s > 0.0 {
                 let z = (b.value - pred[1]) / s;
                 chi2 += z * z;
@@ -186,25 +232,45 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         spread,
         limit_at_least: obs.limit_at_least,
     };
-    let mut base = Params::nominal(d);
-    if let Some(t) = obs.pass_junction_c {
-        base.pass_junction_c = t;
-    }
-    let (nominal_score, nominal_z) = scorer.score(predict(d, &base), 0);
-    let mut out = Vec::new();
-    let mut push = |part: String, d2: &Design, p: &Params, free: usize, prior: f64| {
-        let pred = predict(d2, p);
-        let (score, worst_z) = scorer.score(pred, free);
-        let score = score + prior;
-        if worst_z <= FIT_Z && score < nominal_score {
-            out.push(Hypothesis {
-                part,
-                score,
-                worst_z,
-                predicted: pred,
-            });
-        }
+    // The pass junction lies between the case reading and its settled value above it.
+    let tj: JunctionRange = match (obs.pass_case_c, obs.pass_junction_c) {
+        (Some(c), Some(j)) => Some((c.min(j), c.max(j))),
+        (None, Some(j)) => Some((j, j)),
+        _ => None,
     };
+    let mut base = Params::nominal(d);
+    if let Some((lo, hi)) = tj {
+        base.pass_junction_c = 0.5 * (lo + hi);
+    }
+    // Clamp parts sit at ambient unless the design mounts them on the heatsink; there they
+    // are at the sink, T_case - P theta_cs (thermal Ohm's law), never below ambient.
+    if let (ClampMount::Heatsink, Some(case), Some(j)) =
+        (d.limit.clamp_mount, obs.pass_case_c, obs.pass_junction_c)
+    {
+        let watts = if d.pass.theta_jc > 0.0 {
+            (j - case).max(0.0) / d.pass.theta_jc
+        } else {
+            0.0
+        };
+        base.clamp_junction_c = (case - watts * d.pass.theta_cs).max(base.ambient_c);
+    }
+    let (nominal_score, nominal_z) = scorer.score(predict_in(d, &base, tj), 0);
+    let mut out = Vec::new();
+    let mut push =
+        |part: String, d2: &Design, p: &Params, free: usize, prior: f64, at: JunctionRange| {
+            let pred = predict_in(d2, p, at);
+            let (score, worst_z) = scorer.score(pred, free);
+            let pred = pred.0;
+            let score = score + prior;
+            if worst_z <= FIT_Z && score < nominal_score {
+                out.push(Hypothesis {
+                    part,
+                    score,
+                    worst_z,
+                    predicted: pred,
+                });
+            }
+        };
 
     // Sense resistor at each neighbouring preferred value (E24 within a factor of two).
     let r0 = d.limit.sense.ohms;
@@ -230,6 +296,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
             &p,
             0,
             prior,
+            tj,
         );
     }
     // One clamp junction more or fewer; the other pass stage (diode-string clamp).
@@ -251,6 +318,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &p,
                 0,
                 0.0,
+                tj,
             );
         }
     }
@@ -275,6 +343,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &base,
                 0,
                 0.0,
+                tj,
             );
         }
     }
@@ -292,6 +361,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
             &p,
             0,
             0.0,
+            tj,
         );
     }
     // The output setting off: the reference, or either feedback resistor (the measurements
@@ -300,7 +370,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         let f = |x: f64| {
             let mut p = base.clone();
             p.vref = base.vref * x;
-            scorer.score(predict(d, &p), 1).0
+            scorer.score(predict_in(d, &p, tj), 1).0
         };
         let x = fit_free(0.8, 1.2, f);
         let mut p = base.clone();
@@ -331,6 +401,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &p,
                 1,
                 0.0,
+                tj,
             );
         }
     }
@@ -339,7 +410,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         let f = |x: f64| {
             let mut p = base.clone();
             p.fold_bottom = base.fold_bottom * x;
-            scorer.score(predict(d, &p), 1).0
+            scorer.score(predict_in(d, &p, tj), 1).0
         };
         let x = fit_free(0.5, 2.0, f);
         if (x - 1.0).abs() > 0.01 {
@@ -359,6 +430,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &p,
                 1,
                 0.0,
+                tj,
             );
         }
     }
@@ -371,10 +443,11 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         let hot = |t: f64| {
             let mut p = base.clone();
             p.pass_junction_c = t;
-            p.clamp_junction_c = base.ambient_c + (t - t0) * 0.5;
             p
         };
-        let t = fit_free(t0, t_max, |t| scorer.score(predict(d, &hot(t)), 1).0);
+        let t = fit_free(t0, t_max, |t| {
+            scorer.score(predict_in(d, &hot(t), None), 1).0
+        });
         if t > t0 + 5.0 && t < t_max - 0.5 {
             push(
                 format!(
@@ -386,6 +459,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &hot(t),
                 1,
                 0.0,
+                None,
             );
         }
     }
@@ -424,16 +498,27 @@ pub fn diagnosis_lines(diag: &Diagnosis) -> Vec<String> {
     if diag.fits.is_empty() {
         return vec!["no single-part explanation fits the measurements".to_string()];
     }
+    let best = diag.fits[0].score;
     diag.fits
         .iter()
-        .map(|h| {
+        .enumerate()
+        .map(|(k, h)| {
+            let tie = if k > 0 && h.score - best < TIE_SCORE {
+                "; fits about as well as the first: these measurements cannot tell them apart"
+            } else {
+                ""
+            };
             format!(
-                "{} (score {:.1}, worst residual {:.1} sigma)",
+                "{} (score {:.1}, worst residual {:.1} sigma{tie})",
                 h.part, h.score, h.worst_z
             )
         })
         .collect()
 }
+
+/// Score difference under which two hypotheses are said to fit equally well (a chi-square
+/// difference of 1 bounds one standard deviation for one parameter; common practice).
+pub const TIE_SCORE: f64 = 1.0;
 
 #[cfg(test)]
 mod tests {
@@ -463,6 +548,7 @@ mod tests {
             limit: Some(o(pred[1], 0.005 * pred[1])),
             short: Some(o(pred[2], 0.005 * pred[2])),
             pass_junction_c: None,
+            pass_case_c: None,
             limit_at_least: None,
         }
     }
@@ -594,6 +680,120 @@ mod tests {
     }
 
     #[test]
+    fn a_junction_not_yet_settled_against_the_case_is_not_read_as_a_different_part() {
+        // Heat flows from the junction to the case, so while the pass device heats its
+        // junction lies between the case reading and the case reading plus P theta_jc (the
+        // value it settles at; thermal Ohm's law, textbook). The demo's unit (seed 2027, a
+        // 0.68 ohm sense resistor on the teaching-lab design) read its knee with the case at
+        // 28.3 degC and 15.9 W in the pass device (theta_jc 0.7 degC/W: 28.3 to 39.4 degC)
+        // while its junction was at about 32.5 degC. Read at 39.4 degC the Darlington's two
+        // junctions raise the predicted threshold by 2 x 2 mV x 6.9 = 28 mV (4 %), and a
+        // 0.75 ohm part fitted better; anywhere in the range the right part must rank first.
+        let (d, x) = sample("lab");
+        let mut p = Params::draw(&d, &mut Rng::new(2027));
+        p.set_ambient(d.environment.ambient_c);
+        p.r_sense = 0.68;
+        let (case, watts) = (28.3, 15.86);
+        let settled = case + watts * d.pass.theta_jc;
+        for share in [0.0, 0.4, 1.0] {
+            let mut hot = p.clone();
+            hot.pass_junction_c = case + share * (settled - case);
+            let pred = predict(&d, &hot);
+            let obs = Observations {
+                vout: Some(Observed {
+                    value: pred[0],
+                    u: 2e-3,
+                }),
+                limit: Some(Observed {
+                    value: pred[1],
+                    u: 0.005 * pred[1],
+                }),
+                short: Some(Observed {
+                    value: pred[2],
+                    u: 0.005 * pred[2],
+                }),
+                pass_junction_c: Some(settled),
+                pass_case_c: Some(case),
+                limit_at_least: None,
+            };
+            let diag = diagnose(&d, &x, &obs);
+            let first = diag.fits.first().map(|h| h.part.clone());
+            assert!(
+                first
+                    .as_deref()
+                    .is_some_and(|h| h.contains("a 0.68 ohm sense resistor")),
+                "settled {share}: {:#?}",
+                diag.fits
+            );
+        }
+    }
+
+    #[test]
+    fn hypotheses_within_one_of_the_best_score_are_said_to_be_indistinguishable() {
+        // A chi-square difference under 1 is within one standard deviation (common
+        // practice): the second is flagged, the third (2.0 above the best) is not.
+        let h = |part: &str, score: f64| Hypothesis {
+            part: part.to_string(),
+            score,
+            worst_z: 0.5,
+            predicted: [0.0; 3],
+        };
+        let diag = Diagnosis {
+            nominal_fits: false,
+            fits: vec![h("a", 0.9), h("b", 1.8), h("c", 2.9)],
+        };
+        let lines = diagnosis_lines(&diag);
+        assert!(!lines[0].contains("cannot tell"), "{lines:?}");
+        assert!(lines[1].contains("cannot tell them apart"), "{lines:?}");
+        assert!(!lines[2].contains("cannot tell"), "{lines:?}");
+    }
+
+    #[test]
+    fn clamp_diodes_on_the_heatsink_are_read_at_the_sink() {
+        // A diode string mounted on the heatsink sits at T_sink = T_case - P theta_cs (thermal
+        // Ohm's law, textbook): with the case at 40 degC and 20 W (theta_cs 0.2 degC/W) at
+        // 36 degC, 11 degC above the room, its three drops are 3 x 2 mV x 11 = 66 mV (10 %)
+        // lower than at ambient. A 0.68 ohm unit read so must still be named right.
+        let (mut d, _) = sample("lab");
+        d.limit.clamp_mount = ClampMount::Heatsink;
+        let e = crate::design::expect_with(&d, 2000, 7);
+        let x = DesignExpectation::from_design(&d, &e);
+        let (case, watts) = (40.0, 20.0);
+        let settled = case + watts * d.pass.theta_jc;
+        let mut p = Params::nominal(&d);
+        p.r_sense = 0.68;
+        p.pass_junction_c = 0.5 * (case + settled);
+        p.clamp_junction_c = case - watts * d.pass.theta_cs;
+        let pred = predict(&d, &p);
+        let obs = Observations {
+            vout: Some(Observed {
+                value: pred[0],
+                u: 2e-3,
+            }),
+            limit: Some(Observed {
+                value: pred[1],
+                u: 0.005 * pred[1],
+            }),
+            short: Some(Observed {
+                value: pred[2],
+                u: 0.005 * pred[2],
+            }),
+            pass_junction_c: Some(settled),
+            pass_case_c: Some(case),
+            limit_at_least: None,
+        };
+        let diag = diagnose(&d, &x, &obs);
+        let first = diag.fits.first().map(|h| (h.part.clone(), h.worst_z));
+        assert!(
+            first
+                .as_ref()
+                .is_some_and(|(h, z)| h.contains("a 0.68 ohm sense resistor") && *z < 0.5),
+            "{:#?}",
+            diag.fits
+        );
+    }
+
+    #[test]
     fn nothing_that_fits_is_said_so() {
         // The output at half the design and the limit at three times: no single part does
         // both.
@@ -613,6 +813,7 @@ mod tests {
                 u: 0.01,
             }),
             pass_junction_c: None,
+            pass_case_c: None,
             limit_at_least: None,
         };
         let diag = diagnose(&d, &x, &obs);

@@ -53,6 +53,7 @@ fn expectation() -> DesignExpectation {
         curve_high: vec![],
         rated_load_a: None,
         design: None,
+        as_built: None,
     }
 }
 

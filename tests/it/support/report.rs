@@ -156,6 +156,7 @@ pub fn expectation() -> DesignExpectation {
         curve_high: vec![],
         rated_load_a: None,
         design: None,
+        as_built: None,
     }
 }
 
