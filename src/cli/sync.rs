@@ -4,7 +4,7 @@
 //! store-backed history of `regulus history --store`. Thin: the logic lives in `crate::store`.
 
 use super::station as st_run;
-use super::{usage, EXIT_ABORTED, EXIT_OK};
+use super::{usage, EXIT_ERROR, EXIT_OK};
 use crate::report::{self, History};
 use crate::store;
 use anyhow::Context;
@@ -64,7 +64,8 @@ pub async fn sync_once(
     store::sync_folder(&mut client, records, station).await
 }
 
-/// Say what a sync did; exit 0 when the queue was emptied, 3 when runs stay queued.
+/// Say what a sync did; exit 0 when the queue was emptied, 4 (a station error: the store is
+/// away or refused a run) when runs stay queued.
 pub fn report_sync(
     out: &mut impl Write,
     url: &str,
@@ -86,7 +87,7 @@ pub fn report_sync(
             for s in &r.skipped {
                 writeln!(out, "not uploaded: {s}")?;
             }
-            Ok(if queued == 0 { EXIT_OK } else { EXIT_ABORTED })
+            Ok(if queued == 0 { EXIT_OK } else { EXIT_ERROR })
         }
         Err(e) if e.is_unreachable() => {
             writeln!(
@@ -96,7 +97,7 @@ pub fn report_sync(
                 records.display()
             )?;
             let _ = url;
-            Ok(EXIT_ABORTED)
+            Ok(EXIT_ERROR)
         }
         Err(e) => Err(e.into()),
     }

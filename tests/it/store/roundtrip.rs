@@ -141,7 +141,7 @@ fn sync_uploads_once_and_reruns_change_nothing() {
         .arg(&records)
         .output()
         .unwrap();
-    assert_eq!(out.status.code(), Some(3), "{}", show(&out));
+    assert_eq!(out.status.code(), Some(4), "{}", show(&out));
     assert!(
         String::from_utf8_lossy(&out.stdout).contains("store unreachable")
             && String::from_utf8_lossy(&out.stdout).contains("1 run(s) stay queued"),

@@ -120,7 +120,7 @@ fn eight_stations_sync_through_killed_syncs_and_a_server_outage() {
         );
     }
     let (code, text) = finish(sync(&floors[1], &pg.url));
-    assert_eq!(code, Some(3), "{text}");
+    assert_eq!(code, Some(4), "{text}");
     assert!(
         text.contains("store unreachable") && text.contains("stay queued"),
         "{text}"
