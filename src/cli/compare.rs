@@ -178,7 +178,8 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         summaries.push(s);
     }
     // Runs from the store carry their metrics and outcome, not their files: judged by the one
-    // rule on run.json's outcome and the record's state.
+    // rule on run.json's outcome and the record's state. Their candidates follow the folder
+    // records' in the same order, so candidate i is stored run i - summaries.len().
     let mut stored_judged = Vec::new();
     for (record, unit, m, outcome, state) in stored {
         let c = compare::compare(&m, &exp);
@@ -190,7 +191,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             started_utc: String::new(),
             finished,
         });
-        stored_judged.push((candidates.len() - 1, unit, m, verdict, c));
+        stored_judged.push((unit, m, verdict, c));
     }
     let selection = if args.every_record {
         Selection::Every
@@ -202,7 +203,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let mut units: Vec<(String, KeyValues)> = Vec::new();
     for &i in &chosen.judged {
         let Some(s) = summaries.get(i) else {
-            if let Some((_, unit, m, verdict, c)) = stored_judged.iter().find(|e| e.0 == i) {
+            if let Some((unit, m, verdict, c)) = stored_judged.get(i - summaries.len()) {
                 if candidates[i].finished {
                     units.push((unit.clone(), KeyValues::from_metrics(m)));
                 }
