@@ -17,7 +17,7 @@ fn regulus() -> Command {
 
 #[test]
 fn sync_uploads_once_and_reruns_change_nothing() {
-    let Some(pg) = Pg::start_or_skip("the store round trip") else {
+    let Some(pg) = Pg::system_or_private("the store round trip") else {
         return;
     };
     let tmp = tempfile::tempdir().unwrap();
