@@ -1,15 +1,18 @@
 //! History and compare through the records index over 100,000 indexed runs of SYNTHETIC
 //! records (see tests/it/support/report.rs; goal: under 1 s each). The index holds 100,000
 //! rows (one unit with real folders, the rest rows only), so a unit's history pays for the
-//! check of its folders plus an indexed query, and compare re-judges every run's stored
-//! metrics against the design.
+//! check of its folders plus an indexed query. `compare --index` is measured on the command's
+//! own path (`regulus::cli::compare::evaluate` on parsed arguments): the 99,980 row-only runs
+//! are marked as runs of the fixed-12V sample design with what a standard plan promises, so
+//! they are judged from the index alone; the 20 real folders (a synthetic design) are judged
+//! from their files, as the command does for runs of another design.
 
 #[path = "../tests/it/support/report.rs"]
 mod report_support;
 
+use clap::Parser;
 use criterion::{criterion_group, criterion_main, Criterion};
 use regulus::analysis::AnalysisOptions;
-use regulus::compare::{self, KeyValues};
 use regulus::index::Index;
 use regulus::report::{self, ReportOptions};
 use regulus::rng::Rng;
@@ -39,11 +42,29 @@ fn bench_index(c: &mut Criterion) {
         .into_iter()
         .next()
         .expect("one run");
+    let design = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("samples")
+        .join("fixed-12v-3a-foldback.toml");
+    let design_sha256 = regulus::pipeline::InputFile::read(&design, "design file")
+        .expect("sample design")
+        .sha256();
+    let standard = regulus::plan::outline(
+        &std::fs::read_to_string(
+            std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("samples/plans/standard.toml"),
+        )
+        .expect("standard plan"),
+        "standard.toml",
+    )
+    .expect("standard plan outline");
+    let judging =
+        serde_json::to_string(&regulus::floor::judging_of(&standard, None)).expect("judging json");
     let mut rows = Vec::with_capacity(RUNS - 20);
     for k in 0..RUNS - 20 {
         let mut r = model.clone();
         r.unit = format!("SN-{k:06}");
         r.folder = format!("20261102T{:06}Z_standard", k % 240000);
+        r.design_sha256 = design_sha256.clone();
+        r.judging_json = Some(judging.clone());
         rows.push(r);
     }
     idx.upsert(&rows).expect("upsert");
@@ -68,36 +89,28 @@ fn bench_index(c: &mut Criterion) {
             rows.len()
         })
     });
-    g.bench_function("compare every indexed run against the design", |b| {
-        b.iter(|| {
-            let runs = regulus::cli::index::indexed_metrics(
-                black_box(root),
-                None,
-                &AnalysisOptions::default(),
-            )
-            .expect("runs");
-            assert_eq!(runs.len(), RUNS);
-            let mut units = Vec::with_capacity(runs.len());
-            let mut fails = 0;
-            for (_, unit, m, outcome, state) in &runs {
-                let c = compare::compare(m, &exp);
-                if compare::record_verdict(*outcome, Some(*state), Some(c.verdict))
-                    == Some(compare::Verdict::Fail)
-                {
-                    fails += 1;
-                }
-                units.push((unit.clone(), KeyValues::from_metrics(m)));
-            }
-            let specs = vec![(
-                compare::KeyMetric::LimitCurrent,
-                exp.limit_current.worst_case,
-            )];
-            (
-                fails,
-                compare::population(&units, &specs, compare::DEFAULT_OUTLIER_Z),
-            )
-        })
-    });
+    let args = regulus::cli::Cli::try_parse_from([
+        "regulus".as_ref(),
+        "compare".as_ref(),
+        "--design".as_ref(),
+        design.as_os_str(),
+        "--index".as_ref(),
+        root.as_os_str(),
+    ])
+    .expect("compare arguments");
+    let regulus::cli::Command::Compare(args) = args.command else {
+        panic!("not a compare command");
+    };
+    g.bench_function(
+        "compare --index over every indexed run (the command's path)",
+        |b| {
+            b.iter(|| {
+                let out = regulus::cli::compare::evaluate(black_box(&args)).expect("compare");
+                assert_eq!(out.offered, RUNS);
+                out.records.len()
+            })
+        },
+    );
     g.finish();
 }
 

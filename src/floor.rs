@@ -9,6 +9,31 @@ use crate::compare::{self, Verdict};
 use crate::record::{Outcome, RecordState};
 use crate::station::FloorResult;
 
+/// The limits a plan's steps set on metrics the design gives no band for, the first of each
+/// kind.
+pub fn metric_limits(
+    steps: impl Iterator<Item = crate::plan::StepLimits>,
+) -> compare::MetricLimits {
+    let mut l = compare::MetricLimits::default();
+    for s in steps {
+        l.line_regulation_percent = l.line_regulation_percent.or(s.max_change_percent);
+        l.soak_drift_percent = l.soak_drift_percent.or(s.max_drift_percent);
+        l.soak_rise_c = l.soak_rise_c.or(s.max_rise_c);
+    }
+    l
+}
+
+/// What a run's plan promised and limited, from its plan snapshot's steps, with run.json's
+/// reason: what judging the run's metrics without its files needs.
+pub fn judging_of(steps: &[crate::plan::StepOutline], reason: Option<String>) -> compare::Judging {
+    let kinds: Vec<_> = steps.iter().map(|o| o.kind).collect();
+    compare::Judging {
+        promised: compare::promised_metrics(&kinds),
+        limits: metric_limits(steps.iter().map(|o| o.limits)),
+        reason,
+    }
+}
+
 /// The floor result of an overall verdict decided by the one rule (`compare::judge`, as
 /// summary.json holds it): the five outcomes map one to one; no verdict at all (nothing was
 /// judged) is INCOMPLETE, never PASS.

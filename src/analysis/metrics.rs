@@ -153,7 +153,7 @@ pub struct LineRegulation {
 
 /// Everything the analysis found in one record. Absent metrics are `None`, with a note in
 /// `notes` saying why.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
 pub struct Metrics {
     pub rows: usize,
     pub no_load: Option<CurvePoint>,

@@ -53,25 +53,102 @@ pub struct Args {
     pub analysis: AnalysisArgs,
 }
 
-#[derive(serde::Serialize)]
-struct Judged {
-    record: String,
-    unit: String,
+/// One judged record.
+#[derive(Debug, serde::Serialize)]
+pub struct Judged {
+    pub record: String,
+    pub unit: String,
     /// The overall outcome by the one rule (pass, marginal, fail, incomplete, error).
-    verdict: Option<Verdict>,
-    reasons: Vec<String>,
-    comparison: Option<compare::Comparison>,
+    pub verdict: Option<Verdict>,
+    pub reasons: Vec<String>,
+    pub comparison: Option<compare::Comparison>,
 }
 
-#[derive(serde::Serialize)]
-struct Output {
-    design: String,
+/// What `regulus compare` prints.
+#[derive(Debug, serde::Serialize)]
+pub struct Output {
+    pub design: String,
     /// Records offered (after expanding unit and records folders).
-    offered: usize,
-    units: usize,
-    records: Vec<Judged>,
-    left_out: Vec<compare::LeftOut>,
-    population: compare::Population,
+    pub offered: usize,
+    pub units: usize,
+    pub records: Vec<Judged>,
+    pub left_out: Vec<compare::LeftOut>,
+    pub population: compare::Population,
+}
+
+/// A record offered for judging, judged.
+struct Offered {
+    candidate: compare::Candidate,
+    judged: Judged,
+    values: KeyValues,
+}
+
+/// A run judged from what an index or a store holds, without its folder.
+struct FilelessRun {
+    record: String,
+    unit: String,
+    started_utc: String,
+    outcome: crate::record::Outcome,
+    state: crate::record::RecordState,
+    metrics: Option<crate::analysis::Metrics>,
+    judging: Option<compare::Judging>,
+    /// The run was analysed against the design it is judged against.
+    same_design: bool,
+}
+
+/// Judge a run by the one rule from its metrics and what its plan promised. Without its
+/// metrics every promised metric is missing; without knowing what its plan promised the run
+/// cannot pass (INCOMPLETE, with the reason).
+fn without_files(r: FilelessRun, exp: &compare::DesignExpectation) -> Offered {
+    let summarised = r.metrics.is_some();
+    let m = r.metrics.unwrap_or_default();
+    let known = r.judging.is_some();
+    let j = r.judging.unwrap_or_default();
+    let facts = compare::RecordFacts {
+        outcome: r.outcome,
+        state: Some(r.state),
+        reason: j.reason.as_deref(),
+    };
+    let (comparison, _, mut judgement) =
+        compare::judge_metrics(&m, Some(exp), &j.limits, &j.promised, facts);
+    if !known {
+        judgement.verdict = Some(
+            judgement
+                .verdict
+                .map_or(Verdict::Incomplete, |v| v.max(Verdict::Incomplete)),
+        );
+        judgement.reasons.push(
+            "what the run's plan promised is not known here (no plan snapshot that reads, or \
+             a summary analysed with settings other than the defaults): judge its folder"
+                .to_string(),
+        );
+    }
+    if !summarised {
+        judgement
+            .reasons
+            .push("no summary of the run is held here (its metrics are unknown)".to_string());
+    }
+    if !r.same_design {
+        judgement.reasons.push(
+            "its metrics were analysed against the design it ran with, not this one".to_string(),
+        );
+    }
+    Offered {
+        candidate: compare::Candidate {
+            record: r.record.clone(),
+            unit: r.unit.clone(),
+            started_utc: r.started_utc,
+            finished: compare::finished(r.outcome, Some(r.state)),
+        },
+        values: KeyValues::from_metrics(&m),
+        judged: Judged {
+            record: r.record,
+            unit: r.unit,
+            verdict: judgement.verdict,
+            reasons: judgement.reasons,
+            comparison,
+        },
+    }
 }
 
 /// Record folders under `path`: the folder itself when it holds run.json, else its
@@ -120,6 +197,21 @@ fn expand(path: &Path) -> anyhow::Result<Vec<PathBuf>> {
 }
 
 pub fn run(args: Args) -> anyhow::Result<u8> {
+    let out = evaluate(&args)?;
+    let code = super::for_verdicts(out.records.iter().map(|j| j.verdict));
+    let mut w = Console::new(std::io::stdout().lock());
+    if args.json {
+        let _ = serde_json::to_writer_pretty(&mut w, &out);
+        let _ = writeln!(w);
+    } else {
+        let _ = write_table(&mut w, &out);
+    }
+    Ok(code)
+}
+
+/// Everything `regulus compare` decides and writes (the histograms of `--plot-dir`), without
+/// printing: the records chosen and judged, those left out, the population statistics.
+pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
     let aopts = args.analysis.options().map_err(usage)?;
     if args.z_limit.is_nan() || args.z_limit <= 0.0 {
         return Err(usage("--z-limit must be positive (default 3)"));
@@ -142,92 +234,108 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         }
     }
     let exp = load_expectation(&args.design)?;
+    let design_sha256 = crate::pipeline::InputFile::read(&args.design, "design file")?.sha256();
     let mut dirs = Vec::new();
     for r in &args.records {
         dirs.extend(expand(r)?);
     }
-    // The index lists local record folders: they are judged from their files, by the same
-    // rule as folders given by hand (the metrics the plan promised included).
+    let mut offered = Vec::new();
+    // Indexed runs of this very design, with a summary analysed with the default settings
+    // and a plan snapshot, are judged from the index alone: their metrics are those the
+    // folder would give and the index holds what the plan promised, so the one rule decides
+    // exactly as it would from the files. Every other indexed run is judged from its folder.
     if let Some(root) = &args.index {
-        for (record, ..) in super::index::indexed_metrics(root, args.unit.as_deref(), &aopts)? {
-            dirs.push(PathBuf::from(record));
+        let (fast, slow) = super::index::judging_rows(root, args.unit.as_deref(), &aopts)?
+            .into_iter()
+            .partition::<Vec<_>, _>(|r| {
+                r.design_sha256 == design_sha256 && r.metrics.is_some() && r.judging.is_some()
+            });
+        for r in slow {
+            dirs.push(root.join(&r.unit).join(&r.folder));
         }
+        offered.extend(fast.into_iter().map(|r| {
+            let record = root.join(&r.unit).join(&r.folder).display().to_string();
+            without_files(
+                FilelessRun {
+                    record,
+                    unit: r.unit,
+                    started_utc: r.started_utc,
+                    outcome: r.outcome,
+                    state: r.state,
+                    metrics: r.metrics,
+                    judging: r.judging,
+                    same_design: true,
+                },
+                &exp,
+            )
+        }));
     }
-    let stored = match &args.store {
-        Some(url) => super::sync::store_metrics(url, args.unit.as_deref(), &aopts)?,
-        None => Vec::new(),
-    };
     let mut ao = aopts.clone();
     ao.nominal_voltage.get_or_insert(exp.vout.nominal);
     let opts = crate::report::ReportOptions {
         analysis: ao,
         ..Default::default()
     };
-    let mut summaries = Vec::new();
-    let mut candidates = Vec::new();
     for r in &dirs {
         let rec = crate::report::load_record(r)
             .with_context(|| format!("reading record {}", r.display()))?;
         let s = crate::report::evaluate_loaded(&rec, r, Some(&exp), &opts);
-        candidates.push(compare::Candidate {
-            record: r.display().to_string(),
-            unit: rec.info.unit.clone(),
-            started_utc: rec.info.started_utc.clone(),
-            finished: compare::finished(rec.info.outcome, Some(rec.state)),
+        offered.push(Offered {
+            candidate: compare::Candidate {
+                record: r.display().to_string(),
+                unit: rec.info.unit.clone(),
+                started_utc: rec.info.started_utc.clone(),
+                finished: compare::finished(rec.info.outcome, Some(rec.state)),
+            },
+            values: KeyValues::from_metrics(&s.metrics),
+            judged: Judged {
+                record: r.display().to_string(),
+                unit: s.unit,
+                verdict: s.verdict,
+                reasons: s.reasons,
+                comparison: s.comparison,
+            },
         });
-        summaries.push(s);
     }
-    // Runs from the store carry their metrics and outcome, not their files: judged by the one
-    // rule on run.json's outcome and the record's state. Their candidates follow the folder
-    // records' in the same order, so candidate i is stored run i - summaries.len().
-    let mut stored_judged = Vec::new();
-    for (record, unit, m, outcome, state) in stored {
-        let c = compare::compare(&m, &exp);
-        let verdict = compare::record_verdict(outcome, Some(state), Some(c.verdict));
-        let finished = compare::finished(outcome, Some(state));
-        candidates.push(compare::Candidate {
-            record: record.clone(),
-            unit: unit.clone(),
-            started_utc: String::new(),
-            finished,
-        });
-        stored_judged.push((unit, m, verdict, c));
+    // Runs from the store carry their summary and plan snapshot, not their readings: judged
+    // by the one rule from the metrics the station analysed and what the plan promised.
+    if let Some(url) = &args.store {
+        for r in super::sync::store_metrics(url, args.unit.as_deref(), &aopts)? {
+            let same_design = r.design_sha256 == design_sha256;
+            offered.push(without_files(
+                FilelessRun {
+                    record: r.run_id,
+                    unit: r.unit,
+                    started_utc: r.started_utc,
+                    outcome: r.outcome,
+                    state: r.state,
+                    metrics: r.metrics,
+                    judging: r.judging,
+                    same_design,
+                },
+                &exp,
+            ));
+        }
     }
     let selection = if args.every_record {
         Selection::Every
     } else {
         Selection::LatestFinished
     };
+    let candidates: Vec<compare::Candidate> = offered.iter().map(|o| o.candidate.clone()).collect();
     let chosen = compare::choose_records(&candidates, selection);
+    let mut slots: Vec<Option<Offered>> = offered.into_iter().map(Some).collect();
     let mut judged = Vec::new();
     let mut units: Vec<(String, KeyValues)> = Vec::new();
     for &i in &chosen.judged {
-        let Some(s) = summaries.get(i) else {
-            if let Some((unit, m, verdict, c)) = stored_judged.get(i - summaries.len()) {
-                if candidates[i].finished {
-                    units.push((unit.clone(), KeyValues::from_metrics(m)));
-                }
-                judged.push(Judged {
-                    record: candidates[i].record.clone(),
-                    unit: unit.clone(),
-                    verdict: *verdict,
-                    reasons: vec!["judged from the store's metrics and outcome".to_string()],
-                    comparison: Some(c.clone()),
-                });
-            }
+        let Some(o) = slots.get_mut(i).and_then(Option::take) else {
             continue;
         };
         // Only units judged on a finished run enter the population statistics.
-        if candidates[i].finished {
-            units.push((s.unit.clone(), KeyValues::from_metrics(&s.metrics)));
+        if o.candidate.finished {
+            units.push((o.judged.unit.clone(), o.values));
         }
-        judged.push(Judged {
-            record: candidates[i].record.clone(),
-            unit: s.unit.clone(),
-            verdict: s.verdict,
-            reasons: s.reasons.clone(),
-            comparison: s.comparison.clone(),
-        });
+        judged.push(o.judged);
     }
     let specs = vec![
         (KeyMetric::OutputVoltage, exp.vout.worst_case),
@@ -254,7 +362,6 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             std::fs::write(&path, svg).with_context(|| format!("writing {}", path.display()))?;
         }
     }
-    let code = super::for_verdicts(judged.iter().map(|j| j.verdict));
     let mut unit_names: Vec<&str> = judged.iter().map(|j| j.unit.as_str()).collect();
     unit_names.sort();
     unit_names.dedup();
@@ -266,14 +373,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
         left_out: chosen.left_out,
         population,
     };
-    let mut w = Console::new(std::io::stdout().lock());
-    if args.json {
-        let _ = serde_json::to_writer_pretty(&mut w, &out);
-        let _ = writeln!(w);
-    } else {
-        let _ = write_table(&mut w, &out);
-    }
-    Ok(code)
+    Ok(out)
 }
 
 fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {

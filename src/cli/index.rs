@@ -77,25 +77,14 @@ pub fn history(records: &Path, unit: &str, opts: &AnalysisOptions) -> anyhow::Re
     Ok(h)
 }
 
-/// One indexed run for `regulus compare --index`: its folder, unit, metrics, outcome and
-/// state.
-pub type IndexedMetrics = (
-    String,
-    String,
-    crate::analysis::Metrics,
-    crate::record::Outcome,
-    crate::record::RecordState,
-);
-
-/// The runs of a records folder's index with their metrics (those without metrics, which
-/// have neither a summary nor readable readings, are left out), for `compare --index`.
-/// The index holds metrics analysed with the default settings, so other settings are
-/// refused.
-pub fn indexed_metrics(
+/// The runs of a records folder's index (all, or one unit's, whose rows are first checked
+/// against its folders) as `compare --index` judges them. The index holds metrics analysed
+/// with the default settings, so other settings are refused.
+pub fn judging_rows(
     records: &Path,
     unit: Option<&str>,
     opts: &AnalysisOptions,
-) -> anyhow::Result<Vec<IndexedMetrics>> {
+) -> anyhow::Result<Vec<index::JudgingRow>> {
     if *opts != AnalysisOptions::default() {
         return Err(usage(
             "--index uses the metrics the index holds, analysed with the default settings: \
@@ -112,12 +101,5 @@ pub fn indexed_metrics(
     if let Some(u) = unit {
         idx.refresh_unit(u)?;
     }
-    Ok(idx
-        .metrics_of_runs(unit)?
-        .into_iter()
-        .map(|(u, folder, outcome, state, m)| {
-            let label = records.join(&u).join(&folder).display().to_string();
-            (label, u, m, outcome, state)
-        })
-        .collect())
+    Ok(idx.judging_rows(unit)?)
 }

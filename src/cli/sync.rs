@@ -119,14 +119,14 @@ pub fn history_from_store(url: &str, unit: &str) -> anyhow::Result<History> {
     Ok(h)
 }
 
-/// Every run's metrics from the store (or one unit's), for `regulus compare --store`, in the
-/// shape `compare --index` uses: (run id, unit, metrics, outcome, state). The store holds the
-/// metrics its stations analysed with the default settings, so other settings are refused.
+/// Every run from the store (or one unit's) with its metrics and what its plan promised, for
+/// `regulus compare --store`. The store holds the metrics its stations analysed with the
+/// default settings, so other settings are refused.
 pub fn store_metrics(
     url: &str,
     unit: Option<&str>,
     opts: &crate::analysis::AnalysisOptions,
-) -> anyhow::Result<Vec<super::index::IndexedMetrics>> {
+) -> anyhow::Result<Vec<store::StoreMetrics>> {
     if *opts != crate::analysis::AnalysisOptions::default() {
         return Err(usage(
             "--store uses the metrics the store holds, analysed with the default settings: \
@@ -141,8 +141,5 @@ pub fn store_metrics(
         let client = store::connect(url).await?;
         store::store_metrics(&client, unit).await
     })?;
-    Ok(runs
-        .into_iter()
-        .map(|(id, unit, outcome, state, m)| (id, unit, m, outcome, state))
-        .collect())
+    Ok(runs)
 }

@@ -4,7 +4,7 @@
 //! `run`, `report`, `history` and `compare` all decide through [`judge`] (or its short form
 //! [`record_verdict`] when only run.json is known). Pure: no files are read here.
 
-use super::{Comparison, Verdict};
+use super::{Comparison, DesignExpectation, MetricLimits, Verdict};
 use crate::analysis::Metrics;
 use crate::record::{Outcome, RecordState, StepKind};
 use serde::{Deserialize, Serialize};
@@ -235,6 +235,44 @@ pub fn record_verdict(
         j.verdict = Some(j.verdict.map_or(v, |w| w.max(v)));
     }
     j.verdict
+}
+
+/// What judging a run without its files needs beside its metrics and outcome: the metrics
+/// its plan promised, the limits its plan set, and run.json's reason.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct Judging {
+    pub promised: Vec<Promised>,
+    pub limits: MetricLimits,
+    pub reason: Option<String>,
+}
+
+/// A record's metrics judged as its summary judges them: the design's checks and the plan's
+/// limit checks (the comparison's verdict is the worst of them), the promised metrics that
+/// are missing, and the one rule over all of it with the record's facts. `exp` is `None`
+/// when there is no design to judge against. Used by the summary of a record and by
+/// everything that re-judges indexed or stored metrics without the record's files, so both
+/// decide alike.
+pub fn judge_metrics(
+    m: &Metrics,
+    exp: Option<&DesignExpectation>,
+    limits: &MetricLimits,
+    promised: &[Promised],
+    facts: RecordFacts<'_>,
+) -> (Option<Comparison>, Vec<Missing>, Judgement) {
+    let comparison = exp.map(|e| {
+        let mut c = super::compare(m, e);
+        c.checks.extend(super::plan_limit_checks(m, limits));
+        c.verdict = c
+            .checks
+            .iter()
+            .map(|ch| ch.verdict)
+            .max()
+            .unwrap_or(Verdict::Pass);
+        c
+    });
+    let missing = missing_metrics(m, promised);
+    let judgement = judge(facts, comparison.as_ref(), &missing);
+    (comparison, missing, judgement)
 }
 
 #[cfg(test)]

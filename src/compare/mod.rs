@@ -12,8 +12,8 @@ mod drift;
 mod finished;
 pub use drift::*;
 pub use finished::{
-    finished, judge, missing_metrics, promised_metrics, record_verdict, Judgement, Missing,
-    Promised, RecordFacts,
+    finished, judge, judge_metrics, missing_metrics, promised_metrics, record_verdict, Judgement,
+    Judging, Missing, Promised, RecordFacts,
 };
 mod design;
 pub use design::*;

@@ -4,7 +4,7 @@
 //! write at once (WAL journal, a busy timeout).
 
 use super::scan::{mtime_ns, scan_record};
-use super::types::{IndexError, IndexedRun, MetricsRow};
+use super::types::{IndexError, IndexedRun, JudgingRow, MetricsRow};
 use crate::compare::{KeyMetric, KeyValues, Verdict};
 use crate::record::{self, RecordError};
 use crate::station::FloorResult;
@@ -15,7 +15,7 @@ use std::time::Duration;
 /// File name of the index in a records root.
 pub const INDEX_FILE: &str = ".regulus-index.sqlite";
 /// Schema version of the index (a different version is rebuilt).
-const SCHEMA: i64 = 1;
+const SCHEMA: i64 = 2;
 
 /// Where the index of a records root lives.
 pub fn index_path(records: &Path) -> PathBuf {
@@ -49,7 +49,7 @@ pub struct Index {
 const COLUMNS: &str = "unit, folder, station, operator, design_name, design_sha256, plan_name, \
 started_utc, ended_utc, outcome, state, verdict, result, rows, output_voltage, load_regulation, \
 output_resistance, limit_current, short_circuit_current, short_circuit_drift, metrics_json, \
-run_mtime, summary_mtime";
+run_mtime, summary_mtime, judging_json";
 
 impl Index {
     /// Open (creating when missing) the index of a records root; the root must exist.
@@ -74,7 +74,8 @@ impl Index {
         let version: i64 = conn
             .pragma_query_value(None, "user_version", |r| r.get(0))
             .map_err(sq)?;
-        if version != SCHEMA {
+        let made_anew = version != SCHEMA;
+        if made_anew {
             conn.execute_batch(&format!(
                 "BEGIN IMMEDIATE;
                  DROP TABLE IF EXISTS runs;
@@ -86,6 +87,7 @@ impl Index {
                    output_voltage REAL, load_regulation REAL, output_resistance REAL,
                    limit_current REAL, short_circuit_current REAL, short_circuit_drift REAL,
                    metrics_json TEXT, run_mtime INTEGER NOT NULL, summary_mtime INTEGER NOT NULL,
+                   judging_json TEXT,
                    PRIMARY KEY (unit, folder));
                  CREATE INDEX runs_by_design ON runs (design_sha256, started_utc);
                  CREATE INDEX runs_by_design_name ON runs (design_name, started_utc);
@@ -95,11 +97,17 @@ impl Index {
             ))
             .map_err(sq)?;
         }
-        Ok(Index {
+        let mut idx = Index {
             conn,
             root: records.to_path_buf(),
             path,
-        })
+        };
+        // A new index, or one of another schema (dropped above), is filled from the folders
+        // at once: an empty index would read as a records folder without runs.
+        if made_anew {
+            idx.rebuild()?;
+        }
+        Ok(idx)
     }
 
     fn sq(&self) -> impl Fn(rusqlite::Error) -> IndexError + '_ {
@@ -127,7 +135,7 @@ impl Index {
             let mut st = tx
                 .prepare_cached(&format!(
                     "INSERT OR REPLACE INTO runs ({COLUMNS}) VALUES \
-                     (?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19,?20,?21,?22,?23)"
+                     (?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19,?20,?21,?22,?23,?24)"
                 ))
                 .map_err(sq)?;
             for r in runs {
@@ -156,6 +164,7 @@ impl Index {
                     r.metrics_json,
                     r.run_mtime,
                     r.summary_mtime,
+                    r.judging_json,
                 ])
                 .map_err(sq)?;
             }
@@ -303,31 +312,66 @@ impl Index {
             .map_err(&sq)?
             .collect::<Result<_, _>>()
             .map_err(&sq)?;
-        let threads = std::thread::available_parallelism()
-            .map_or(1, |n| n.get())
-            .max(1);
-        let chunk = raw.len().div_ceil(threads).max(1);
-        let parsed: Vec<Vec<MetricsRow>> = std::thread::scope(|s| {
-            let handles: Vec<_> = raw
-                .chunks(chunk)
-                .map(|part| {
-                    s.spawn(move || {
-                        part.iter()
-                            .filter_map(|(u, f, o, st, m)| {
-                                let metrics = serde_json::from_str(m).ok()?;
-                                let probe = IndexedRun::outcome_of(o, st);
-                                Some((u.clone(), f.clone(), probe.0, probe.1, metrics))
-                            })
-                            .collect()
-                    })
-                })
-                .collect();
-            handles
-                .into_iter()
-                .map(|h| h.join().unwrap_or_default())
-                .collect()
+        let parsed = parallel_map(raw, |(u, f, o, st, m)| {
+            let metrics = serde_json::from_str(&m).ok()?;
+            let (outcome, state) = IndexedRun::outcome_of(&o, &st);
+            Some((u, f, outcome, state, metrics))
         });
         Ok(parsed.into_iter().flatten().collect())
+    }
+
+    /// Every run (optionally one unit's) as `compare --index` re-judges it, oldest first; the
+    /// metrics and what judging needs are parsed on every core.
+    pub fn judging_rows(&self, unit: Option<&str>) -> Result<Vec<JudgingRow>, IndexError> {
+        type Raw = (
+            String,
+            String,
+            String,
+            String,
+            String,
+            String,
+            Option<String>,
+            Option<String>,
+        );
+        let sq = self.sq();
+        let mut st = self
+            .conn
+            .prepare(
+                "SELECT unit, folder, started_utc, design_sha256, outcome, state, metrics_json, \
+                 judging_json FROM runs WHERE (?1 IS NULL OR unit = ?1) \
+                 ORDER BY started_utc, unit, folder",
+            )
+            .map_err(&sq)?;
+        let raw: Vec<Raw> = st
+            .query_map([unit], |r| {
+                Ok((
+                    r.get(0)?,
+                    r.get(1)?,
+                    r.get(2)?,
+                    r.get(3)?,
+                    r.get(4)?,
+                    r.get(5)?,
+                    r.get(6)?,
+                    r.get(7)?,
+                ))
+            })
+            .map_err(&sq)?
+            .collect::<Result<_, _>>()
+            .map_err(&sq)?;
+        let parse = |(unit, folder, started_utc, design_sha256, o, s, m, j): Raw| {
+            let (outcome, state) = IndexedRun::outcome_of(&o, &s);
+            JudgingRow {
+                unit,
+                folder,
+                started_utc,
+                design_sha256,
+                outcome,
+                state,
+                metrics: m.and_then(|m| serde_json::from_str(&m).ok()),
+                judging: j.and_then(|j| serde_json::from_str(&j).ok()),
+            }
+        };
+        Ok(parallel_map(raw, parse))
     }
 
     /// Number of indexed runs.
@@ -384,13 +428,44 @@ fn row_to_run(r: &rusqlite::Row<'_>) -> rusqlite::Result<IndexedRun> {
         metrics_json: r.get(20)?,
         run_mtime: r.get(21)?,
         summary_mtime: r.get(22)?,
+        judging_json: r.get(23)?,
     })
 }
 
 fn parse_verdict(s: &str) -> Option<Verdict> {
-    [Verdict::Pass, Verdict::Marginal, Verdict::Fail]
-        .into_iter()
-        .find(|v| v.as_str() == s)
+    [
+        Verdict::Pass,
+        Verdict::Marginal,
+        Verdict::Incomplete,
+        Verdict::Fail,
+        Verdict::Error,
+    ]
+    .into_iter()
+    .find(|v| v.as_str() == s)
+}
+
+/// `f` over `items` on every core, order kept.
+fn parallel_map<T: Send, U: Send>(items: Vec<T>, f: impl Fn(T) -> U + Sync) -> Vec<U> {
+    let threads = std::thread::available_parallelism()
+        .map_or(1, |n| n.get())
+        .max(1);
+    let chunk = items.len().div_ceil(threads).max(1);
+    let mut parts: Vec<Vec<T>> = Vec::new();
+    let mut items = items.into_iter().peekable();
+    while items.peek().is_some() {
+        parts.push(items.by_ref().take(chunk).collect());
+    }
+    let f = &f;
+    std::thread::scope(|s| {
+        let handles: Vec<_> = parts
+            .into_iter()
+            .map(|part| s.spawn(move || part.into_iter().map(f).collect::<Vec<U>>()))
+            .collect();
+        handles
+            .into_iter()
+            .flat_map(|h| h.join().unwrap_or_else(|p| std::panic::resume_unwind(p)))
+            .collect()
+    })
 }
 
 /// Sub-folders of a folder, sorted by name; names starting with a dot are not records.

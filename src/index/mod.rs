@@ -11,7 +11,7 @@ mod scan;
 mod types;
 
 pub use db::{index_path, Index, Rebuilt, RunFilter, INDEX_FILE};
-pub use types::{IndexError, IndexedRun, MetricsRow};
+pub use types::{IndexError, IndexedRun, JudgingRow, MetricsRow};
 
 /// Add a run that just finished to the index of its records root (its folder's grandparent).
 pub fn run_finished(dir: &std::path::Path) -> Result<(), IndexError> {

@@ -16,7 +16,25 @@ struct SummaryPart {
     metrics: Metrics,
     verdict: Option<Verdict>,
     #[serde(default)]
+    settings: Option<SettingsPart>,
+    #[serde(default)]
     comparison: Option<ComparisonPart>,
+}
+
+#[derive(Deserialize)]
+struct SettingsPart {
+    knee_drop: f64,
+    regulation_span: f64,
+    load_regulation_reference: crate::analysis::RegulationReference,
+}
+
+impl SettingsPart {
+    fn are_defaults(&self) -> bool {
+        let d = crate::analysis::AnalysisOptions::default();
+        self.knee_drop == d.knee_drop
+            && self.regulation_span == d.regulation_span
+            && self.load_regulation_reference == d.reference
+    }
 }
 
 #[derive(Deserialize)]
@@ -75,6 +93,15 @@ pub(super) fn scan_record(dir: &Path) -> Result<IndexedRun, IndexError> {
         Some(s) => crate::floor::from_verdict(s.verdict),
         None => floor_result(info.outcome, Some(state), comparison.or(verdict)),
     };
+    // What re-judging without the files needs, only where it decides exactly as the folder
+    // would: a summary analysed with the default settings (its metrics then are those the
+    // folder's readings give against the record's own design) and a plan snapshot that reads
+    // (the promised metrics and the plan's limits come from it, as they do from the folder).
+    let judging = summary
+        .as_ref()
+        .filter(|s| s.settings.as_ref().is_some_and(SettingsPart::are_defaults))
+        .and_then(|_| crate::plan::snapshot_outline(dir))
+        .map(|steps| crate::floor::judging_of(&steps, info.reason.clone()));
     let stamp = read_station_stamp(dir);
     let state_word = match state {
         RecordState::Finished(_) => "finished",
@@ -105,6 +132,7 @@ pub(super) fn scan_record(dir: &Path) -> Result<IndexedRun, IndexError> {
         rows: info.rows as i64,
         values,
         metrics_json,
+        judging_json: judging.and_then(|j| serde_json::to_string(&j).ok()),
         run_mtime: mtime_ns(&dir.join(record::RUN_FILE)),
         summary_mtime: mtime_ns(&dir.join("summary.json")),
     })

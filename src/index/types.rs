@@ -1,7 +1,7 @@
 //! The index's row type and its error, shared by the folder scan and the database.
 
 use crate::analysis::Metrics;
-use crate::compare::{HistoryEntry, KeyValues, Verdict};
+use crate::compare::{HistoryEntry, Judging, KeyValues, Verdict};
 use crate::record::{Outcome, RecordError, RecordState};
 use crate::station::FloorResult;
 use std::path::{Path, PathBuf};
@@ -49,6 +49,9 @@ pub struct IndexedRun {
     pub values: KeyValues,
     /// The summary's full metrics as JSON, when the run has a summary.
     pub metrics_json: Option<String>,
+    /// [`Judging`] as JSON: present only for a run whose summary says what its plan promised
+    /// (its metrics were then analysed against the record's own design).
+    pub judging_json: Option<String>,
     pub run_mtime: i64,
     pub summary_mtime: i64,
 }
@@ -76,6 +79,7 @@ impl IndexedRun {
             "completed" => Outcome::Completed,
             "aborted" => Outcome::Aborted,
             "failed" => Outcome::Failed,
+            "error" => Outcome::Error,
             _ => Outcome::Running,
         };
         let state = match state {
@@ -95,6 +99,21 @@ impl IndexedRun {
     pub fn dir(&self, records: &Path) -> PathBuf {
         records.join(&self.unit).join(&self.folder)
     }
+}
+
+/// One indexed run as `compare --index` re-judges it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct JudgingRow {
+    pub unit: String,
+    pub folder: String,
+    pub started_utc: String,
+    pub design_sha256: String,
+    pub outcome: Outcome,
+    pub state: RecordState,
+    /// `None` for a run without a summary: it is re-judged from its folder.
+    pub metrics: Option<Metrics>,
+    /// `None` for a run whose summary does not say what its plan promised.
+    pub judging: Option<Judging>,
 }
 
 /// A run's metrics for re-judging: unit, record folder, outcome, state, metrics.

@@ -95,7 +95,7 @@ pub fn write_derived(report: &RunReport, prep: &Prepared) -> Result<Written, Rep
         earlier,
         png: true,
         plan_steps: Some(prep.plan.steps.iter().map(|s| s.kind).collect()),
-        plan_limits: Some(crate::report::metric_limits(
+        plan_limits: Some(crate::floor::metric_limits(
             prep.plan.steps.iter().map(|s| s.limits),
         )),
     };

@@ -49,8 +49,8 @@ pub use error::PlanError;
 pub use knee::{KneeConfig, KneeOutcome, KneeRequest, KneeResult, KneeSearch};
 pub use quantity::{parse_quantity, tidy, Dim};
 pub use steps::{
-    outline, recovery_readings, short_readings, step_kinds, Action, Interlocks, LoadSetting, Plan,
-    ShortCircuit, Step, StepLimits, StepOutline,
+    outline, recovery_readings, short_readings, snapshot_outline, step_kinds, Action, Interlocks,
+    LoadSetting, Plan, ShortCircuit, Step, StepLimits, StepOutline,
 };
 pub use targets::DesignTargets;
 

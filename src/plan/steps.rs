@@ -234,6 +234,13 @@ pub struct StepOutline {
     pub limits: StepLimits,
 }
 
+/// The steps of a record folder's plan snapshot (`plan.toml`), when it is there and reads.
+pub fn snapshot_outline(record: &Path) -> Option<Vec<StepOutline>> {
+    let path = record.join(crate::record::PLAN_SNAPSHOT);
+    let text = std::fs::read_to_string(&path).ok()?;
+    outline(&text, &path.display().to_string()).ok()
+}
+
 /// The steps of plan text, in order, read without the design (what a record's plan
 /// snapshot promised). Errors name the file, line and column.
 pub fn outline(text: &str, file: &str) -> Result<Vec<StepOutline>, PlanError> {

@@ -143,18 +143,6 @@ pub fn summarize_record(
     }
     let metrics = analysis::analyse(rows, &aopts);
     let limits = opts.plan_limits.unwrap_or_default();
-    let comparison = exp.map(|e| {
-        let mut c = compare::compare(&metrics, e);
-        c.checks
-            .extend(compare::plan_limit_checks(&metrics, &limits));
-        c.verdict = c
-            .checks
-            .iter()
-            .map(|ch| ch.verdict)
-            .max()
-            .unwrap_or(Verdict::Pass);
-        c
-    });
     let (kinds, promised_from) = match &opts.plan_steps {
         Some(k) => (k.clone(), PromisedFrom::Plan),
         None => {
@@ -164,13 +152,13 @@ pub fn summarize_record(
         }
     };
     let promised = compare::promised_metrics(&kinds);
-    let missing = compare::missing_metrics(&metrics, &promised);
     let facts = compare::RecordFacts {
         outcome: info.outcome,
         state,
         reason: info.reason.as_deref(),
     };
-    let judgement = compare::judge(facts, comparison.as_ref(), &missing);
+    let (comparison, missing, judgement) =
+        compare::judge_metrics(&metrics, exp, &limits, &promised, facts);
     let verdict = judgement.verdict;
     let this = entry_for(&record_name_of(info), info, &metrics, verdict);
     let mut all = opts.earlier.clone();
@@ -305,7 +293,7 @@ pub fn evaluate_loaded(
 ) -> Summary {
     let mut opts = opts.clone();
     let mut from = PromisedFrom::Plan;
-    let snapshot = plan_snapshot(dir);
+    let snapshot = crate::plan::snapshot_outline(dir);
     if opts.plan_steps.is_none() {
         opts.plan_steps = snapshot
             .as_ref()
@@ -315,7 +303,7 @@ pub fn evaluate_loaded(
     if opts.plan_limits.is_none() {
         opts.plan_limits = snapshot
             .as_ref()
-            .map(|s| metric_limits(s.iter().map(|o| o.limits)));
+            .map(|s| crate::floor::metric_limits(s.iter().map(|o| o.limits)));
     }
     let mut summary = summarize_record(&rec.info, Some(rec.state), &rec.rows, exp, &opts);
     if summary.promised_from == PromisedFrom::Plan {
@@ -347,29 +335,6 @@ pub fn evaluate_loaded(
         f.record = folder.clone();
     }
     summary
-}
-
-/// The limits a plan's steps set, the first of each kind.
-pub fn metric_limits(
-    steps: impl Iterator<Item = crate::plan::StepLimits>,
-) -> compare::MetricLimits {
-    let mut l = compare::MetricLimits::default();
-    for s in steps {
-        l.line_regulation_percent = l.line_regulation_percent.or(s.max_change_percent);
-        l.soak_drift_percent = l.soak_drift_percent.or(s.max_drift_percent);
-        l.soak_rise_c = l.soak_rise_c.or(s.max_rise_c);
-    }
-    l
-}
-
-/// The steps of a record's plan.toml snapshot, when it reads.
-fn plan_snapshot(dir: &Path) -> Option<Vec<crate::plan::StepOutline>> {
-    let text = std::fs::read_to_string(dir.join(record::PLAN_SNAPSHOT)).ok()?;
-    crate::plan::outline(
-        &text,
-        &dir.join(record::PLAN_SNAPSHOT).display().to_string(),
-    )
-    .ok()
 }
 
 /// Write `summary.json`, `plots/` and `report.html` of the record `rec` into `out`

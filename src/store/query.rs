@@ -92,9 +92,15 @@ pub async fn store_runs(
                 outcome: r.get(8),
                 record_state: r.get(9),
                 verdict: verdict.as_deref().and_then(|v| {
-                    [Verdict::Pass, Verdict::Marginal, Verdict::Fail]
-                        .into_iter()
-                        .find(|x| x.as_str() == v)
+                    [
+                        Verdict::Pass,
+                        Verdict::Marginal,
+                        Verdict::Incomplete,
+                        Verdict::Fail,
+                        Verdict::Error,
+                    ]
+                    .into_iter()
+                    .find(|x| x.as_str() == v)
                 }),
                 result: FloorResult::parse(&result).unwrap_or(FloorResult::Incomplete),
                 readings: r.get(12),
@@ -113,17 +119,25 @@ pub async fn design_content(client: &Client, sha256: &str) -> Result<Option<Vec<
     Ok(row.and_then(|r| r.get::<_, Option<Vec<u8>>>(0)))
 }
 
-/// One run's metrics from the store, for judging against a design: run id, unit, outcome,
-/// record state and the metrics of its summary.
-pub type StoreMetrics = (
-    String,
-    String,
-    crate::record::Outcome,
-    crate::record::RecordState,
-    crate::analysis::Metrics,
-);
+/// One run from the store, for judging against a design without its files.
+#[derive(Debug, Clone, PartialEq)]
+pub struct StoreMetrics {
+    pub run_id: String,
+    pub unit: String,
+    pub started_utc: String,
+    pub design_sha256: String,
+    pub outcome: crate::record::Outcome,
+    pub state: crate::record::RecordState,
+    /// The metrics of its summary; `None` when the store holds no summary for it.
+    pub metrics: Option<crate::analysis::Metrics>,
+    /// What its plan snapshot promised and limited, and its reason; `None` when the store
+    /// holds no plan snapshot that reads, or the summary was analysed with settings other
+    /// than the defaults.
+    pub judging: Option<crate::compare::Judging>,
+}
 
-/// The metrics of every run (or one unit's) that the store holds a summary for, oldest first.
+/// Every run (or one unit's), oldest first, with its summary's metrics and what its plan
+/// snapshot promised.
 pub async fn store_metrics(
     client: &Client,
     unit: Option<&str>,
@@ -131,31 +145,68 @@ pub async fn store_metrics(
     use crate::record::{Outcome, RecordState};
     let rows = client
         .query(
-            "SELECT r.run_id, r.unit_serial, r.outcome, r.record_state, a.content \
-             FROM run r JOIN artifact a ON a.run_id = r.run_id AND a.name = 'summary.json' \
+            "SELECT r.run_id, r.unit_serial, \
+             to_char(r.started_utc AT TIME ZONE 'UTC', 'YYYY-MM-DD\"T\"HH24:MI:SS.MS\"Z\"'), \
+             r.design_sha256, r.outcome, r.record_state, r.reason, s.content, p.content \
+             FROM run r \
+             LEFT JOIN artifact s ON s.run_id = r.run_id AND s.name = 'summary.json' \
+             LEFT JOIN artifact p ON p.run_id = r.run_id AND p.name = $2 \
              WHERE ($1::text IS NULL OR r.unit_serial = $1) ORDER BY r.started_utc, r.run_id",
-            &[&unit],
+            &[&unit, &crate::record::PLAN_SNAPSHOT],
         )
         .await
         .map_err(sql("read run summaries"))?;
     Ok(rows
         .iter()
-        .filter_map(|r| {
-            let content: Vec<u8> = r.get(4);
-            let v: serde_json::Value = serde_json::from_slice(&content).ok()?;
-            let metrics = serde_json::from_value(v.get("metrics")?.clone()).ok()?;
-            let outcome = match r.get::<_, String>(2).as_str() {
+        .map(|r| {
+            let outcome = match r.get::<_, String>(4).as_str() {
                 "completed" => Outcome::Completed,
                 "aborted" => Outcome::Aborted,
                 "failed" => Outcome::Failed,
+                "error" => Outcome::Error,
                 _ => Outcome::Running,
             };
-            let state = match r.get::<_, String>(3).as_str() {
+            let state = match r.get::<_, String>(5).as_str() {
                 "finished" => RecordState::Finished(outcome),
                 "running" => RecordState::Running,
                 _ => RecordState::Incomplete,
             };
-            Some((r.get(0), r.get(1), outcome, state, metrics))
+            let summary: Option<serde_json::Value> = r
+                .get::<_, Option<Vec<u8>>>(7)
+                .and_then(|c| serde_json::from_slice(&c).ok());
+            let metrics = summary
+                .as_ref()
+                .and_then(|v| serde_json::from_value(v.get("metrics")?.clone()).ok());
+            let defaults = summary
+                .as_ref()
+                .and_then(|v| v.get("settings"))
+                .is_some_and(settings_are_defaults);
+            let steps = r
+                .get::<_, Option<Vec<u8>>>(8)
+                .and_then(|c| String::from_utf8(c).ok())
+                .and_then(|t| crate::plan::outline(&t, crate::record::PLAN_SNAPSHOT).ok());
+            let judging = steps
+                .filter(|_| defaults)
+                .map(|s| crate::floor::judging_of(&s, r.get(6)));
+            StoreMetrics {
+                run_id: r.get(0),
+                unit: r.get(1),
+                started_utc: r.get(2),
+                design_sha256: r.get(3),
+                outcome,
+                state,
+                metrics,
+                judging,
+            }
         })
         .collect())
+}
+
+/// True when a summary's `settings` are the default analysis settings.
+fn settings_are_defaults(v: &serde_json::Value) -> bool {
+    let d = crate::analysis::AnalysisOptions::default();
+    let reference = serde_json::to_value(d.reference).ok();
+    v.get("knee_drop").and_then(|x| x.as_f64()) == Some(d.knee_drop)
+        && v.get("regulation_span").and_then(|x| x.as_f64()) == Some(d.regulation_span)
+        && v.get("load_regulation_reference").cloned() == reference
 }

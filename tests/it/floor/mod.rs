@@ -4,6 +4,7 @@
 
 mod batch;
 mod certificate;
+mod compare_index;
 mod conventions;
 mod index;
 mod plots;
