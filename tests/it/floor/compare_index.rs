@@ -140,6 +140,31 @@ fn compare_through_the_index_decides_as_the_folders_do() {
             .cloned()
             .unwrap_or_else(|| panic!("{} not judged: {v:#}", dir.display()))
     };
+    // The shared store judges the same runs alike: from their summaries and plan snapshots.
+    if let Some(pg) = crate::support::pg::Pg::system_or_private("compare --store") {
+        let out = f
+            .regulus()
+            .args(["sync", "--store", &pg.url, "--records"])
+            .arg(&records)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(0), "{}", show(&out));
+        let (code_store, stored) = compare(&lab, &["--store", &pg.url]);
+        assert_eq!(code_store, code_index);
+        // Run ids are <station>/<unit>/<folder>; the index names folders by path.
+        let strip = |v: &Value| -> Vec<(String, Value)> {
+            let mut out: Vec<_> = judged(v)
+                .into_iter()
+                .map(|(r, u, verdict, _)| {
+                    let folder = r.rsplit('/').next().unwrap().to_string();
+                    (format!("{u}/{folder}"), verdict)
+                })
+                .collect();
+            out.sort_by(|a, b| a.0.cmp(&b.0));
+            out
+        };
+        assert_eq!(strip(&stored), strip(&indexed), "{stored:#}\n{indexed:#}");
+    }
     let p = by_record(&indexed, &promised);
     assert_eq!(p["verdict"], "incomplete", "{p:#}");
     assert!(
