@@ -172,6 +172,9 @@ pub async fn test_unit<B: BenchControl>(
             }
         }
     }
+    if let Some(url) = &st.store {
+        auto_sync(out, url, st).await?;
+    }
     let verdict = finished.verdict();
     Ok(UnitDone {
         result,
@@ -180,6 +183,35 @@ pub async fn test_unit<B: BenchControl>(
         values,
         code: super::for_verdict(verdict),
     })
+}
+
+/// Upload the station's finished runs that the store lacks, after each unit, when the
+/// station file names a store. A store that is away or refuses leaves the runs queued
+/// locally (the next unit or `regulus sync` catches up) and never changes the unit's result.
+async fn auto_sync(out: &mut impl Write, url: &str, st: &Station) -> std::io::Result<()> {
+    let result = super::sync::sync_once(url, &st.records, Some(&st.id)).await;
+    let queued = crate::store::pending(&st.records)
+        .map(|p| p.len())
+        .unwrap_or(0);
+    match result {
+        Ok(r) => writeln!(
+            out,
+            "store: {} run(s) uploaded ({} reading rows); {queued} queued",
+            r.uploaded, r.readings
+        ),
+        Err(e) if e.is_unreachable() => writeln!(
+            out,
+            "store unreachable ({}): {queued} run(s) stay queued in {}; the next unit or \
+             `regulus sync` catches up",
+            present::chain_text(&e),
+            st.records.display()
+        ),
+        Err(e) => writeln!(
+            out,
+            "warning: store: {} ({queued} run(s) stay queued; the record itself is complete)",
+            present::chain_text(&e)
+        ),
+    }
 }
 
 /// The floor result in large letters, framed, with the unit.
