@@ -1,6 +1,7 @@
 //! `probe`: connect to each instrument on its own, ask who it is, take one reading per
-//! measuring role, time the round trip, then send its safe state. One instrument failing does
-//! not hide the others. The table writer takes any `Write`.
+//! measuring role, time the round trip; once every instrument has been read, send each its
+//! safe state (so that no meter reads while a source is being switched off). One instrument
+//! failing does not hide the others. The table writer takes any `Write`.
 
 use super::{connect, BenchConfig, BenchError, Instrument, InstrumentConfig};
 use crate::measure::{Reading, Role};
@@ -38,7 +39,11 @@ impl ProbeReport {
     }
 }
 
-async fn probe_one(cfg: InstrumentConfig) -> (Option<String>, Vec<ProbeRow>) {
+/// One instrument probed: the open instrument (for its safe state), its identity reply, its
+/// rows.
+type Probed = (Option<Arc<Instrument>>, Option<String>, Vec<ProbeRow>);
+
+async fn probe_one(cfg: InstrumentConfig) -> Probed {
     let name = cfg.name.clone();
     let link = cfg.link_description();
     let fail = |e: BenchError| ProbeRow {
@@ -49,18 +54,14 @@ async fn probe_one(cfg: InstrumentConfig) -> (Option<String>, Vec<ProbeRow>) {
     };
     let io = match connect(&cfg).await {
         Ok(io) => io,
-        Err(e) => return (None, vec![fail(e)]),
+        Err(e) => return (None, None, vec![fail(e)]),
     };
     let inst = match Instrument::new(cfg.clone(), io) {
         Ok(i) => Arc::new(i),
-        Err(e) => return (None, vec![fail(e)]),
+        Err(e) => return (None, None, vec![fail(e)]),
     };
     if let Err(e) = inst.initialise().await {
-        let mut rows = vec![fail(e)];
-        for e in inst.safe_state().await {
-            rows.push(fail(e));
-        }
-        return (inst.identity(), rows);
+        return (Some(inst.clone()), inst.identity(), vec![fail(e)]);
     }
     let mut rows = Vec::new();
     for role in cfg.roles.iter().copied() {
@@ -80,10 +81,8 @@ async fn probe_one(cfg: InstrumentConfig) -> (Option<String>, Vec<ProbeRow>) {
             outcome,
         });
     }
-    for e in inst.safe_state().await {
-        rows.push(fail(e));
-    }
-    (inst.identity(), rows)
+    let id = inst.identity();
+    (Some(inst), id, rows)
 }
 
 /// Probe every instrument (or only `only`), all at the same time. Fails only when `only`
@@ -114,17 +113,55 @@ pub async fn probe(cfg: &BenchConfig, only: Option<&str>) -> Result<ProbeReport,
     }
     let mut results = Vec::new();
     while let Some(done) = set.join_next().await {
-        if let Ok(r) = done {
-            results.push(r);
+        match done {
+            Ok(r) => results.push(r),
+            Err(e) if e.is_panic() => std::panic::resume_unwind(e.into_panic()),
+            Err(_) => {}
         }
     }
     results.sort_by_key(|(i, _)| *i);
+    // Every reading is in: now each instrument's safe state, all at once.
+    let mut safe = JoinSet::new();
+    for (i, (_, (inst, _, _))) in results.iter().enumerate() {
+        if let Some(inst) = inst.clone() {
+            safe.spawn(async move {
+                (
+                    i,
+                    inst.name().to_string(),
+                    inst.cfg.link_description(),
+                    inst.safe_state().await,
+                )
+            });
+        }
+    }
+    let mut failures: Vec<(usize, ProbeRow)> = Vec::new();
+    while let Some(done) = safe.join_next().await {
+        if let Ok((i, instrument, link, errors)) = done {
+            failures.extend(errors.into_iter().map(|e| {
+                (
+                    i,
+                    ProbeRow {
+                        instrument: instrument.clone(),
+                        link: link.clone(),
+                        role: None,
+                        outcome: Err(e),
+                    },
+                )
+            }));
+        }
+    }
     let mut report = ProbeReport::default();
-    for (_, (id, rows)) in results {
+    for (k, (_, (_, id, rows))) in results.into_iter().enumerate() {
         if let (Some(id), Some(first)) = (id, rows.first()) {
             report.identities.push((first.instrument.clone(), id));
         }
         report.rows.extend(rows);
+        report.rows.extend(
+            failures
+                .iter()
+                .filter(|(i, _)| *i == k)
+                .map(|(_, r)| r.clone()),
+        );
     }
     Ok(report)
 }
