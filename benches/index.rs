@@ -2,10 +2,9 @@
 //! records (see tests/it/support/report.rs; goal: under 1 s each). The index holds 100,000
 //! rows (one unit with real folders, the rest rows only), so a unit's history pays for the
 //! check of its folders plus an indexed query. `compare --index` is measured on the command's
-//! own path (`regulus::cli::compare::evaluate` on parsed arguments): the 99,980 row-only runs
-//! are marked as runs of the fixed-12V sample design with what a standard plan promises, so
-//! they are judged from the index alone; the 20 real folders (a synthetic design) are judged
-//! from their files, as the command does for runs of another design.
+//! own path (`regulus::cli::compare::evaluate` on parsed arguments) over a second index of
+//! 100,000 runs copied from the two records `regulus demo` makes on the simulated bench (one in
+//! twenty a failing unit, which is diagnosed).
 
 #[path = "../tests/it/support/report.rs"]
 mod report_support;
@@ -42,34 +41,62 @@ fn bench_index(c: &mut Criterion) {
         .into_iter()
         .next()
         .expect("one run");
-    let design = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("samples")
-        .join("fixed-12v-3a-foldback.toml");
-    let design_sha256 = regulus::pipeline::InputFile::read(&design, "design file")
-        .expect("sample design")
-        .sha256();
-    let standard = regulus::plan::outline(
-        &std::fs::read_to_string(
-            std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("samples/plans/standard.toml"),
-        )
-        .expect("standard plan"),
-        "standard.toml",
-    )
-    .expect("standard plan outline");
-    let judging =
-        serde_json::to_string(&regulus::floor::judging_of(&standard, None)).expect("judging json");
     let mut rows = Vec::with_capacity(RUNS - 20);
     for k in 0..RUNS - 20 {
         let mut r = model.clone();
         r.unit = format!("SN-{k:06}");
         r.folder = format!("20261102T{:06}Z_standard", k % 240000);
-        r.design_sha256 = design_sha256.clone();
-        r.judging_json = Some(judging.clone());
         rows.push(r);
     }
     idx.upsert(&rows).expect("upsert");
     assert_eq!(idx.len().expect("len"), RUNS);
     drop(idx);
+
+    // compare --index: a second records folder indexed from the two records of `regulus
+    // demo` (simulated bench, teaching-lab design: one unit passes, one has a wrong sense
+    // resistor), copied into 100,000 runs of distinct units, one in twenty a failing one
+    // (each failing run is diagnosed).
+    let demo_tmp = tempfile::tempdir().expect("tempdir");
+    let demo = demo_tmp.path().join("records");
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_regulus"))
+        .args(["demo", "--records"])
+        .arg(&demo)
+        .output()
+        .expect("run regulus demo");
+    assert!(
+        matches!(out.status.code(), Some(0 | 1)),
+        "demo: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let design = demo.join("inputs").join("teaching-lab-0-20v.toml");
+    let mut didx = Index::open(&demo).expect("demo index");
+    didx.rebuild().expect("rebuild demo index");
+    let demo_runs = didx.runs(&Default::default()).expect("demo runs");
+    let pass = demo_runs
+        .iter()
+        .find(|r| r.unit == "TLB-0001")
+        .expect("the demo's passing unit")
+        .clone();
+    let fail = demo_runs
+        .iter()
+        .find(|r| r.unit == "TLB-0002")
+        .expect("the demo's failing unit")
+        .clone();
+    assert!(pass.judging_json.is_some() && fail.judging_json.is_some());
+    let copies: Vec<_> = (0..RUNS - demo_runs.len())
+        .map(|k| {
+            let mut r = if k % 20 == 0 {
+                fail.clone()
+            } else {
+                pass.clone()
+            };
+            r.unit = format!("TLB-{k:06}");
+            r
+        })
+        .collect();
+    didx.upsert(&copies).expect("upsert demo copies");
+    assert_eq!(didx.len().expect("len"), RUNS);
+    drop(didx);
 
     let mut g = c.benchmark_group("index 100k runs");
     g.sample_size(10);
@@ -95,7 +122,7 @@ fn bench_index(c: &mut Criterion) {
         "--design".as_ref(),
         design.as_os_str(),
         "--index".as_ref(),
-        root.as_os_str(),
+        demo.as_os_str(),
     ])
     .expect("compare arguments");
     let regulus::cli::Command::Compare(args) = args.command else {
