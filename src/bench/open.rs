@@ -199,7 +199,7 @@ impl Bench {
     /// safe-state sequence) if regulus ends without standing it down. Does nothing when this
     /// process does not start guardians.
     pub fn guard(&mut self, record: &std::path::Path) -> Result<(), crate::guardian::GuardError> {
-        use crate::guardian::{GuardLink, GuardSpec};
+        use crate::guardian::{GuardLink, GuardPayload, GuardSpec};
         let mut links = Vec::new();
         for inst in self.safe_order() {
             let Some(fd) = inst.raw_fd() else { continue };
@@ -222,8 +222,10 @@ impl Bench {
             links.push(GuardLink {
                 name: inst.cfg.name.clone(),
                 fd,
-                terminator: inst.cfg.write_terminator.clone(),
-                safe_state: lines,
+                safe_state: GuardPayload::Lines {
+                    terminator: inst.cfg.write_terminator.clone(),
+                    lines,
+                },
             });
         }
         let spec = GuardSpec {

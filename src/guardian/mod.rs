@@ -14,4 +14,4 @@ mod spec;
 
 pub use child::serve;
 pub use parent::{enable, enabled, start, GuardError, Guardian, GUARDIAN_ARG};
-pub use spec::{GuardLink, GuardSpec, NOTE_FILE};
+pub use spec::{GuardFrame, GuardLink, GuardPayload, GuardSpec, NOTE_FILE};
