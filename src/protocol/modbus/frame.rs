@@ -1,8 +1,10 @@
 //! Modbus frames, after the Modbus Application Protocol Specification V1.1b3 (function codes,
 //! request and response PDUs in section 6, exception responses in section 7, the MBAP header
 //! of Modbus TCP) and the Modbus over Serial Line Specification V1.02 (RTU framing and its
-//! CRC-16, section 2.5.1). Used by the simulator's server side; the bench's client side runs
-//! on tokio-modbus, and the exception meanings here name what it reports.
+//! CRC-16, section 2.5.1). Used by the simulator's server side, and by the bench for the
+//! guardian's safe-state frames ([`Request::encode`]: the guardian writes requests without a
+//! client); the bench's client side runs on tokio-modbus, and the exception meanings here
+//! name what it reports.
 
 /// Function codes (V1.1b3 section 5.1, public function codes).
 pub const FC_READ_COILS: u8 = 0x01;
