@@ -28,7 +28,10 @@ pub enum GuardPayload {
         lines: Vec<String>,
     },
     /// Frames: a silence of `gap_us` microseconds before each frame (a half-written frame
-    /// left on a serial line is ended by the silence), then the frame in one write.
+    /// left on a serial line is ended by the silence), then the frame in one write. On a
+    /// stream socket (Modbus TCP) silence ends nothing: were regulus killed inside the write
+    /// of a frame (a short write, which a socket with room in its send buffer does not make),
+    /// the peer would take the guardian's first bytes for the rest of that frame.
     Frames {
         gap_us: u64,
         frames: Vec<GuardFrame>,
