@@ -182,7 +182,11 @@ impl Instrument {
             })?)),
         };
         let (io, modbus) = super::modbus::take_link(&cfg, io, log.clone());
-        let raw_fd = io.raw_fd();
+        // A Modbus instrument's link is the driver's; the line code holds a stand-in.
+        let raw_fd = match &modbus {
+            Some(m) => m.raw_fd(),
+            None => io.raw_fd(),
+        };
         let (r, w) = tokio::io::split(io);
         let mut reader = Some(LineReader::new(r, &cfg.read_terminator));
         let writer = LineWriter::new(w, &cfg.write_terminator);

@@ -11,6 +11,7 @@ use super::config::{
 };
 use super::modbus_fault::ModbusFault;
 use super::BenchError;
+use crate::guardian::{GuardFrame, GuardPayload};
 use crate::measure::{Reading, Role};
 use crate::protocol::modbus::ObjectKind;
 use crate::transport::{BoxTransport, IoCause, TrafficLog};
@@ -146,6 +147,8 @@ pub struct ModbusDevice {
     name: String,
     map: ModbusMap,
     io: SharedIo,
+    /// The link's descriptor (serial port or socket), for the guardian.
+    raw_fd: Option<i32>,
     reply_timeout: Duration,
     retries: u32,
     log: Option<Arc<TrafficLog>>,
@@ -163,12 +166,14 @@ pub(crate) fn take_link(
     let Some(map) = &cfg.modbus else {
         return (io, None);
     };
+    let raw_fd = io.raw_fd();
     let io = SharedIo(Arc::new(StdMutex::new(io)));
     let ctx = attach(map, &io);
     let device = ModbusDevice {
         name: cfg.name.clone(),
         map: map.clone(),
         io,
+        raw_fd,
         reply_timeout: cfg.reply_timeout,
         retries: cfg.retries,
         log,
@@ -226,6 +231,40 @@ async fn call(ctx: &mut Context, op: &Op) -> tokio_modbus::Result<Got> {
         Response::ReadHoldingRegisters(w) | Response::ReadInputRegisters(w) => Got::Words(w),
         _ => Got::Done,
     }))
+}
+
+/// The first transaction id of the guardian's Modbus TCP frames (any id will do: nobody reads
+/// the replies; these stand out in a capture).
+const GUARD_TRANSACTION: u16 = 0xA000;
+
+/// The least silence the guardian keeps before each RTU frame: well above the 3.5 character
+/// times of any baud rate (Modbus over Serial Line V1.02 section 2.5.1.1), so a device that
+/// tells frames apart with a coarser timer also drops a frame regulus left half-written.
+pub const GUARD_RTU_SILENCE: Duration = Duration::from_millis(20);
+
+/// The request that writes an action's payload (`value` for one with a setpoint): a coil by
+/// write single coil (0x05), one register by write single register (0x06), more by write
+/// multiple registers (0x10): the same requests [`call`] makes through tokio-modbus.
+fn write_request(
+    action: &RegisterAction,
+    value: f64,
+) -> Result<crate::protocol::modbus::Request, crate::protocol::modbus::ValueError> {
+    use crate::protocol::modbus::Request as R;
+    let address = action.address;
+    Ok(match &action.payload {
+        Payload::Fixed(Fixed::Coil(on)) => R::WriteCoil { address, on: *on },
+        Payload::Fixed(Fixed::Word(w)) => R::WriteRegister { address, value: *w },
+        Payload::Number { encoding, .. } => {
+            let words = encoding.encode(value)?;
+            match words.as_slice() {
+                [w] => R::WriteRegister { address, value: *w },
+                _ => R::WriteRegisters {
+                    address,
+                    values: words,
+                },
+            }
+        }
+    })
 }
 
 fn function_of(op: &Op) -> u8 {
@@ -526,6 +565,47 @@ impl ModbusDevice {
         Ok(text.trim().to_string())
     }
 
+    /// The link's descriptor (serial port or socket), when it has one: the guardian holds a
+    /// duplicate of it.
+    pub fn raw_fd(&self) -> Option<i32> {
+        self.raw_fd
+    }
+
+    /// What the guardian writes to make this instrument safe: the requests
+    /// [`ModbusDevice::safe_state`] sends for `lines` (each command of the register map, a
+    /// setpoint as 0), as whole ADUs for the configured unit id: RTU frames with their CRC, or
+    /// Modbus TCP frames with their MBAP header. A line the map does not hold is left out
+    /// (the bench file's checks refuse such lines). The silence before each frame is the
+    /// map's frame gap; on RTU at least [`GUARD_RTU_SILENCE`], so a frame regulus left
+    /// half-written ends before the first one.
+    pub fn guard_payload(&self, lines: &[String]) -> GuardPayload {
+        let mut frames = Vec::with_capacity(lines.len());
+        for (i, l) in lines.iter().enumerate() {
+            let Some(action) = self.map.action_for(l) else {
+                continue;
+            };
+            let Ok(request) = write_request(action, 0.0) else {
+                continue;
+            };
+            let bytes = match self.map.framing {
+                Framing::Rtu => request.rtu_adu(self.map.unit),
+                Framing::Tcp => request.tcp_adu(GUARD_TRANSACTION + i as u16, self.map.unit),
+            };
+            frames.push(GuardFrame {
+                what: action.to_string(),
+                bytes,
+            });
+        }
+        let gap = match self.map.framing {
+            Framing::Rtu => self.map.frame_gap.max(GUARD_RTU_SILENCE),
+            Framing::Tcp => self.map.frame_gap,
+        };
+        GuardPayload::Frames {
+            gap_us: gap.as_micros() as u64,
+            frames,
+        }
+    }
+
     /// Run the safe-state commands, each tried even when one fails, then read them back; a
     /// closed link is reported, so the user checks by hand.
     pub async fn safe_state(&self, lines: &[String]) -> Vec<BenchError> {
@@ -547,5 +627,130 @@ impl ModbusDevice {
             self.link.lock().await.pending.clear();
         }
         errors
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::bench::BenchConfig;
+    use tokio::io::AsyncReadExt;
+
+    const BENCH: &str = r#"[[instrument]]
+name = "eload"
+roles = ["load"]
+serial = { port = "/dev/ttyUSB0", baud = 9600 }
+safe_state = ["load_input_off", "load_mode_cc"]
+
+[instrument.modbus]
+unit = 3
+
+[instrument.modbus.registers]
+load_mode_cc = { object = "holding", address = 0, value = 0 }
+load_set_current = { object = "holding", address = 0x10, type = "f32", unit = "A" }
+load_input_on = { object = "coil", address = 1, value = true }
+load_input_off = { object = "coil", address = 1, value = false }
+
+[[instrument]]
+name = "psu"
+roles = ["input_source"]
+tcp = { host = "127.0.0.1", port = 1502 }
+
+[instrument.modbus]
+unit = 9
+
+[instrument.modbus.registers]
+source_set_voltage = { object = "holding", address = 0x20, type = "u32", unit = "mV" }
+source_output_on = { object = "holding", address = 0x30, value = 1 }
+source_output_off = { object = "holding", address = 0x30, value = 0 }
+"#;
+
+    /// What tokio-modbus's client (an independent implementation of the same specifications)
+    /// writes for `req` over `framing` to unit `unit`.
+    async fn reference_bytes(framing: Framing, unit: u8, req: Request<'static>) -> Vec<u8> {
+        let (ours, mut theirs) = tokio::io::duplex(1024);
+        let mut ctx = match framing {
+            Framing::Rtu => tokio_modbus::client::rtu::attach_slave(ours, Slave(unit)),
+            Framing::Tcp => tokio_modbus::client::tcp::attach_slave(ours, Slave(unit)),
+        };
+        // No server answers: the request is on the wire once the call is waiting.
+        let _ = tokio::time::timeout(Duration::from_millis(50), ctx.call(req)).await;
+        let mut buf = vec![0u8; 1024];
+        let n = theirs.read(&mut buf).await.unwrap();
+        buf.truncate(n);
+        buf
+    }
+
+    fn frames(p: &GuardPayload) -> (u64, Vec<(String, Vec<u8>)>) {
+        match p {
+            GuardPayload::Frames { gap_us, frames } => (
+                *gap_us,
+                frames
+                    .iter()
+                    .map(|f| (f.what.clone(), f.bytes.clone()))
+                    .collect(),
+            ),
+            other => panic!("expected frames, got {other:?}"),
+        }
+    }
+
+    // The guardian's frames are the bytes tokio-modbus's client sends for the same writes
+    // (write single coil 0x05 and write single register 0x06, V1.1b3 sections 6.5 and 6.6),
+    // in RTU framing with the CRC and in Modbus TCP framing (its transaction id aside: any id
+    // will do), for the configured unit ids; on RTU the silence is at least the guard's.
+    #[test]
+    fn guard_frames_are_the_bytes_a_modbus_client_writes() {
+        let cfg = BenchConfig::parse(BENCH, "b.toml").unwrap_or_else(|e| panic!("{e}"));
+        let rt = tokio::runtime::Builder::new_current_thread()
+            .enable_all()
+            .build()
+            .unwrap();
+        rt.block_on(async {
+            let (_, load) = take_link(&cfg.instruments[0], Box::new(tokio::io::duplex(1).0), None);
+            let load = load.expect("a Modbus instrument");
+            let (gap, got) = frames(&load.guard_payload(&[
+                "load_input_off".to_string(),
+                "load_mode_cc".to_string(),
+                "no_such_command".to_string(),
+            ]));
+            assert_eq!(gap, GUARD_RTU_SILENCE.as_micros() as u64);
+            assert_eq!(got.len(), 2, "{got:?}");
+            assert!(got[0].0.starts_with("load_input_off"), "{got:?}");
+            assert_eq!(
+                got[0].1,
+                reference_bytes(Framing::Rtu, 3, Request::WriteSingleCoil(1, false)).await
+            );
+            assert_eq!(
+                got[1].1,
+                reference_bytes(Framing::Rtu, 3, Request::WriteSingleRegister(0, 0)).await
+            );
+
+            let (_, psu) = take_link(&cfg.instruments[1], Box::new(tokio::io::duplex(1).0), None);
+            let psu = psu.expect("a Modbus instrument");
+            let (gap, got) = frames(&psu.guard_payload(&["source_output_off".to_string()]));
+            assert_eq!(gap, 0, "no silence between Modbus TCP frames by default");
+            let reference =
+                reference_bytes(Framing::Tcp, 9, Request::WriteSingleRegister(0x30, 0)).await;
+            assert_eq!(got.len(), 1);
+            assert_eq!(got[0].1.len(), reference.len());
+            assert_eq!(got[0].1[2..], reference[2..], "{:02X?}", got[0].1);
+        });
+    }
+
+    // A setpoint in a safe-state line is written as 0, as the driver's own safe state does;
+    // two registers go by write multiple registers (0x10, V1.1b3 section 6.12).
+    #[test]
+    fn a_setpoint_line_is_written_as_zero() {
+        let cfg = BenchConfig::parse(BENCH, "b.toml").unwrap_or_else(|e| panic!("{e}"));
+        let map = cfg.instruments[1].modbus.as_ref().unwrap();
+        let action = map.action_for("source_set_voltage {value}").unwrap();
+        let r = write_request(action, 0.0).unwrap();
+        assert_eq!(
+            r,
+            crate::protocol::modbus::Request::WriteRegisters {
+                address: 0x20,
+                values: vec![0, 0]
+            }
+        );
     }
 }

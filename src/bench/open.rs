@@ -195,11 +195,24 @@ impl Bench {
     }
 
     /// Start the guardian process for a run recorded in `record` (see [`crate::guardian`]):
-    /// it holds every link and sends the safe state (the switch-off commands, then the
-    /// safe-state sequence) if regulus ends without standing it down. Does nothing when this
-    /// process does not start guardians.
+    /// it holds every link (serial, TCP, USB-TMC, Modbus RTU and TCP) and sends the safe
+    /// state (the switch-off commands, then the safe-state sequence) if regulus ends without
+    /// standing it down. Text links get lines; a USB-TMC link gets each line as one message;
+    /// a Modbus link gets the register map's write requests as whole frames. Does nothing
+    /// when this process does not start guardians.
     pub fn guard(&mut self, record: &std::path::Path) -> Result<(), crate::guardian::GuardError> {
-        use crate::guardian::{GuardLink, GuardSpec};
+        let spec = crate::guardian::GuardSpec {
+            record: Some(record.to_path_buf()),
+            links: self.guard_links(),
+        };
+        self.guardian = crate::guardian::start(&spec)?;
+        Ok(())
+    }
+
+    /// Every link the guardian holds, in safe-state order, with what makes it safe.
+    pub fn guard_links(&self) -> Vec<crate::guardian::GuardLink> {
+        use crate::guardian::{GuardFrame, GuardLink, GuardPayload};
+        use crate::transport::LinkConfig;
         let mut links = Vec::new();
         for inst in self.safe_order() {
             let Some(fd) = inst.raw_fd() else { continue };
@@ -216,22 +229,33 @@ impl Bench {
                     lines.push(l.clone());
                 }
             }
-            if lines.is_empty() {
+            let terminator = inst.cfg.write_terminator.clone();
+            let safe_state = if let Some(m) = inst.modbus() {
+                m.guard_payload(&lines)
+            } else if matches!(inst.cfg.link, LinkConfig::UsbTmc(_)) {
+                GuardPayload::Frames {
+                    gap_us: inst.cfg.command_gap.as_micros() as u64,
+                    frames: lines
+                        .into_iter()
+                        .map(|l| GuardFrame {
+                            bytes: format!("{l}{terminator}").into_bytes(),
+                            what: l,
+                        })
+                        .collect(),
+                }
+            } else {
+                GuardPayload::Lines { terminator, lines }
+            };
+            if safe_state.is_empty() {
                 continue;
             }
             links.push(GuardLink {
                 name: inst.cfg.name.clone(),
                 fd,
-                terminator: inst.cfg.write_terminator.clone(),
-                safe_state: lines,
+                safe_state,
             });
         }
-        let spec = GuardSpec {
-            record: Some(record.to_path_buf()),
-            links,
-        };
-        self.guardian = crate::guardian::start(&spec)?;
-        Ok(())
+        links
     }
 
     /// The run finished with its own safe state: the guardian exits without acting.

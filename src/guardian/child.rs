@@ -1,14 +1,17 @@
 //! The guardian process itself: read the spec, say it is ready, then wait on the pipe from
 //! regulus. A stand-down line ends it quietly; the pipe closing (regulus gone) makes it send
-//! every link's safe state (after a terminator, so a line regulus left half-written cannot
-//! swallow the first command) and append a note to the record.
+//! every link's safe state and append a note to the record. Lines go after a terminator, so
+//! a line regulus left half-written cannot swallow the first command; frames go one write
+//! each, each after the link's silence, so a frame regulus left half-written on a serial line
+//! is ended before the first one.
 
 use super::parent::{READY, STAND_DOWN};
-use super::spec::{GuardLink, GuardSpec, NOTE_FILE};
+use super::spec::{GuardLink, GuardPayload, GuardSpec, NOTE_FILE};
 use std::io::{BufRead, Write};
 use std::time::{Duration, Instant};
 
-/// How long the guardian keeps trying to write one link's safe state.
+/// How long the guardian keeps trying to write one link's safe state (the silences between
+/// frames come on top).
 const WRITE_WITHIN: Duration = Duration::from_millis(200);
 
 /// Run a guardian on this process's standard input and output; returns the exit code.
@@ -70,7 +73,7 @@ fn act(spec: &GuardSpec) {
         done.push(format!(
             "{}: {} ({})",
             link.name,
-            link.safe_state.join(" / "),
+            link.safe_state.describe(),
             match result {
                 Ok(()) => "sent".to_string(),
                 Err(e) => format!("not sent: {e}"),
@@ -104,25 +107,61 @@ fn send(link: &GuardLink) -> std::io::Result<()> {
             libc::fcntl(fd, libc::F_SETFL, fl & !libc::O_NONBLOCK);
         }
     }
-    let mut bytes = link.terminator.as_bytes().to_vec();
-    for c in &link.safe_state {
-        bytes.extend_from_slice(c.as_bytes());
-        bytes.extend_from_slice(link.terminator.as_bytes());
+    match &link.safe_state {
+        GuardPayload::Lines { terminator, lines } => {
+            let mut bytes = terminator.as_bytes().to_vec();
+            for c in lines {
+                bytes.extend_from_slice(c.as_bytes());
+                bytes.extend_from_slice(terminator.as_bytes());
+            }
+            write_all(fd, &bytes, Instant::now() + WRITE_WITHIN)
+        }
+        GuardPayload::Frames { gap_us, frames } => {
+            let gap = Duration::from_micros(*gap_us);
+            let mut end = Instant::now() + WRITE_WITHIN;
+            for f in frames {
+                std::thread::sleep(gap);
+                end += gap;
+                write_frame(fd, &f.bytes, end)?;
+            }
+            Ok(())
+        }
     }
-    let end = Instant::now() + WRITE_WITHIN;
+}
+
+/// Write a byte stream (lines), in as many writes as it takes, until `end`.
+#[cfg(unix)]
+fn write_all(fd: i32, bytes: &[u8], end: Instant) -> std::io::Result<()> {
     let mut off = 0;
     while off < bytes.len() {
+        match write_once(fd, &bytes[off..], end)? {
+            0 => return Err(std::io::ErrorKind::WriteZero.into()),
+            n => off += n,
+        }
+    }
+    Ok(())
+}
+
+/// Write one frame in one write (a message-based device takes each write as one message; a
+/// frame split in two would be two broken messages), until `end`. On a stream link a short
+/// write still gets the rest written, so the peer sees the whole frame.
+#[cfg(unix)]
+fn write_frame(fd: i32, bytes: &[u8], end: Instant) -> std::io::Result<()> {
+    let n = write_once(fd, bytes, end)?;
+    if n < bytes.len() {
+        write_all(fd, &bytes[n..], end)?;
+    }
+    Ok(())
+}
+
+/// One write(2) of `bytes`, retried while the descriptor is busy until `end`.
+#[cfg(unix)]
+fn write_once(fd: i32, bytes: &[u8], end: Instant) -> std::io::Result<usize> {
+    loop {
         // SAFETY: writes from a live buffer to a descriptor we hold.
-        let n = unsafe {
-            libc::write(
-                fd,
-                bytes[off..].as_ptr() as *const libc::c_void,
-                bytes.len() - off,
-            )
-        };
-        if n > 0 {
-            off += n as usize;
-            continue;
+        let n = unsafe { libc::write(fd, bytes.as_ptr() as *const libc::c_void, bytes.len()) };
+        if n >= 0 {
+            return Ok(n as usize);
         }
         let e = std::io::Error::last_os_error();
         let again = matches!(
@@ -134,7 +173,6 @@ fn send(link: &GuardLink) -> std::io::Result<()> {
         }
         std::thread::sleep(Duration::from_millis(2));
     }
-    Ok(())
 }
 
 #[cfg(not(unix))]

@@ -60,6 +60,8 @@ pub struct UsbTmcLink {
     owed: usize,
     read: ReadState,
     counters: Arc<UsbTmcCounters>,
+    /// The device node's descriptor, for the guardian (none for a stand-in without one).
+    fd: Option<i32>,
 }
 
 impl UsbTmcLink {
@@ -72,7 +74,21 @@ impl UsbTmcLink {
             owed: 0,
             read: ReadState::Idle,
             counters: Arc::new(UsbTmcCounters::default()),
+            fd: None,
         }
+    }
+
+    /// A link over an open file (the device node, or a stand-in with the same one message per
+    /// write): its descriptor goes to the guardian, which writes each safe-state line as one
+    /// message of its own.
+    pub fn from_file(f: File) -> UsbTmcLink {
+        #[cfg(unix)]
+        let fd = Some(std::os::fd::AsRawFd::as_raw_fd(&f));
+        #[cfg(not(unix))]
+        let fd = None;
+        let mut l = UsbTmcLink::new(f);
+        l.fd = fd;
+        l
     }
 
     pub fn counters(&self) -> Arc<UsbTmcCounters> {
@@ -214,8 +230,12 @@ pub fn classify_open(e: &io::Error) -> OpenError {
     }
 }
 
-// No descriptor for the guardian: a USB-TMC message must go through the link's own writer.
-impl super::Transport for UsbTmcLink {}
+// The descriptor goes to the guardian, which writes whole messages (one write each) to it.
+impl super::Transport for UsbTmcLink {
+    fn raw_fd(&self) -> Option<i32> {
+        self.fd
+    }
+}
 
 /// Open a USB-TMC node for reading and writing.
 pub fn open_usbtmc(path: &str) -> Result<BoxTransport, OpenError> {
@@ -224,7 +244,7 @@ pub fn open_usbtmc(path: &str) -> Result<BoxTransport, OpenError> {
         .write(true)
         .open(path)
         .map_err(|e| classify_open(&e))?;
-    Ok(Box::new(UsbTmcLink::new(f)))
+    Ok(Box::new(UsbTmcLink::from_file(f)))
 }
 
 #[cfg(test)]

@@ -1,8 +1,10 @@
 //! Modbus frames, after the Modbus Application Protocol Specification V1.1b3 (function codes,
 //! request and response PDUs in section 6, exception responses in section 7, the MBAP header
 //! of Modbus TCP) and the Modbus over Serial Line Specification V1.02 (RTU framing and its
-//! CRC-16, section 2.5.1). Used by the simulator's server side; the bench's client side runs
-//! on tokio-modbus, and the exception meanings here name what it reports.
+//! CRC-16, section 2.5.1). Used by the simulator's server side, and by the bench for the
+//! guardian's safe-state frames ([`Request::encode`]: the guardian writes requests without a
+//! client); the bench's client side runs on tokio-modbus, and the exception meanings here
+//! name what it reports.
 
 /// Function codes (V1.1b3 section 5.1, public function codes).
 pub const FC_READ_COILS: u8 = 0x01;
@@ -220,6 +222,76 @@ pub fn parse_request(pdu: &[u8]) -> Result<Request, Exception> {
             }
         }
         _ => Err(Exception::IllegalFunction),
+    }
+}
+
+impl Request {
+    /// The request PDU's bytes (function code first), as a client sends it (V1.1b3 section
+    /// 6): address and quantity high byte first, a coil written ON as 0xFF00 and OFF as
+    /// 0x0000, coils of a multiple write packed first coil in the low-order bit of the first
+    /// byte. The inverse of [`parse_request`] for every request it accepts.
+    pub fn encode(&self) -> Vec<u8> {
+        let mut out = Vec::new();
+        match self {
+            Request::ReadBits {
+                function,
+                address,
+                count,
+            }
+            | Request::ReadRegisters {
+                function,
+                address,
+                count,
+            } => {
+                out.push(*function);
+                out.extend(address.to_be_bytes());
+                out.extend(count.to_be_bytes());
+            }
+            Request::WriteCoil { address, on } => {
+                out.push(FC_WRITE_SINGLE_COIL);
+                out.extend(address.to_be_bytes());
+                out.extend(if *on { [0xFF, 0x00] } else { [0x00, 0x00] });
+            }
+            Request::WriteRegister { address, value } => {
+                out.push(FC_WRITE_SINGLE_REGISTER);
+                out.extend(address.to_be_bytes());
+                out.extend(value.to_be_bytes());
+            }
+            Request::WriteCoils { address, values } => {
+                out.push(FC_WRITE_MULTIPLE_COILS);
+                out.extend(address.to_be_bytes());
+                out.extend((values.len() as u16).to_be_bytes());
+                let n = values.len().div_ceil(8);
+                out.push(n as u8);
+                let mut bytes = vec![0u8; n];
+                for (i, b) in values.iter().enumerate() {
+                    if *b {
+                        bytes[i / 8] |= 1 << (i % 8);
+                    }
+                }
+                out.extend(bytes);
+            }
+            Request::WriteRegisters { address, values } => {
+                out.push(FC_WRITE_MULTIPLE_REGISTERS);
+                out.extend(address.to_be_bytes());
+                out.extend((values.len() as u16).to_be_bytes());
+                out.push((values.len() * 2) as u8);
+                for v in values {
+                    out.extend(v.to_be_bytes());
+                }
+            }
+        }
+        out
+    }
+
+    /// The whole RTU ADU for unit `unit`: address, PDU, CRC (see [`rtu_frame`]).
+    pub fn rtu_adu(&self, unit: u8) -> Vec<u8> {
+        rtu_frame(unit, &self.encode())
+    }
+
+    /// The whole Modbus TCP ADU: MBAP header and PDU (see [`mbap_frame`]).
+    pub fn tcp_adu(&self, transaction: u16, unit: u8) -> Vec<u8> {
+        mbap_frame(transaction, unit, &self.encode())
     }
 }
 
@@ -514,6 +586,128 @@ mod tests {
         assert!(exception_meaning(0x02).starts_with("illegal data address"));
         assert!(exception_meaning(0x0B).contains("failed to respond"));
         assert_eq!(function_name(0x83), "read holding registers");
+    }
+
+    // V1.1b3 section 6.5 (Write Single Coil) example: output 173 (address 0x00AC) ON is the
+    // request 05 00 AC FF 00.
+    #[test]
+    fn encode_write_single_coil_as_in_section_6_5() {
+        let r = Request::WriteCoil {
+            address: 0x00AC,
+            on: true,
+        };
+        assert_eq!(r.encode(), vec![0x05, 0x00, 0xAC, 0xFF, 0x00]);
+        // OFF is 0x0000 (same section).
+        let off = Request::WriteCoil {
+            address: 0x00AC,
+            on: false,
+        };
+        assert_eq!(off.encode(), vec![0x05, 0x00, 0xAC, 0x00, 0x00]);
+    }
+
+    // V1.1b3 section 6.6 (Write Single Register) example: register 2 (address 0x0001) set to
+    // 0x0003 is the request 06 00 01 00 03.
+    #[test]
+    fn encode_write_single_register_as_in_section_6_6() {
+        let r = Request::WriteRegister {
+            address: 0x0001,
+            value: 0x0003,
+        };
+        assert_eq!(r.encode(), vec![0x06, 0x00, 0x01, 0x00, 0x03]);
+    }
+
+    // V1.1b3 section 6.11 (Write Multiple Coils) example: 10 coils from coil 20 (address
+    // 0x0013) with the values CD 01 (coils 27-20 = 1100 1101, 29-28 = 01) is the request
+    // 0F 00 13 00 0A 02 CD 01.
+    #[test]
+    fn encode_write_multiple_coils_as_in_section_6_11() {
+        let values = vec![
+            true, false, true, true, false, false, true, true, true, false,
+        ];
+        let r = Request::WriteCoils {
+            address: 0x0013,
+            values,
+        };
+        assert_eq!(
+            r.encode(),
+            vec![0x0F, 0x00, 0x13, 0x00, 0x0A, 0x02, 0xCD, 0x01]
+        );
+    }
+
+    // V1.1b3 section 6.12 (Write Multiple Registers) example: two registers from register 2
+    // (address 0x0001) with 0x000A and 0x0102 is the request 10 00 01 00 02 04 00 0A 01 02.
+    #[test]
+    fn encode_write_multiple_registers_as_in_section_6_12() {
+        let r = Request::WriteRegisters {
+            address: 0x0001,
+            values: vec![0x000A, 0x0102],
+        };
+        assert_eq!(
+            r.encode(),
+            vec![0x10, 0x00, 0x01, 0x00, 0x02, 0x04, 0x00, 0x0A, 0x01, 0x02]
+        );
+    }
+
+    // The ADUs around an encoded request: the RTU frame of the section 6.6 request for unit
+    // 0x11 (the unit of the serial line specification's examples) checks to zero with its CRC
+    // (Modbus over Serial Line V1.02 section 6.2.2), and the TCP frame's MBAP length counts
+    // the unit id and the PDU (Modbus Messaging on TCP/IP Implementation Guide V1.0b
+    // section 3.1.3).
+    #[test]
+    fn adus_wrap_the_encoded_request() {
+        let r = Request::WriteRegister {
+            address: 0x0001,
+            value: 0x0003,
+        };
+        let rtu = r.rtu_adu(0x11);
+        assert_eq!(&rtu[..6], &[0x11, 0x06, 0x00, 0x01, 0x00, 0x03]);
+        assert_eq!(crc16(&rtu), 0);
+        assert_eq!(rtu_request_len(&rtu), Some(rtu.len()));
+        let tcp = r.tcp_adu(0x0102, 0x11);
+        assert_eq!(
+            tcp,
+            vec![0x01, 0x02, 0x00, 0x00, 0x00, 0x06, 0x11, 0x06, 0x00, 0x01, 0x00, 0x03]
+        );
+        let f = mbap_split(&tcp).unwrap().unwrap();
+        assert_eq!(parse_request(f.pdu), Ok(r));
+    }
+
+    fn request_strategy() -> impl proptest::strategy::Strategy<Value = Request> {
+        use proptest::prelude::*;
+        prop_oneof![
+            (any::<u16>(), any::<bool>())
+                .prop_map(|(address, on)| Request::WriteCoil { address, on }),
+            (any::<u16>(), any::<u16>())
+                .prop_map(|(address, value)| Request::WriteRegister { address, value }),
+            (
+                any::<u16>(),
+                proptest::collection::vec(any::<bool>(), 1..=1968)
+            )
+                .prop_map(|(address, values)| Request::WriteCoils { address, values }),
+            (
+                any::<u16>(),
+                proptest::collection::vec(any::<u16>(), 1..=123)
+            )
+                .prop_map(|(address, values)| Request::WriteRegisters { address, values }),
+            (any::<u16>(), 1u16..=125).prop_map(|(address, count)| Request::ReadRegisters {
+                function: FC_READ_HOLDING_REGISTERS,
+                address,
+                count
+            }),
+            (any::<u16>(), 1u16..=2000).prop_map(|(address, count)| Request::ReadBits {
+                function: FC_READ_COILS,
+                address,
+                count
+            }),
+        ]
+    }
+
+    proptest::proptest! {
+        // Every request within the section 6 quantity limits decodes to itself.
+        #[test]
+        fn encoded_requests_parse_back(r in request_strategy()) {
+            proptest::prop_assert_eq!(parse_request(&r.encode()), Ok(r));
+        }
     }
 
     proptest::proptest! {

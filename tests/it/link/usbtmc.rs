@@ -263,3 +263,91 @@ fn permission_denied_gives_the_udev_rule() {
     assert!(text.contains("permission denied opening"), "{text}");
     assert!(text.contains(regulus::transport::UDEV_RULE), "{text}");
 }
+
+/// A USB-TMC link is guarded: the guardian (the `regulus` binary's hidden guardian, started
+/// here by hand with the link's descriptor, as `Bench::guard` starts it) is handed each
+/// safe-state line as a frame of its own, and when its pipe closes (regulus gone) the
+/// instrument gets each as one whole message, as the usbtmc driver takes one write as one
+/// message; the note names the instrument.
+#[test]
+fn the_guardian_writes_each_safe_state_line_as_one_message() {
+    // A child process must not inherit another test's pseudo-terminal (support::lock).
+    let _g = crate::support::lock::serial();
+    use regulus::guardian::{GuardPayload, GuardSpec, GUARDIAN_ARG, NOTE_FILE};
+    use std::io::{BufRead, BufReader};
+    use std::os::fd::AsRawFd;
+    use std::os::unix::process::CommandExt;
+    let cfg = BenchConfig::parse(BENCH, "usbtmc.toml").unwrap_or_else(|e| panic!("{e}"));
+    let (ours_m, dev_m) = seqpacket_pair();
+    let (ours_l, dev_l) = seqpacket_pair();
+    let (_, th_m) = instrument(dev_m, meter);
+    // A load that answers only its identity: it keeps no state another test could see.
+    let (got_l, th_l) = instrument(dev_l, |msg| {
+        (msg == "*IDN?").then(|| "Regulus Simulated Bench,UT-2 load,UT0002,1.0\n".to_string())
+    });
+    let fd = ours_l.as_raw_fd();
+    let rt = runtime();
+    // The bench lives on while the guardian runs (regulus holds its links until it dies).
+    let bench = rt.block_on(async {
+        Bench::with_transports(
+            &cfg,
+            vec![
+                Box::new(UsbTmcLink::from_file(ours_m)),
+                Box::new(UsbTmcLink::from_file(ours_l)),
+            ],
+        )
+        .await
+        .unwrap_or_else(|e| panic!("{e}"))
+    });
+    let links = bench.guard_links();
+    // The meter has no safe state; the load's is its input-off line, as one message.
+    assert_eq!(links.len(), 1, "{links:?}");
+    assert_eq!((links[0].name.as_str(), links[0].fd), ("eload", fd));
+    let GuardPayload::Frames { frames, .. } = &links[0].safe_state else {
+        panic!("{:?}", links[0].safe_state);
+    };
+    assert_eq!(frames.len(), 1, "{frames:?}");
+    assert_eq!(frames[0].bytes, b"INP OFF\n");
+
+    let record = tempfile::tempdir().unwrap();
+    let spec = GuardSpec {
+        record: Some(record.path().to_path_buf()),
+        links,
+    };
+    let mut cmd = std::process::Command::new(env!("CARGO_BIN_EXE_regulus"));
+    cmd.arg(GUARDIAN_ARG)
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped());
+    // SAFETY: between fork and exec only fcntl (async-signal-safe) clears the close-on-exec
+    // mark of the link's descriptor in the child, so the guardian inherits it.
+    unsafe {
+        cmd.pre_exec(move || {
+            let flags = libc::fcntl(fd, libc::F_GETFD);
+            libc::fcntl(fd, libc::F_SETFD, flags & !libc::FD_CLOEXEC);
+            Ok(())
+        });
+    }
+    let mut guardian = cmd.spawn().unwrap();
+    let mut stdin = guardian.stdin.take().unwrap();
+    writeln!(stdin, "{}", serde_json::to_string(&spec).unwrap()).unwrap();
+    let mut ready = String::new();
+    BufReader::new(guardian.stdout.take().unwrap())
+        .read_line(&mut ready)
+        .unwrap();
+    assert_eq!(ready.trim(), "guardian ready");
+    let before = got_l.lock().unwrap().len();
+    // Regulus is gone: the pipe closes, the guardian acts.
+    drop(stdin);
+    let status = guardian.wait().unwrap();
+    assert!(status.success(), "{status:?}");
+    // Our ends close with the bench and the runtime; the guardian's copy closed when it
+    // exited.
+    drop(bench);
+    drop(rt);
+    th_m.join().unwrap();
+    th_l.join().unwrap();
+    let l = got_l.lock().unwrap().clone();
+    assert_eq!(l[before..], ["INP OFF\n".to_string()], "{l:?}");
+    let note = std::fs::read_to_string(record.path().join(NOTE_FILE)).unwrap();
+    assert!(note.contains("eload: INP OFF (sent)"), "{note:?}");
+}
