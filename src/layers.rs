@@ -7,7 +7,7 @@
 
 /// Layers, lowest first.
 const LAYERS: &[&[&str]] = &[
-    &["quantity", "measure", "config", "rng", "capability"],
+    &["quantity", "measure", "config", "rng", "capability", "par"],
     &["design", "protocol", "transport", "control", "guardian"],
     &["record", "bench", "sim", "spice"],
     &["analysis", "station"],

@@ -16,6 +16,7 @@ pub mod floor;
 pub mod guardian;
 pub mod index;
 pub mod measure;
+pub mod par;
 pub mod pipeline;
 pub mod plan;
 pub mod protocol;

@@ -199,13 +199,15 @@ fn expand(path: &Path) -> anyhow::Result<Vec<PathBuf>> {
 pub fn run(args: Args) -> anyhow::Result<u8> {
     let out = evaluate(&args)?;
     let code = super::for_verdicts(out.records.iter().map(|j| j.verdict));
-    let mut w = Console::new(std::io::stdout().lock());
+    // Buffered: a comparison of many runs is many lines (stdout alone writes each line).
+    let mut w = Console::new(std::io::BufWriter::new(std::io::stdout().lock()));
     if args.json {
         let _ = serde_json::to_writer_pretty(&mut w, &out);
         let _ = writeln!(w);
     } else {
         let _ = write_table(&mut w, &out);
     }
+    let _ = w.flush();
     Ok(code)
 }
 
@@ -253,7 +255,8 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
         for r in slow {
             dirs.push(root.join(&r.unit).join(&r.folder));
         }
-        offered.extend(fast.into_iter().map(|r| {
+        // Judged on every core: each run's judgement is pure.
+        offered.extend(crate::par::map(fast, |r| {
             let record = root.join(&r.unit).join(&r.folder).display().to_string();
             without_files(
                 FilelessRun {

@@ -189,7 +189,11 @@ pub async fn test_unit<B: BenchControl>(
 /// station file names a store. A store that is away or refuses leaves the runs queued
 /// locally (the next unit or `regulus sync` catches up) and never changes the unit's result.
 async fn auto_sync(out: &mut impl Write, url: &str, st: &Station) -> std::io::Result<()> {
-    let result = super::sync::sync_once(url, &st.records, Some(&st.id)).await;
+    let result = async {
+        let mut client = crate::store::connect(url).await?;
+        crate::store::sync_folder(&mut client, &st.records, Some(&st.id)).await
+    }
+    .await;
     let queued = crate::store::pending(&st.records)
         .map(|p| p.len())
         .unwrap_or(0);

@@ -48,13 +48,12 @@ pub fn choose_records(candidates: &[Candidate], selection: Selection) -> Chosen 
         out.judged = (0..candidates.len()).collect();
         return out;
     }
-    let mut units: Vec<&str> = candidates.iter().map(|c| c.unit.as_str()).collect();
-    units.sort();
-    units.dedup();
-    for unit in units {
-        let mine: Vec<usize> = (0..candidates.len())
-            .filter(|&i| candidates[i].unit == unit)
-            .collect();
+    // Each unit's candidates, in one pass (units in name order, indices in order).
+    let mut by_unit: std::collections::BTreeMap<&str, Vec<usize>> = Default::default();
+    for (i, c) in candidates.iter().enumerate() {
+        by_unit.entry(c.unit.as_str()).or_default().push(i);
+    }
+    for (unit, mine) in by_unit {
         let latest = |pick: &dyn Fn(&Candidate) -> bool| {
             mine.iter()
                 .copied()

@@ -5,6 +5,7 @@
 
 use super::scan::{mtime_ns, scan_record};
 use super::types::{IndexError, IndexedRun, JudgingRow, MetricsRow};
+use crate::compare::Judging;
 use crate::compare::{KeyMetric, KeyValues, Verdict};
 use crate::record::{self, RecordError};
 use crate::station::FloorResult;
@@ -15,7 +16,7 @@ use std::time::Duration;
 /// File name of the index in a records root.
 pub const INDEX_FILE: &str = ".regulus-index.sqlite";
 /// Schema version of the index (a different version is rebuilt).
-const SCHEMA: i64 = 2;
+const SCHEMA: i64 = 3;
 
 /// Where the index of a records root lives.
 pub fn index_path(records: &Path) -> PathBuf {
@@ -49,7 +50,7 @@ pub struct Index {
 const COLUMNS: &str = "unit, folder, station, operator, design_name, design_sha256, plan_name, \
 started_utc, ended_utc, outcome, state, verdict, result, rows, output_voltage, load_regulation, \
 output_resistance, limit_current, short_circuit_current, short_circuit_drift, metrics_json, \
-run_mtime, summary_mtime, judging_json";
+run_mtime, summary_mtime, judging_json, metrics_bin";
 
 impl Index {
     /// Open (creating when missing) the index of a records root; the root must exist.
@@ -71,6 +72,9 @@ impl Index {
             .map_err(sq)?;
         conn.pragma_update(None, "synchronous", "NORMAL")
             .map_err(sq)?;
+        // Reads through a memory map (up to 1 GiB of the file) instead of a copy per page.
+        conn.pragma_update(None, "mmap_size", 1i64 << 30)
+            .map_err(sq)?;
         let version: i64 = conn
             .pragma_query_value(None, "user_version", |r| r.get(0))
             .map_err(sq)?;
@@ -86,8 +90,11 @@ impl Index {
                    state TEXT NOT NULL, verdict TEXT, result TEXT NOT NULL, rows INTEGER NOT NULL,
                    output_voltage REAL, load_regulation REAL, output_resistance REAL,
                    limit_current REAL, short_circuit_current REAL, short_circuit_drift REAL,
-                   metrics_json TEXT, run_mtime INTEGER NOT NULL, summary_mtime INTEGER NOT NULL,
-                   judging_json TEXT,
+                   run_mtime INTEGER NOT NULL, summary_mtime INTEGER NOT NULL,
+                   judging_json TEXT, metrics_bin BLOB,
+                   -- last: a row's large text goes to overflow pages that reading the
+                   -- columns before it never touches
+                   metrics_json TEXT,
                    PRIMARY KEY (unit, folder));
                  CREATE INDEX runs_by_design ON runs (design_sha256, started_utc);
                  CREATE INDEX runs_by_design_name ON runs (design_name, started_utc);
@@ -135,7 +142,7 @@ impl Index {
             let mut st = tx
                 .prepare_cached(&format!(
                     "INSERT OR REPLACE INTO runs ({COLUMNS}) VALUES \
-                     (?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19,?20,?21,?22,?23,?24)"
+                     (?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19,?20,?21,?22,?23,?24,?25)"
                 ))
                 .map_err(sq)?;
             for r in runs {
@@ -165,6 +172,7 @@ impl Index {
                     r.run_mtime,
                     r.summary_mtime,
                     r.judging_json,
+                    r.metrics_bin,
                 ])
                 .map_err(sq)?;
             }
@@ -312,7 +320,7 @@ impl Index {
             .map_err(&sq)?
             .collect::<Result<_, _>>()
             .map_err(&sq)?;
-        let parsed = parallel_map(raw, |(u, f, o, st, m)| {
+        let parsed = crate::par::map(raw, |(u, f, o, st, m)| {
             let metrics = serde_json::from_str(&m).ok()?;
             let (outcome, state) = IndexedRun::outcome_of(&o, &st);
             Some((u, f, outcome, state, metrics))
@@ -320,8 +328,9 @@ impl Index {
         Ok(parsed.into_iter().flatten().collect())
     }
 
-    /// Every run (optionally one unit's) as `compare --index` re-judges it, oldest first; the
-    /// metrics and what judging needs are parsed on every core.
+    /// Every run (optionally one unit's) as `compare --index` re-judges it, oldest first. The
+    /// compact metrics (without notes) are read and parsed on every core; the notes are read
+    /// only for a run that lacks a metric its plan promised (they say why).
     pub fn judging_rows(&self, unit: Option<&str>) -> Result<Vec<JudgingRow>, IndexError> {
         type Raw = (
             String,
@@ -330,16 +339,16 @@ impl Index {
             String,
             String,
             String,
-            Option<String>,
+            Option<Vec<u8>>,
             Option<String>,
         );
         let sq = self.sq();
+        // No ORDER BY: sorting in SQL would carry every row's metrics through the sort.
         let mut st = self
             .conn
             .prepare(
-                "SELECT unit, folder, started_utc, design_sha256, outcome, state, metrics_json, \
-                 judging_json FROM runs WHERE (?1 IS NULL OR unit = ?1) \
-                 ORDER BY started_utc, unit, folder",
+                "SELECT unit, folder, started_utc, design_sha256, outcome, state, metrics_bin, \
+                 judging_json FROM runs WHERE (?1 IS NULL OR unit = ?1)",
             )
             .map_err(&sq)?;
         let raw: Vec<Raw> = st
@@ -367,11 +376,33 @@ impl Index {
                 design_sha256,
                 outcome,
                 state,
-                metrics: m.and_then(|m| serde_json::from_str(&m).ok()),
-                judging: j.and_then(|j| serde_json::from_str(&j).ok()),
+                metrics: m.and_then(|m| postcard::from_bytes(&m).ok()),
+                judging: j.and_then(|j| serde_json::from_str::<Judging>(&j).ok()),
             }
         };
-        Ok(parallel_map(raw, parse))
+        // Sorted before parsing: the raw rows are small to move.
+        let mut raw = raw;
+        raw.sort_unstable_by(|a, b| (&a.2, &a.0, &a.1).cmp(&(&b.2, &b.0, &b.1)));
+        let mut rows = crate::par::map(raw, parse);
+        let mut notes = self
+            .conn
+            .prepare("SELECT metrics_json FROM runs WHERE unit = ?1 AND folder = ?2")
+            .map_err(&sq)?;
+        for r in &mut rows {
+            let lacking = match (&r.metrics, &r.judging) {
+                (Some(m), Some(j)) => !crate::compare::missing_metrics(m, &j.promised).is_empty(),
+                _ => false,
+            };
+            if lacking {
+                let full: Option<String> = notes
+                    .query_row([&r.unit, &r.folder], |row| row.get(0))
+                    .optional()
+                    .map_err(&sq)?
+                    .flatten();
+                r.metrics = full.and_then(|t| serde_json::from_str(&t).ok());
+            }
+        }
+        Ok(rows)
     }
 
     /// Number of indexed runs.
@@ -429,6 +460,7 @@ fn row_to_run(r: &rusqlite::Row<'_>) -> rusqlite::Result<IndexedRun> {
         run_mtime: r.get(21)?,
         summary_mtime: r.get(22)?,
         judging_json: r.get(23)?,
+        metrics_bin: r.get(24)?,
     })
 }
 
@@ -442,30 +474,6 @@ fn parse_verdict(s: &str) -> Option<Verdict> {
     ]
     .into_iter()
     .find(|v| v.as_str() == s)
-}
-
-/// `f` over `items` on every core, order kept.
-fn parallel_map<T: Send, U: Send>(items: Vec<T>, f: impl Fn(T) -> U + Sync) -> Vec<U> {
-    let threads = std::thread::available_parallelism()
-        .map_or(1, |n| n.get())
-        .max(1);
-    let chunk = items.len().div_ceil(threads).max(1);
-    let mut parts: Vec<Vec<T>> = Vec::new();
-    let mut items = items.into_iter().peekable();
-    while items.peek().is_some() {
-        parts.push(items.by_ref().take(chunk).collect());
-    }
-    let f = &f;
-    std::thread::scope(|s| {
-        let handles: Vec<_> = parts
-            .into_iter()
-            .map(|part| s.spawn(move || part.into_iter().map(f).collect::<Vec<U>>()))
-            .collect();
-        handles
-            .into_iter()
-            .flat_map(|h| h.join().unwrap_or_else(|p| std::panic::resume_unwind(p)))
-            .collect()
-    })
 }
 
 /// Sub-folders of a folder, sorted by name; names starting with a dot are not records.

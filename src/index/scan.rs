@@ -133,9 +133,19 @@ pub(super) fn scan_record(dir: &Path) -> Result<IndexedRun, IndexError> {
         values,
         metrics_json,
         judging_json: judging.and_then(|j| serde_json::to_string(&j).ok()),
+        metrics_bin: summary.as_ref().and_then(|s| compact(&s.metrics)),
         run_mtime: mtime_ns(&dir.join(record::RUN_FILE)),
         summary_mtime: mtime_ns(&dir.join("summary.json")),
     })
+}
+
+/// Metrics without their notes, compact: what re-judging reads for every run.
+pub(super) fn compact(m: &Metrics) -> Option<Vec<u8>> {
+    let m = Metrics {
+        notes: Vec::new(),
+        ..m.clone()
+    };
+    postcard::to_allocvec(&m).ok()
 }
 
 fn outcome_word(o: Outcome) -> &'static str {

@@ -52,6 +52,9 @@ pub struct IndexedRun {
     /// [`Judging`] as JSON: present only for a run whose summary says what its plan promised
     /// (its metrics were then analysed against the record's own design).
     pub judging_json: Option<String>,
+    /// The same metrics without their notes, compact (postcard): what `compare --index`
+    /// reads for every run.
+    pub metrics_bin: Option<Vec<u8>>,
     pub run_mtime: i64,
     pub summary_mtime: i64,
 }
@@ -110,7 +113,8 @@ pub struct JudgingRow {
     pub design_sha256: String,
     pub outcome: Outcome,
     pub state: RecordState,
-    /// `None` for a run without a summary: it is re-judged from its folder.
+    /// `None` for a run without a summary: it is re-judged from its folder. Without its
+    /// notes unless a promised metric is missing (the notes say why).
     pub metrics: Option<Metrics>,
     /// `None` for a run whose summary does not say what its plan promised.
     pub judging: Option<Judging>,
