@@ -29,7 +29,7 @@ use tokio_modbus::{Request, Response, Slave};
 /// The link, shared between the client context in use and the driver (which drains stale
 /// bytes and attaches a fresh context after a lost reply). Only one user at a time.
 #[derive(Clone)]
-struct SharedIo(Arc<StdMutex<BoxTransport>>);
+pub(super) struct SharedIo(Arc<StdMutex<BoxTransport>>);
 
 impl fmt::Debug for SharedIo {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
@@ -38,6 +38,10 @@ impl fmt::Debug for SharedIo {
 }
 
 impl SharedIo {
+    pub(super) fn new(io: BoxTransport) -> SharedIo {
+        SharedIo(Arc::new(StdMutex::new(io)))
+    }
+
     fn with<R>(&self, f: impl FnOnce(Pin<&mut BoxTransport>) -> R) -> R {
         let mut g = self.0.lock().unwrap_or_else(|e| e.into_inner());
         f(Pin::new(&mut *g))

@@ -386,6 +386,8 @@ pub fn rtu_request_len(buf: &[u8]) -> Option<usize> {
     match function {
         FC_READ_COILS..=FC_WRITE_SINGLE_REGISTER => Some(8),
         FC_WRITE_MULTIPLE_COILS | FC_WRITE_MULTIPLE_REGISTERS => Some(9 + *buf.get(6)? as usize),
+        // Read Device Identification: MEI type, code, object id (V1.1b3 section 6.21).
+        super::device_id::FC_ENCAPSULATED_INTERFACE => Some(7),
         _ => Some(0),
     }
 }
