@@ -13,7 +13,7 @@ use super::modbus_fault::ModbusFault;
 use super::BenchError;
 use crate::guardian::{GuardFrame, GuardPayload};
 use crate::measure::{Reading, Role};
-use crate::protocol::modbus::ObjectKind;
+use crate::protocol::modbus::{Encoding, ObjectKind, WordOrder};
 use crate::transport::{BoxTransport, IoCause, TrafficLog};
 use std::fmt;
 use std::pin::Pin;
@@ -25,6 +25,19 @@ use tokio::sync::Mutex;
 use tokio::time::Instant;
 use tokio_modbus::client::{Client as _, Context};
 use tokio_modbus::{Request, Response, Slave};
+
+/// A number's raw bits as the map's `overrange` gives them: one register's 16 bits, or two
+/// registers' 32 bits with the word order undone (the high word first).
+pub(super) fn raw_bits(encoding: &Encoding, words: &[u16]) -> Option<u32> {
+    match (encoding.data_type.words(), words) {
+        (1, [w]) => Some(*w as u32),
+        (2, [a, b]) => Some(match encoding.word_order {
+            WordOrder::HighFirst => (*a as u32) << 16 | *b as u32,
+            WordOrder::LowFirst => (*b as u32) << 16 | *a as u32,
+        }),
+        _ => None,
+    }
+}
 
 /// The link, shared between the client context in use and the driver (which drains stale
 /// bytes and attaches a fresh context after a lost reply). Only one user at a time.
@@ -511,7 +524,12 @@ impl ModbusDevice {
             });
         };
         let desc = action.to_string();
-        let Payload::Number { encoding, .. } = &action.payload else {
+        let Payload::Number {
+            encoding,
+            overrange,
+            ..
+        } = &action.payload
+        else {
             return Err(BenchError::Command {
                 instrument: self.name.clone(),
                 detail: format!("{desc} holds no number"),
@@ -533,6 +551,9 @@ impl ModbusDevice {
                 ModbusFault::Mismatch("no registers in the reply".into()),
             ));
         };
+        if raw_bits(encoding, &words).is_some_and(|r| overrange.contains(&r)) {
+            return Ok(Reading::Overrange);
+        }
         let v = encoding
             .decode(&words)
             .map_err(|e| self.fail(&desc, ModbusFault::Value(e)))?;
@@ -756,5 +777,24 @@ source_output_off = { object = "holding", address = 0x30, value = 0 }
                 values: vec![0, 0]
             }
         );
+    }
+}
+
+#[cfg(test)]
+mod raw_bits_tests {
+    use super::*;
+    use crate::protocol::modbus::DataType;
+
+    // Word order as in the map's `word_order` (high_first: the high 16 bits at the lower
+    // address, the Modbus V1.1b3 big-endian convention; low_first swaps the words).
+    #[test]
+    fn raw_bits_undo_the_word_order() {
+        let e16 = Encoding::new(DataType::I16, WordOrder::HighFirst, 1.0);
+        assert_eq!(raw_bits(&e16, &[0x7FFF]), Some(0x7FFF));
+        let hi = Encoding::new(DataType::U32, WordOrder::HighFirst, 1.0);
+        let lo = Encoding::new(DataType::U32, WordOrder::LowFirst, 1.0);
+        assert_eq!(raw_bits(&hi, &[0x1234, 0x5678]), Some(0x1234_5678));
+        assert_eq!(raw_bits(&lo, &[0x5678, 0x1234]), Some(0x1234_5678));
+        assert_eq!(raw_bits(&hi, &[0x1234]), None);
     }
 }

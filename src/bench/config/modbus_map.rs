@@ -42,6 +42,10 @@ pub enum Payload {
     Number {
         encoding: Encoding,
         unit: String,
+        /// Raw values that mean "over range" (measurements only): the register's 16 bits, or
+        /// a 32-bit type's 32 bits in the number's own order (the word order undone), before
+        /// any scaling.
+        overrange: Vec<u32>,
     },
 }
 
@@ -78,7 +82,7 @@ impl fmt::Display for RegisterAction {
         match &self.payload {
             Payload::Fixed(Fixed::Coil(b)) => write!(f, ", {}", if *b { "on" } else { "off" })?,
             Payload::Fixed(Fixed::Word(w)) => write!(f, ", value {w}")?,
-            Payload::Number { encoding, unit } => write!(f, ", {encoding}, {unit}")?,
+            Payload::Number { encoding, unit, .. } => write!(f, ", {encoding}, {unit}")?,
         }
         f.write_str(")")
     }

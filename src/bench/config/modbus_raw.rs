@@ -43,4 +43,6 @@ pub(crate) struct RawRegister {
     pub scale: Option<Spanned<f64>>,
     pub unit: Option<Spanned<String>>,
     pub value: Option<Spanned<toml::Value>>,
+    /// Raw value(s) that mean "over range": an integer or a list of them.
+    pub overrange: Option<Spanned<toml::Value>>,
 }
