@@ -3,9 +3,7 @@
 //! in one response: the objects here are short), and decoding a response. Pure logic.
 
 use super::frame::Exception;
-
-/// Function code 43, Encapsulated Interface Transport (V1.1b3 section 6.19).
-pub const FC_ENCAPSULATED_INTERFACE: u8 = 0x2B;
+pub use super::frame::FC_ENCAPSULATED_INTERFACE;
 /// MEI type 14, Read Device Identification (V1.1b3 section 6.21).
 pub const MEI_READ_DEVICE_ID: u8 = 0x0E;
 
