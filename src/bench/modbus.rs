@@ -527,6 +527,7 @@ impl ModbusDevice {
         let Payload::Number {
             encoding,
             overrange,
+            overrange_flag,
             ..
         } = &action.payload
         else {
@@ -553,6 +554,30 @@ impl ModbusDevice {
         };
         if raw_bits(encoding, &words).is_some_and(|r| overrange.contains(&r)) {
             return Ok(Reading::Overrange);
+        }
+        if let Some(f) = overrange_flag {
+            let op = Op::Read {
+                object: f.object,
+                address: f.address,
+                count: 1,
+            };
+            let got = self
+                .exchange(&mut link, &op)
+                .await
+                .map_err(|e| self.fail(&desc, e))?;
+            let set = match (got, f.bit) {
+                (Got::Bits(b), _) => b.first().copied().unwrap_or(false),
+                (Got::Words(w), Some(bit)) => w.first().is_some_and(|w| w >> bit & 1 == 1),
+                _ => {
+                    return Err(self.fail(
+                        &desc,
+                        ModbusFault::Mismatch("no over-range flag in the reply".into()),
+                    ))
+                }
+            };
+            if set {
+                return Ok(Reading::Overrange);
+            }
         }
         let v = encoding
             .decode(&words)

@@ -311,6 +311,12 @@ fn check_register(
     }
     let payload = match (key.arity(), measuring) {
         (Arity::NoValue, false) => {
+            if let Some(o) = r.overrange_flag.as_ref() {
+                return Err(cx.err(
+                    Some(o.span()),
+                    format!("{what}: overrange_flag belongs to a measurement's register"),
+                ));
+            }
             if let Some(o) = r.overrange.as_ref() {
                 return Err(cx.err(
                     Some(o.span()),
@@ -407,10 +413,21 @@ fn check_register(
                     ))
                 }
             };
+            let overrange_flag = match r.overrange_flag.as_ref() {
+                None => None,
+                Some(f) if measuring => Some(overrange_flag(cx, what, f)?),
+                Some(f) => {
+                    return Err(cx.err(
+                        Some(f.span()),
+                        format!("{what}: overrange_flag belongs to a measurement's register"),
+                    ))
+                }
+            };
             Payload::Number {
                 encoding: Encoding::new(data_type, r.word_order.unwrap_or_default(), scale * mult),
                 unit: unit.get_ref().clone(),
                 overrange,
+                overrange_flag,
             }
         }
     };
@@ -467,6 +484,43 @@ fn overrange_values(
             _ => Err(bad()),
         })
         .collect()
+}
+
+/// Rule: `overrange_flag` is a coil or discrete input (no bit), or a holding or input
+/// register with the bit (0-15, 0 the least significant) that is set while over range.
+fn overrange_flag(
+    cx: &Cx<'_>,
+    what: &str,
+    f: &Spanned<super::modbus_raw::RawFlag>,
+) -> Checked<super::modbus_map::OverrangeFlag> {
+    let r = f.get_ref();
+    let err = |m: String| cx.err(Some(f.span()), format!("{what}: overrange_flag: {m}"));
+    if !(0..=65535).contains(&r.address) {
+        return Err(err(format!("address {} is outside 0-65535", r.address)));
+    }
+    let bit = match (r.object, r.bit) {
+        (ObjectKind::Coil | ObjectKind::DiscreteInput, None) => None,
+        (ObjectKind::Coil | ObjectKind::DiscreteInput, Some(_)) => {
+            return Err(err(format!(
+                "a {} is one bit: give no bit",
+                r.object.name()
+            )))
+        }
+        (ObjectKind::Holding | ObjectKind::Input, Some(b)) if (0..=15).contains(&b) => {
+            Some(b as u8)
+        }
+        (ObjectKind::Holding | ObjectKind::Input, _) => {
+            return Err(err(format!(
+                "the {} needs the bit that flags over range, bit = 0-15 (0 the least significant)",
+                r.object.name()
+            )))
+        }
+    };
+    Ok(super::modbus_map::OverrangeFlag {
+        object: r.object,
+        address: r.address as u16,
+        bit,
+    })
 }
 
 /// A fixed value: true/false (or 1/0) for a coil, 0-65535 for a holding register.

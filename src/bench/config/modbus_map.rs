@@ -46,7 +46,19 @@ pub enum Payload {
         /// a 32-bit type's 32 bits in the number's own order (the word order undone), before
         /// any scaling.
         overrange: Vec<u32>,
+        /// A flag read after the number: while it is set, the reading is over range.
+        overrange_flag: Option<OverrangeFlag>,
     },
+}
+
+/// Where a device flags "over range": a coil or discrete input, or one bit (0 the least
+/// significant) of a holding or input register.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct OverrangeFlag {
+    pub object: ObjectKind,
+    pub address: u16,
+    /// The bit of a register; `None` for a coil or discrete input.
+    pub bit: Option<u8>,
 }
 
 /// One command key's place in the device.

@@ -208,3 +208,44 @@ fn overrange_mistakes_are_reported_where_written() {
         "{e}"
     );
 }
+
+#[test]
+fn overrange_flag_mistakes_are_reported_where_written() {
+    // A register needs its bit; the flag's table starts at line 10, column 130.
+    let e = err(&METER.replace(
+        "OVER",
+        "0x7FFF, overrange_flag = { object = \"input\", address = 7 }",
+    ));
+    assert!(e.starts_with("b.toml:10:130:"), "{e}");
+    assert!(
+        e.contains("overrange_flag: the input register needs the bit that flags over range"),
+        "{e}"
+    );
+    let e = err(&METER.replace(
+        "OVER",
+        "0x7FFF, overrange_flag = { object = \"input\", address = 7, bit = 16 }",
+    ));
+    assert!(e.contains("bit = 0-15"), "{e}");
+    let e = err(&METER.replace(
+        "OVER",
+        "0x7FFF, overrange_flag = { object = \"coil\", address = 7, bit = 1 }",
+    ));
+    assert!(e.contains("is one bit: give no bit"), "{e}");
+    let cfg = BenchConfig::parse(
+        &METER.replace(
+            "OVER",
+            "0x7FFF, overrange_flag = { object = \"coil\", address = 7 }",
+        ),
+        "b.toml",
+    )
+    .unwrap();
+    let m = cfg.instruments[0].modbus.as_ref().unwrap();
+    let Payload::Number { overrange_flag, .. } = &m.actions[&CommandKey::MeasureVoltage].payload
+    else {
+        panic!()
+    };
+    assert_eq!(
+        overrange_flag.map(|f| (f.object, f.address, f.bit)),
+        Some((ObjectKind::Coil, 7, None))
+    );
+}
