@@ -412,7 +412,13 @@ fn slow_meter(mut dev: File, first: FirstReply) -> Arc<Mutex<Vec<String>>> {
 /// scheduling slack) with a timeout naming the instrument and the command, however long the
 /// device read goes on (the stand-in, like a node whose driver timeout is longer, keeps
 /// blocking); the next query gets its own reply, never the late one.
-fn unanswered_query_times_out_and_the_next_gets_its_own_reply(first: FirstReply) {
+/// `driver_timeout`: our end of the stand-in gets a receive timeout of the deadline, as the
+/// driver's read ends with ETIMEDOUT once its timeout (set to the deadline) passes; the read
+/// then ends on its own instead of waiting on.
+fn unanswered_query_times_out_and_the_next_gets_its_own_reply(
+    first: FirstReply,
+    driver_timeout: bool,
+) {
     use regulus::measure::Role;
     use std::time::{Duration, Instant};
     let text = format!(
@@ -423,7 +429,26 @@ fn unanswered_query_times_out_and_the_next_gets_its_own_reply(first: FirstReply)
     let got = slow_meter(dev, first);
     let rt = runtime();
     rt.block_on(async {
+        if driver_timeout {
+            use std::os::fd::AsRawFd;
+            let tv = libc::timeval {
+                tv_sec: 0,
+                tv_usec: (DEADLINE_MS * 1000) as libc::suseconds_t,
+            };
+            // SAFETY: setsockopt(2) reads a timeval of the size given from a live value.
+            let r = unsafe {
+                libc::setsockopt(
+                    ours.as_raw_fd(),
+                    libc::SOL_SOCKET,
+                    libc::SO_RCVTIMEO,
+                    &tv as *const libc::timeval as *const libc::c_void,
+                    std::mem::size_of::<libc::timeval>() as libc::socklen_t,
+                )
+            };
+            assert_eq!(r, 0, "{}", std::io::Error::last_os_error());
+        }
         let link = UsbTmcLink::from_file(ours, Duration::from_millis(DEADLINE_MS)).unwrap();
+        let counters = link.counters();
         let bench = Bench::with_transports(&cfg, vec![Box::new(link)])
             .await
             .unwrap_or_else(|e| panic!("{e}"));
@@ -462,6 +487,9 @@ fn unanswered_query_times_out_and_the_next_gets_its_own_reply(first: FirstReply)
             t1.elapsed() < Duration::from_millis(DEADLINE_MS),
             "{first:?}"
         );
+        // The device read of the unanswered query ended by the device's timeout, or not.
+        let timeouts = counters.device_timeouts.load(Ordering::SeqCst);
+        assert_eq!(timeouts > 0, driver_timeout, "{first:?}: {timeouts}");
     });
     let m = got.lock().unwrap().clone();
     assert_eq!(m.first().map(String::as_str), Some("*IDN?\n"), "{m:?}");
@@ -479,10 +507,20 @@ fn unanswered_query_times_out_and_the_next_gets_its_own_reply(first: FirstReply)
 
 #[test]
 fn a_late_reply_is_never_the_next_answer() {
-    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Late);
+    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Late, false);
+}
+
+#[test]
+fn a_late_reply_after_the_driver_timeout_is_never_the_next_answer() {
+    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Late, true);
+}
+
+#[test]
+fn a_query_never_answered_ends_with_the_driver_timeout() {
+    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Never, true);
 }
 
 #[test]
 fn a_query_never_answered_does_not_block_the_next() {
-    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Never);
+    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Never, false);
 }
