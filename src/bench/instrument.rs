@@ -97,7 +97,7 @@ pub async fn connect(cfg: &InstrumentConfig) -> Result<BoxTransport, BenchError>
                 },
             }
         }),
-        LinkConfig::UsbTmc(u) => crate::transport::open_usbtmc(&u.path).map_err(|e| {
+        LinkConfig::UsbTmc(u) => crate::transport::open_usbtmc(&u.path, cfg.reply_timeout).map_err(|e| {
             let error = match e {
                 OpenError::PermissionDenied => {
                     OpenError::Other(crate::transport::permission_help(&u.path))

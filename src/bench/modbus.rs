@@ -13,7 +13,7 @@ use super::modbus_fault::ModbusFault;
 use super::BenchError;
 use crate::guardian::{GuardFrame, GuardPayload};
 use crate::measure::{Reading, Role};
-use crate::protocol::modbus::ObjectKind;
+use crate::protocol::modbus::{Encoding, ObjectKind, WordOrder};
 use crate::transport::{BoxTransport, IoCause, TrafficLog};
 use std::fmt;
 use std::pin::Pin;
@@ -26,10 +26,23 @@ use tokio::time::Instant;
 use tokio_modbus::client::{Client as _, Context};
 use tokio_modbus::{Request, Response, Slave};
 
+/// A number's raw bits as the map's `overrange` gives them: one register's 16 bits, or two
+/// registers' 32 bits with the word order undone (the high word first).
+pub(super) fn raw_bits(encoding: &Encoding, words: &[u16]) -> Option<u32> {
+    match (encoding.data_type.words(), words) {
+        (1, [w]) => Some(*w as u32),
+        (2, [a, b]) => Some(match encoding.word_order {
+            WordOrder::HighFirst => (*a as u32) << 16 | *b as u32,
+            WordOrder::LowFirst => (*b as u32) << 16 | *a as u32,
+        }),
+        _ => None,
+    }
+}
+
 /// The link, shared between the client context in use and the driver (which drains stale
 /// bytes and attaches a fresh context after a lost reply). Only one user at a time.
 #[derive(Clone)]
-struct SharedIo(Arc<StdMutex<BoxTransport>>);
+pub(super) struct SharedIo(Arc<StdMutex<BoxTransport>>);
 
 impl fmt::Debug for SharedIo {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
@@ -38,6 +51,10 @@ impl fmt::Debug for SharedIo {
 }
 
 impl SharedIo {
+    pub(super) fn new(io: BoxTransport) -> SharedIo {
+        SharedIo(Arc::new(StdMutex::new(io)))
+    }
+
     fn with<R>(&self, f: impl FnOnce(Pin<&mut BoxTransport>) -> R) -> R {
         let mut g = self.0.lock().unwrap_or_else(|e| e.into_inner());
         f(Pin::new(&mut *g))
@@ -507,7 +524,13 @@ impl ModbusDevice {
             });
         };
         let desc = action.to_string();
-        let Payload::Number { encoding, .. } = &action.payload else {
+        let Payload::Number {
+            encoding,
+            overrange,
+            overrange_flag,
+            ..
+        } = &action.payload
+        else {
             return Err(BenchError::Command {
                 instrument: self.name.clone(),
                 detail: format!("{desc} holds no number"),
@@ -529,6 +552,33 @@ impl ModbusDevice {
                 ModbusFault::Mismatch("no registers in the reply".into()),
             ));
         };
+        if raw_bits(encoding, &words).is_some_and(|r| overrange.contains(&r)) {
+            return Ok(Reading::Overrange);
+        }
+        if let Some(f) = overrange_flag {
+            let op = Op::Read {
+                object: f.object,
+                address: f.address,
+                count: 1,
+            };
+            let got = self
+                .exchange(&mut link, &op)
+                .await
+                .map_err(|e| self.fail(&desc, e))?;
+            let set = match (got, f.bit) {
+                (Got::Bits(b), _) => b.first().copied().unwrap_or(false),
+                (Got::Words(w), Some(bit)) => w.first().is_some_and(|w| w >> bit & 1 == 1),
+                _ => {
+                    return Err(self.fail(
+                        &desc,
+                        ModbusFault::Mismatch("no over-range flag in the reply".into()),
+                    ))
+                }
+            };
+            if set {
+                return Ok(Reading::Overrange);
+            }
+        }
         let v = encoding
             .decode(&words)
             .map_err(|e| self.fail(&desc, ModbusFault::Value(e)))?;
@@ -752,5 +802,24 @@ source_output_off = { object = "holding", address = 0x30, value = 0 }
                 values: vec![0, 0]
             }
         );
+    }
+}
+
+#[cfg(test)]
+mod raw_bits_tests {
+    use super::*;
+    use crate::protocol::modbus::DataType;
+
+    // Word order as in the map's `word_order` (high_first: the high 16 bits at the lower
+    // address, the Modbus V1.1b3 big-endian convention; low_first swaps the words).
+    #[test]
+    fn raw_bits_undo_the_word_order() {
+        let e16 = Encoding::new(DataType::I16, WordOrder::HighFirst, 1.0);
+        assert_eq!(raw_bits(&e16, &[0x7FFF]), Some(0x7FFF));
+        let hi = Encoding::new(DataType::U32, WordOrder::HighFirst, 1.0);
+        let lo = Encoding::new(DataType::U32, WordOrder::LowFirst, 1.0);
+        assert_eq!(raw_bits(&hi, &[0x1234, 0x5678]), Some(0x1234_5678));
+        assert_eq!(raw_bits(&lo, &[0x5678, 0x1234]), Some(0x1234_5678));
+        assert_eq!(raw_bits(&hi, &[0x1234]), None);
     }
 }

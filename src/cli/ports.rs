@@ -1,17 +1,20 @@
 //! `regulus ports`: list the serial ports (path, `/dev/serial/by-id` name, USB vendor and
 //! product id, serial number) and USB-TMC nodes of this machine; with `--identify`, send each
 //! (or the one given with `--port`) the identity query with the given link settings and show
-//! the reply. Nothing else is ever written to a port. `--json` for scripts.
+//! the reply; `--tcp HOST:PORT` sends it over TCP too. `--modbus-rtu PATH` and `--modbus-tcp
+//! HOST[:PORT]` ask a Modbus unit (`--unit`) for its identification objects (Read Device
+//! Identification, function 0x2B / MEI 0x0E). Nothing else is ever written to a port. `--json`
+//! for scripts.
 
 use super::{CodedError, EXIT_ERROR, EXIT_OK, EXIT_USAGE};
 use crate::transport::{
     identify, list_ports, DataBits, FlowControl, FoundPort, LinkConfig, Parity, PortList,
-    SerialSettings, StopBits, UsbTmcSettings,
+    SerialSettings, StopBits, TcpSettings, UsbTmcSettings,
 };
 use anyhow::Context;
 use serde::Serialize;
 use std::io::Write;
-use std::num::NonZeroU32;
+use std::num::{NonZeroU16, NonZeroU32};
 use std::path::PathBuf;
 use std::time::Duration;
 
@@ -24,6 +27,20 @@ pub struct Args {
     /// Identify only this port (it need not be listed, e.g. a pseudo-terminal).
     #[arg(long, value_name = "PATH")]
     pub port: Option<String>,
+    /// Also send the identity query over TCP to HOST:PORT (repeatable).
+    #[arg(long, value_name = "HOST:PORT")]
+    pub tcp: Vec<String>,
+    /// Ask the Modbus unit on this serial port (RTU, with the serial settings below) for its
+    /// identification objects (repeatable).
+    #[arg(long, value_name = "PATH")]
+    pub modbus_rtu: Vec<String>,
+    /// Ask the Modbus TCP unit at HOST[:PORT] (port 502 unless given) for its identification
+    /// objects (repeatable).
+    #[arg(long, value_name = "HOST[:PORT]")]
+    pub modbus_tcp: Vec<String>,
+    /// Modbus unit id for --modbus-rtu and --modbus-tcp.
+    #[arg(long, default_value_t = 1, value_name = "ID")]
+    pub unit: u8,
     /// Identity query to send.
     #[arg(long, default_value = "*IDN?", value_name = "TEXT")]
     pub query: String,
@@ -55,8 +72,40 @@ pub struct Args {
 #[derive(Debug, Clone, Serialize)]
 pub struct Identified {
     pub path: String,
+    /// How it was asked: `text` (the identity query) or `modbus` (Read Device Identification).
+    pub via: &'static str,
     pub reply: Option<String>,
+    /// The Modbus identification objects.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub objects: Option<Vec<crate::bench::DeviceObject>>,
     pub error: Option<String>,
+}
+
+/// `HOST:PORT` (or `HOST` with `default_port`) as TCP settings.
+fn tcp_settings(
+    text: &str,
+    default_port: Option<u16>,
+    timeout: Duration,
+) -> Result<TcpSettings, CodedError> {
+    let bad = || {
+        CodedError::new(
+            EXIT_USAGE,
+            format!("'{text}': give HOST:PORT, e.g. 192.168.0.20:5025"),
+        )
+    };
+    let (host, port) = match text.rsplit_once(':') {
+        Some((h, p)) => (h, p.parse::<u16>().map_err(|_| bad())?),
+        None => (text, default_port.ok_or_else(bad)?),
+    };
+    let host = host.trim_start_matches('[').trim_end_matches(']');
+    if host.is_empty() {
+        return Err(bad());
+    }
+    Ok(TcpSettings {
+        host: host.to_string(),
+        port: NonZeroU16::new(port).ok_or_else(bad)?,
+        connect_timeout: timeout,
+    })
 }
 
 #[derive(Serialize)]
@@ -89,8 +138,11 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     };
     let list = list_ports(&args.sys_root, &args.dev_root);
     let mut identified = Vec::new();
+    let timeout = Duration::from_millis(args.timeout_ms.max(1));
+    // Every target is checked before anything is sent.
+    let mut text_targets: Vec<(String, LinkConfig)> = Vec::new();
     if args.identify {
-        let targets: Vec<String> = match &args.port {
+        let paths: Vec<String> = match &args.port {
             Some(p) => vec![p.clone()],
             None => list
                 .serial
@@ -99,28 +151,69 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
                 .map(|p| p.path.clone())
                 .collect(),
         };
-        let rt = tokio::runtime::Builder::new_current_thread()
-            .enable_all()
-            .build()
-            .context("cannot start the async runtime")?;
-        for path in targets {
+        for path in paths {
             let link = if path.starts_with("/dev/usbtmc") {
                 LinkConfig::UsbTmc(UsbTmcSettings { path: path.clone() })
             } else {
                 LinkConfig::Serial(serial(&path)?)
             };
-            let timeout = Duration::from_millis(args.timeout_ms.max(1));
+            text_targets.push((path, link));
+        }
+    }
+    for t in &args.tcp {
+        text_targets.push((t.clone(), LinkConfig::Tcp(tcp_settings(t, None, timeout)?)));
+    }
+    let mut modbus_targets: Vec<(String, LinkConfig)> = Vec::new();
+    for p in &args.modbus_rtu {
+        modbus_targets.push((p.clone(), LinkConfig::Serial(serial(p)?)));
+    }
+    for t in &args.modbus_tcp {
+        modbus_targets.push((
+            t.clone(),
+            LinkConfig::Tcp(tcp_settings(t, Some(502), timeout)?),
+        ));
+    }
+    if !text_targets.is_empty() || !modbus_targets.is_empty() {
+        let rt = tokio::runtime::Builder::new_current_thread()
+            .enable_all()
+            .build()
+            .context("cannot start the async runtime")?;
+        for (path, link) in text_targets {
             let r = rt.block_on(identify(&link, &args.query, timeout));
+            let (reply, error) = match r {
+                Ok(reply) => (Some(reply), None),
+                Err(e) => (None, Some(e.to_string())),
+            };
+            identified.push(Identified {
+                path,
+                via: "text",
+                reply,
+                objects: None,
+                error,
+            });
+        }
+        for (path, link) in modbus_targets {
+            let r = rt.block_on(crate::bench::modbus_identify(&link, args.unit, timeout));
             identified.push(match r {
-                Ok(reply) => Identified {
+                Ok(objects) => Identified {
                     path,
-                    reply: Some(reply),
+                    via: "modbus",
+                    reply: Some(
+                        objects
+                            .iter()
+                            .map(|o| format!("{}={}", o.name, o.value))
+                            .collect::<Vec<_>>()
+                            .join("; "),
+                    ),
+                    objects: Some(objects),
                     error: None,
                 },
                 Err(e) => Identified {
                     path,
+                    via: "modbus",
                     reply: None,
-                    error: Some(e.to_string()),
+                    objects: None,
+                    error: Some(e),
                 },
             });
         }

@@ -346,6 +346,18 @@ impl ModbusDeviceState {
     /// an address the device does not have, a value it refuses).
     pub fn respond(&mut self, pdu: &[u8], c: &mut Controls, snap: &Snapshot) -> Vec<u8> {
         let function = pdu.first().copied().unwrap_or(0);
+        // Read Device Identification: our own fictional vendor and product names.
+        let product = format!("{} (Modbus)", self.kind.model());
+        let objects: [(u8, &[u8]); 4] = [
+            (0x00, MAKER.as_bytes()),
+            (0x01, self.kind.model().as_bytes()),
+            (0x02, b"1.0"),
+            (0x04, product.as_bytes()),
+        ];
+        // Conformity level 0x82: regular objects, stream and individual access.
+        if let Some(r) = crate::protocol::modbus::answer_device_id(pdu, 0x82, &objects) {
+            return r.unwrap_or_else(|e| e.pdu(function));
+        }
         match self.respond_inner(pdu, c, snap) {
             Ok(r) => r.encode(),
             Err(e) => e.pdu(function),
@@ -524,10 +536,21 @@ mod tests {
             vec![0x86, 0x03]
         );
         assert_eq!(c.load.mode, LoadMode::ConstantCurrent);
+        // A function code the device does not implement (0x41, user-defined range of
+        // V1.1b3 section 5.1): exception 01.
         assert_eq!(
-            s.respond(&[0x2B, 0x0E, 0x01, 0x00], &mut c, &snap),
-            vec![0xAB, 0x01]
+            s.respond(&[0x41, 0x00, 0x00], &mut c, &snap),
+            vec![0xC1, 0x01]
         );
+        // Read Device Identification answers with our own names (V1.1b3 section 6.21).
+        let id = crate::protocol::modbus::parse_device_id_response(&s.respond(
+            &[0x2B, 0x0E, 0x01, 0x00],
+            &mut c,
+            &snap,
+        ))
+        .unwrap();
+        assert_eq!(id.objects[0], (0x00, MAKER.as_bytes().to_vec()));
+        assert_eq!(id.objects.len(), 3);
         // 40 A is above the load's range.
         let w = LOAD_CURRENT.encoding.encode(40.0).unwrap();
         let mut pdu = vec![0x10, 0x00, 0x10, 0x00, 0x02, 0x04];

@@ -34,7 +34,7 @@ pub async fn identify(
     let opened = match link {
         LinkConfig::Serial(s) => open_serial(s),
         LinkConfig::Tcp(t) => open_tcp(t).await,
-        LinkConfig::UsbTmc(u) => open_usbtmc(&u.path),
+        LinkConfig::UsbTmc(u) => open_usbtmc(&u.path, timeout),
     };
     let io = opened.map_err(|error| match (link, error) {
         (LinkConfig::UsbTmc(u), OpenError::PermissionDenied) => {

@@ -25,6 +25,4 @@ pub use memory::MemoryTransport;
 pub use serial::open_serial;
 pub use stream::{BoxTransport, IoCause, OpenError, Transport};
 pub use tcp::open_tcp;
-pub use usbtmc::{
-    open_usbtmc, permission_help, MessageDevice, UsbTmcCounters, UsbTmcLink, UDEV_RULE,
-};
+pub use usbtmc::{open_usbtmc, permission_help, UsbTmcCounters, UsbTmcLink, UDEV_RULE};

@@ -311,6 +311,18 @@ fn check_register(
     }
     let payload = match (key.arity(), measuring) {
         (Arity::NoValue, false) => {
+            if let Some(o) = r.overrange_flag.as_ref() {
+                return Err(cx.err(
+                    Some(o.span()),
+                    format!("{what}: overrange_flag belongs to a measurement's register"),
+                ));
+            }
+            if let Some(o) = r.overrange.as_ref() {
+                return Err(cx.err(
+                    Some(o.span()),
+                    format!("{what}: overrange belongs to a measurement's register"),
+                ));
+            }
             if let Some(t) = r.data_type.as_ref() {
                 return Err(cx.err(
                     Some(t.span()),
@@ -391,9 +403,31 @@ fn check_register(
                 .data_type
                 .map(Spanned::into_inner)
                 .unwrap_or(DataType::U16);
+            let overrange = match r.overrange.as_ref() {
+                None => Vec::new(),
+                Some(o) if measuring => overrange_values(cx, what, data_type, o)?,
+                Some(o) => {
+                    return Err(cx.err(
+                        Some(o.span()),
+                        format!("{what}: overrange belongs to a measurement's register"),
+                    ))
+                }
+            };
+            let overrange_flag = match r.overrange_flag.as_ref() {
+                None => None,
+                Some(f) if measuring => Some(overrange_flag(cx, what, f)?),
+                Some(f) => {
+                    return Err(cx.err(
+                        Some(f.span()),
+                        format!("{what}: overrange_flag belongs to a measurement's register"),
+                    ))
+                }
+            };
             Payload::Number {
                 encoding: Encoding::new(data_type, r.word_order.unwrap_or_default(), scale * mult),
                 unit: unit.get_ref().clone(),
+                overrange,
+                overrange_flag,
             }
         }
     };
@@ -413,6 +447,80 @@ fn check_register(
         ));
     }
     Ok(action)
+}
+
+/// Rule: `overrange` is a raw value or a list of them, each an integer that fits the data
+/// type's width (0-0xFFFF for 16-bit types, 0-0xFFFFFFFF for 32-bit ones: the register bits
+/// as sent, before scaling; negative numbers are not raw bits).
+fn overrange_values(
+    cx: &Cx<'_>,
+    what: &str,
+    data_type: DataType,
+    o: &Spanned<toml::Value>,
+) -> Checked<Vec<u32>> {
+    let max: i64 = if data_type.words() == 1 {
+        0xFFFF
+    } else {
+        0xFFFF_FFFF
+    };
+    let bad = || {
+        cx.err(
+            Some(o.span()),
+            format!(
+                "{what}: overrange takes the raw register value(s) that mean over range, each 0 to 0x{max:X} for {}, e.g. overrange = 0x7FFF or [0x7FFF, 0x8000]",
+                data_type.name()
+            ),
+        )
+    };
+    let items: Vec<&toml::Value> = match o.get_ref() {
+        toml::Value::Array(a) if !a.is_empty() => a.iter().collect(),
+        v @ toml::Value::Integer(_) => vec![v],
+        _ => return Err(bad()),
+    };
+    items
+        .into_iter()
+        .map(|v| match v.as_integer() {
+            Some(i) if (0..=max).contains(&i) => Ok(i as u32),
+            _ => Err(bad()),
+        })
+        .collect()
+}
+
+/// Rule: `overrange_flag` is a coil or discrete input (no bit), or a holding or input
+/// register with the bit (0-15, 0 the least significant) that is set while over range.
+fn overrange_flag(
+    cx: &Cx<'_>,
+    what: &str,
+    f: &Spanned<super::modbus_raw::RawFlag>,
+) -> Checked<super::modbus_map::OverrangeFlag> {
+    let r = f.get_ref();
+    let err = |m: String| cx.err(Some(f.span()), format!("{what}: overrange_flag: {m}"));
+    if !(0..=65535).contains(&r.address) {
+        return Err(err(format!("address {} is outside 0-65535", r.address)));
+    }
+    let bit = match (r.object, r.bit) {
+        (ObjectKind::Coil | ObjectKind::DiscreteInput, None) => None,
+        (ObjectKind::Coil | ObjectKind::DiscreteInput, Some(_)) => {
+            return Err(err(format!(
+                "a {} is one bit: give no bit",
+                r.object.name()
+            )))
+        }
+        (ObjectKind::Holding | ObjectKind::Input, Some(b)) if (0..=15).contains(&b) => {
+            Some(b as u8)
+        }
+        (ObjectKind::Holding | ObjectKind::Input, _) => {
+            return Err(err(format!(
+                "the {} needs the bit that flags over range, bit = 0-15 (0 the least significant)",
+                r.object.name()
+            )))
+        }
+    };
+    Ok(super::modbus_map::OverrangeFlag {
+        object: r.object,
+        address: r.address as u16,
+        bit,
+    })
 }
 
 /// A fixed value: true/false (or 1/0) for a coil, 0-65535 for a holding register.

@@ -42,7 +42,23 @@ pub enum Payload {
     Number {
         encoding: Encoding,
         unit: String,
+        /// Raw values that mean "over range" (measurements only): the register's 16 bits, or
+        /// a 32-bit type's 32 bits in the number's own order (the word order undone), before
+        /// any scaling.
+        overrange: Vec<u32>,
+        /// A flag read after the number: while it is set, the reading is over range.
+        overrange_flag: Option<OverrangeFlag>,
     },
+}
+
+/// Where a device flags "over range": a coil or discrete input, or one bit (0 the least
+/// significant) of a holding or input register.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct OverrangeFlag {
+    pub object: ObjectKind,
+    pub address: u16,
+    /// The bit of a register; `None` for a coil or discrete input.
+    pub bit: Option<u8>,
 }
 
 /// One command key's place in the device.
@@ -78,7 +94,7 @@ impl fmt::Display for RegisterAction {
         match &self.payload {
             Payload::Fixed(Fixed::Coil(b)) => write!(f, ", {}", if *b { "on" } else { "off" })?,
             Payload::Fixed(Fixed::Word(w)) => write!(f, ", value {w}")?,
-            Payload::Number { encoding, unit } => write!(f, ", {encoding}, {unit}")?,
+            Payload::Number { encoding, unit, .. } => write!(f, ", {encoding}, {unit}")?,
         }
         f.write_str(")")
     }

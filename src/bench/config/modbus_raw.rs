@@ -43,4 +43,16 @@ pub(crate) struct RawRegister {
     pub scale: Option<Spanned<f64>>,
     pub unit: Option<Spanned<String>>,
     pub value: Option<Spanned<toml::Value>>,
+    /// Raw value(s) that mean "over range": an integer or a list of them.
+    pub overrange: Option<Spanned<toml::Value>>,
+    /// A coil, discrete input or register bit that is set while the reading is over range.
+    pub overrange_flag: Option<Spanned<RawFlag>>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RawFlag {
+    pub object: ObjectKind,
+    pub address: i64,
+    pub bit: Option<i64>,
 }

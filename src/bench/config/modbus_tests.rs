@@ -46,7 +46,7 @@ fn a_register_map_becomes_actions_and_command_texts() {
         (set.object, set.address, set.count()),
         (ObjectKind::Holding, 0x10, 2)
     );
-    let Payload::Number { encoding, unit } = &set.payload else {
+    let Payload::Number { encoding, unit, .. } = &set.payload else {
         panic!()
     };
     assert_eq!(
@@ -156,4 +156,96 @@ fn the_shipped_modbus_example_parses() {
     assert_eq!(psu.safe_state, vec!["source_output_off".to_string()]);
     let eload = cfg.instruments[0].modbus.as_ref().unwrap();
     assert_eq!(eload.frame_gap, Duration::from_millis(5));
+}
+
+const METER: &str = r#"[[instrument]]
+name = "dmm"
+roles = ["output_voltmeter"]
+tcp = { host = "127.0.0.1", port = 502 }
+
+[instrument.modbus]
+unit = 1
+
+[instrument.modbus.registers]
+measure_voltage = { object = "input", address = 0, type = "i16", scale = 0.001, unit = "V", overrange = OVER }
+"#;
+
+#[test]
+fn overrange_raw_values_are_kept_with_the_measurement() {
+    let cfg = BenchConfig::parse(&METER.replace("OVER", "[0x7FFF, 0x8000]"), "b.toml").unwrap();
+    let m = cfg.instruments[0].modbus.as_ref().unwrap();
+    let Payload::Number { overrange, .. } = &m.actions[&CommandKey::MeasureVoltage].payload else {
+        panic!()
+    };
+    assert_eq!(overrange, &[0x7FFF, 0x8000]);
+    let cfg = BenchConfig::parse(&METER.replace("OVER", "0xFFFF"), "b.toml").unwrap();
+    let m = cfg.instruments[0].modbus.as_ref().unwrap();
+    let Payload::Number { overrange, .. } = &m.actions[&CommandKey::MeasureVoltage].payload else {
+        panic!()
+    };
+    assert_eq!(overrange, &[0xFFFF]);
+}
+
+#[test]
+fn overrange_mistakes_are_reported_where_written() {
+    // 0x10000 does not fit a 16-bit register; the value starts at line 10, column 105.
+    let e = err(&METER.replace("OVER", "0x10000"));
+    assert!(e.starts_with("b.toml:10:105:"), "{e}");
+    assert!(e.contains("each 0 to 0xFFFF for i16"), "{e}");
+    // A negative number is not raw bits; text is not a value.
+    assert!(err(&METER.replace("OVER", "-1")).contains("overrange takes the raw"));
+    assert!(err(&METER.replace("OVER", "\"max\"")).contains("overrange takes the raw"));
+    // Only a measurement has an over-range value.
+    let text = LOAD.replace(
+        "load_input_on = { object = \"coil\", address = 1, value = true }",
+        "load_input_on = { object = \"coil\", address = 1, value = true, overrange = 1 }",
+    );
+    let e = err(&text);
+    // Line 12, at the value of overrange.
+    assert!(e.starts_with("b.toml:12:75:"), "{e}");
+    assert!(
+        e.contains("overrange belongs to a measurement's register"),
+        "{e}"
+    );
+}
+
+#[test]
+fn overrange_flag_mistakes_are_reported_where_written() {
+    // A register needs its bit; the flag's table starts at line 10, column 130.
+    let e = err(&METER.replace(
+        "OVER",
+        "0x7FFF, overrange_flag = { object = \"input\", address = 7 }",
+    ));
+    assert!(e.starts_with("b.toml:10:130:"), "{e}");
+    assert!(
+        e.contains("overrange_flag: the input register needs the bit that flags over range"),
+        "{e}"
+    );
+    let e = err(&METER.replace(
+        "OVER",
+        "0x7FFF, overrange_flag = { object = \"input\", address = 7, bit = 16 }",
+    ));
+    assert!(e.contains("bit = 0-15"), "{e}");
+    let e = err(&METER.replace(
+        "OVER",
+        "0x7FFF, overrange_flag = { object = \"coil\", address = 7, bit = 1 }",
+    ));
+    assert!(e.contains("is one bit: give no bit"), "{e}");
+    let cfg = BenchConfig::parse(
+        &METER.replace(
+            "OVER",
+            "0x7FFF, overrange_flag = { object = \"coil\", address = 7 }",
+        ),
+        "b.toml",
+    )
+    .unwrap();
+    let m = cfg.instruments[0].modbus.as_ref().unwrap();
+    let Payload::Number { overrange_flag, .. } = &m.actions[&CommandKey::MeasureVoltage].payload
+    else {
+        panic!()
+    };
+    assert_eq!(
+        overrange_flag.map(|f| (f.object, f.address, f.bit)),
+        Some((ObjectKind::Coil, 7, None))
+    );
 }

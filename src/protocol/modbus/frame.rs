@@ -15,6 +15,8 @@ pub const FC_WRITE_SINGLE_COIL: u8 = 0x05;
 pub const FC_WRITE_SINGLE_REGISTER: u8 = 0x06;
 pub const FC_WRITE_MULTIPLE_COILS: u8 = 0x0F;
 pub const FC_WRITE_MULTIPLE_REGISTERS: u8 = 0x10;
+/// Function code 43, Encapsulated Interface Transport (V1.1b3 section 6.19; see `device_id`).
+pub const FC_ENCAPSULATED_INTERFACE: u8 = 0x2B;
 
 /// The name of a function code, for messages.
 pub fn function_name(code: u8) -> &'static str {
@@ -386,6 +388,8 @@ pub fn rtu_request_len(buf: &[u8]) -> Option<usize> {
     match function {
         FC_READ_COILS..=FC_WRITE_SINGLE_REGISTER => Some(8),
         FC_WRITE_MULTIPLE_COILS | FC_WRITE_MULTIPLE_REGISTERS => Some(9 + *buf.get(6)? as usize),
+        // Read Device Identification: MEI type, code, object id (V1.1b3 section 6.21).
+        FC_ENCAPSULATED_INTERFACE => Some(7),
         _ => Some(0),
     }
 }

@@ -5,9 +5,15 @@
 //! and the Modbus over Serial Line Specification V1.02. No I/O: the bench's client driver and
 //! the simulator's server use these.
 
+mod device_id;
 mod frame;
 mod values;
 
+pub use device_id::{
+    answer_device_id, device_id_request, device_id_response, device_object_name,
+    parse_device_id_response, DeviceId, DeviceIdError, ReadDeviceIdCode, FC_ENCAPSULATED_INTERFACE,
+    MEI_READ_DEVICE_ID,
+};
 pub use frame::{
     crc16, exception_meaning, function_name, mbap_frame, mbap_split, parse_request, rtu_frame,
     rtu_request_len, BadHeader, Exception, MbapFrame, Request, Response, FC_READ_COILS,

@@ -180,3 +180,161 @@ fn identify_shows_the_identity_reply_or_why_there_is_none() {
     assert_eq!(out.status.code(), Some(4));
     assert!(String::from_utf8_lossy(&out.stdout).contains("no reply to 'NOPE?' within 300 ms"));
 }
+
+fn lab_design() -> regulus::design::Design {
+    regulus::design::Design::load(Path::new(&format!(
+        "{}/samples/teaching-lab-0-20v.toml",
+        env!("CARGO_MANIFEST_DIR")
+    )))
+    .unwrap()
+}
+
+/// `--tcp HOST:PORT` sends the identity query over a loopback TCP socket to the simulator's
+/// meter (IEEE 488.2 `*IDN?` reply: four comma-separated fields); a port nobody listens on
+/// gives exit 4 and the reason.
+#[test]
+fn identify_over_tcp() {
+    let _g = serial();
+    let sim = SimBench::start(
+        &lab_design(),
+        SimOptions::default().transport(TransportMix::AllTcp),
+    )
+    .unwrap();
+    let Some(Link::Tcp(addr)) = sim.port(InstrumentKind::QueryMeter).cloned() else {
+        panic!("the meter is on TCP")
+    };
+    let out = ports(&[
+        "--tcp",
+        &addr.to_string(),
+        "--json",
+        "--sys-root",
+        "/nonexistent-sys",
+    ]);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let j: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let id = &j["identified"][0];
+    assert_eq!(id["path"], addr.to_string());
+    assert_eq!(id["via"], "text");
+    let reply = id["reply"].as_str().unwrap();
+    assert!(reply.starts_with("Regulus Simulated Bench,"), "{reply}");
+    assert_eq!(reply.split(',').count(), 4, "{reply}");
+    // Nobody listens on a port just freed.
+    let free = std::net::TcpListener::bind("127.0.0.1:0").unwrap();
+    let gone = free.local_addr().unwrap().to_string();
+    drop(free);
+    let out = ports(&["--tcp", &gone, "--sys-root", "/nonexistent-sys"]);
+    assert_eq!(out.status.code(), Some(4));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains(&gone) && text.contains("(no identity)"),
+        "{text}"
+    );
+    // A malformed address is a usage error.
+    assert_eq!(ports(&["--tcp", "no-port-here"]).status.code(), Some(2));
+}
+
+/// Modbus identification (Read Device Identification, 0x2B / 0x0E, V1.1b3 section 6.21) of
+/// the simulator's Modbus load over RTU on a pseudo-terminal and of its source over Modbus
+/// TCP on loopback, decoded by tokio-modbus's client: the objects are the simulator's own
+/// fictional vendor and product names; a unit id nobody answers to gives exit 4.
+#[test]
+fn identify_modbus_units_over_rtu_and_tcp() {
+    let _g = serial();
+    let rtu = SimBench::start(
+        &lab_design(),
+        SimOptions::default().transport(TransportMix::Modbus),
+    )
+    .unwrap();
+    let Some(Link::Pty(load)) = rtu.port(InstrumentKind::Load).cloned() else {
+        panic!("the load is on a pseudo-terminal")
+    };
+    let out = ports(&[
+        "--modbus-rtu",
+        &load,
+        "--unit",
+        "1",
+        "--baud",
+        "115200",
+        "--json",
+        "--sys-root",
+        "/nonexistent-sys",
+    ]);
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let j: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let id = &j["identified"][0];
+    assert_eq!(id["via"], "modbus");
+    let objects = id["objects"].as_array().unwrap();
+    let get = |n: &str| {
+        objects
+            .iter()
+            .find(|o| o["name"] == n)
+            .and_then(|o| o["value"].as_str())
+            .map(str::to_string)
+    };
+    assert_eq!(
+        get("VendorName").as_deref(),
+        Some("Regulus Simulated Bench")
+    );
+    assert_eq!(
+        get("ProductCode").as_deref(),
+        Some("Sinkhole electronic load")
+    );
+    assert_eq!(get("MajorMinorRevision").as_deref(), Some("1.0"));
+    assert_eq!(objects[0]["id"], 0);
+    // The load's state is untouched: identification writes nothing else.
+    let (_, _, c) = rtu.state();
+    assert!(!c.load.input_on);
+    // No unit 9 on this line: no reply within the timeout.
+    let out = ports(&[
+        "--modbus-rtu",
+        &load,
+        "--unit",
+        "9",
+        "--timeout-ms",
+        "300",
+        "--sys-root",
+        "/nonexistent-sys",
+    ]);
+    assert_eq!(out.status.code(), Some(4));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("no reply to read device identification"),
+        "{text}"
+    );
+    drop(rtu);
+
+    let tcp = SimBench::start(
+        &lab_design(),
+        SimOptions::default().transport(TransportMix::ModbusTcp),
+    )
+    .unwrap();
+    let Some(Link::Tcp(addr)) = tcp.port(InstrumentKind::Source).cloned() else {
+        panic!("the source is on TCP")
+    };
+    let out = ports(&[
+        "--modbus-tcp",
+        &addr.to_string(),
+        "--unit",
+        "2",
+        "--sys-root",
+        "/nonexistent-sys",
+    ]);
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(out.status.code(), Some(0), "{text}");
+    assert!(
+        text.contains("VendorName=Regulus Simulated Bench; ProductCode=Wellspring bench source"),
+        "{text}"
+    );
+}

@@ -110,7 +110,7 @@ usbtmc = { path = "/dev/usbtmc1" }
 "#;
 
 fn link(dev: File) -> (BoxTransport, Arc<UsbTmcCounters>) {
-    let l = UsbTmcLink::new(dev);
+    let l = UsbTmcLink::from_file(dev, std::time::Duration::from_secs(1)).unwrap();
     let c = l.counters();
     (Box::new(l), c)
 }
@@ -292,8 +292,8 @@ fn the_guardian_writes_each_safe_state_line_as_one_message() {
         Bench::with_transports(
             &cfg,
             vec![
-                Box::new(UsbTmcLink::from_file(ours_m)),
-                Box::new(UsbTmcLink::from_file(ours_l)),
+                Box::new(UsbTmcLink::from_file(ours_m, std::time::Duration::from_secs(1)).unwrap()),
+                Box::new(UsbTmcLink::from_file(ours_l, std::time::Duration::from_secs(1)).unwrap()),
             ],
         )
         .await
@@ -350,4 +350,177 @@ fn the_guardian_writes_each_safe_state_line_as_one_message() {
     assert_eq!(l[before..], ["INP OFF\n".to_string()], "{l:?}");
     let note = std::fs::read_to_string(record.path().join(NOTE_FILE)).unwrap();
     assert!(note.contains("eload: INP OFF (sent)"), "{note:?}");
+}
+
+/// How the stand-in meter treats its first measuring query.
+#[derive(Clone, Copy, Debug)]
+enum FirstReply {
+    /// Answers it only after the deadline (and after its own wait, `LATE_MS`).
+    Late,
+    /// Never answers it.
+    Never,
+}
+
+const DEADLINE_MS: u64 = 300;
+const LATE_MS: u64 = 450;
+/// A query's deadline may run over by the scheduler's slack, never by a device timeout.
+const SLACK_MS: u64 = 200;
+
+/// A meter that answers its first `MEAS:VOLT:DC?` late or never (with a reading of its own,
+/// 9.999 V, so a late reply taken as an answer is seen), and every later one at once (12.0034
+/// V); it answers `*IDN?` (IEEE 488.2). Every message it gets is kept.
+fn slow_meter(mut dev: File, first: FirstReply) -> Arc<Mutex<Vec<String>>> {
+    let got = Arc::new(Mutex::new(Vec::new()));
+    let got2 = Arc::clone(&got);
+    std::thread::spawn(move || {
+        let mut buf = [0u8; 4096];
+        let mut measured = 0;
+        loop {
+            let n = match dev.read(&mut buf) {
+                Ok(0) | Err(_) => return,
+                Ok(n) => n,
+            };
+            let msg = String::from_utf8_lossy(&buf[..n]).to_string();
+            got2.lock().unwrap().push(msg.clone());
+            let reply = match msg.trim_end() {
+                "*IDN?" => "Regulus Simulated Bench,UT-1 meter,UT0001,1.0\n".to_string(),
+                "MEAS:VOLT:DC?" => {
+                    measured += 1;
+                    if measured > 1 {
+                        "+1.20034E+01\n".to_string()
+                    } else {
+                        match first {
+                            FirstReply::Never => continue,
+                            FirstReply::Late => {
+                                std::thread::sleep(std::time::Duration::from_millis(LATE_MS));
+                                "+9.99900E+00\n".to_string()
+                            }
+                        }
+                    }
+                }
+                _ => continue,
+            };
+            if dev.write_all(reply.as_bytes()).is_err() {
+                return;
+            }
+        }
+    });
+    got
+}
+
+/// A query that is not answered within the instrument's deadline ends at the deadline (plus
+/// scheduling slack) with a timeout naming the instrument and the command, however long the
+/// device read goes on (the stand-in, like a node whose driver timeout is longer, keeps
+/// blocking); the next query gets its own reply, never the late one.
+/// `driver_timeout`: our end of the stand-in gets a receive timeout of the deadline, as the
+/// driver's read ends with ETIMEDOUT once its timeout (set to the deadline) passes; the read
+/// then ends on its own instead of waiting on.
+fn unanswered_query_times_out_and_the_next_gets_its_own_reply(
+    first: FirstReply,
+    driver_timeout: bool,
+) {
+    use regulus::measure::Role;
+    use std::time::{Duration, Instant};
+    let text = format!(
+        "[[instrument]]\nname = \"dmm\"\nroles = [\"output_voltmeter\"]\npreset = \"scpi_meter\"\nusbtmc = {{ path = \"/dev/usbtmc0\" }}\nreply_timeout_ms = {DEADLINE_MS}\nretries = 0\n"
+    );
+    let cfg = BenchConfig::parse(&text, "b.toml").unwrap_or_else(|e| panic!("{e}"));
+    let (ours, dev) = seqpacket_pair();
+    let got = slow_meter(dev, first);
+    let rt = runtime();
+    rt.block_on(async {
+        if driver_timeout {
+            use std::os::fd::AsRawFd;
+            let tv = libc::timeval {
+                tv_sec: 0,
+                tv_usec: (DEADLINE_MS * 1000) as libc::suseconds_t,
+            };
+            // SAFETY: setsockopt(2) reads a timeval of the size given from a live value.
+            let r = unsafe {
+                libc::setsockopt(
+                    ours.as_raw_fd(),
+                    libc::SOL_SOCKET,
+                    libc::SO_RCVTIMEO,
+                    &tv as *const libc::timeval as *const libc::c_void,
+                    std::mem::size_of::<libc::timeval>() as libc::socklen_t,
+                )
+            };
+            assert_eq!(r, 0, "{}", std::io::Error::last_os_error());
+        }
+        let link = UsbTmcLink::from_file(ours, Duration::from_millis(DEADLINE_MS)).unwrap();
+        let counters = link.counters();
+        let bench = Bench::with_transports(&cfg, vec![Box::new(link)])
+            .await
+            .unwrap_or_else(|e| panic!("{e}"));
+        let t0 = Instant::now();
+        let e = bench
+            .read_role(Role::OutputVoltmeter)
+            .await
+            .expect_err("the first query is not answered in time");
+        let took = t0.elapsed();
+        assert!(
+            took >= Duration::from_millis(DEADLINE_MS)
+                && took < Duration::from_millis(DEADLINE_MS + SLACK_MS),
+            "{first:?}: {took:?}"
+        );
+        match &e {
+            BenchError::NoReply {
+                instrument,
+                command,
+                ms,
+            } => {
+                assert_eq!(instrument, "dmm");
+                assert_eq!(command, "MEAS:VOLT:DC?");
+                assert_eq!(*ms, DEADLINE_MS as u128);
+            }
+            other => panic!("{first:?}: {other:?}"),
+        }
+        // The late reply (if any) has come by now.
+        tokio::time::sleep(Duration::from_millis(LATE_MS - DEADLINE_MS + 100)).await;
+        let t1 = Instant::now();
+        let (r, _) = bench
+            .read_role(Role::OutputVoltmeter)
+            .await
+            .unwrap_or_else(|e| panic!("{first:?}: {e}"));
+        assert_eq!(r.value(), Some(12.0034), "{first:?}: {r:?}");
+        assert!(
+            t1.elapsed() < Duration::from_millis(DEADLINE_MS),
+            "{first:?}"
+        );
+        // The device read of the unanswered query ended by the device's timeout, or not.
+        let timeouts = counters.device_timeouts.load(Ordering::SeqCst);
+        assert_eq!(timeouts > 0, driver_timeout, "{first:?}: {timeouts}");
+    });
+    let m = got.lock().unwrap().clone();
+    assert_eq!(m.first().map(String::as_str), Some("*IDN?\n"), "{m:?}");
+    assert_eq!(
+        m.get(1).map(String::as_str),
+        Some("MEAS:VOLT:DC?\n"),
+        "{m:?}"
+    );
+    assert_eq!(
+        m.last().map(String::as_str),
+        Some("MEAS:VOLT:DC?\n"),
+        "{m:?}"
+    );
+}
+
+#[test]
+fn a_late_reply_is_never_the_next_answer() {
+    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Late, false);
+}
+
+#[test]
+fn a_late_reply_after_the_driver_timeout_is_never_the_next_answer() {
+    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Late, true);
+}
+
+#[test]
+fn a_query_never_answered_ends_with_the_driver_timeout() {
+    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Never, true);
+}
+
+#[test]
+fn a_query_never_answered_does_not_block_the_next() {
+    unanswered_query_times_out_and_the_next_gets_its_own_reply(FirstReply::Never, false);
 }

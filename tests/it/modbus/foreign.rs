@@ -216,3 +216,80 @@ fn exception_responses_are_reported_with_their_code_and_meaning() {
         assert!(bench.safe_state().await.is_empty());
     });
 }
+
+/// A meter register's over-range code: the map declares the raw values 0x7FFF and 0x8000 of
+/// an i16 register (a common practice of meters with 16-bit readings: the extremes of the
+/// range stand for "over range" and "under range") and they read as over range, never as
+/// 32.767 V; any other value reads as its number.
+#[test]
+fn an_overrange_raw_value_reads_as_overrange() {
+    use regulus::measure::{Reading, Role};
+    let rt = runtime();
+    rt.block_on(async {
+        let station = Station::new();
+        station.input.lock().unwrap().insert(0x3100, 0x7FFF);
+        let port = serve(station.clone()).await;
+        let text = bench_file(port, "")
+            .replace("roles = [\"load\", \"output_voltmeter\", \"output_ammeter\"]", "roles = [\"load\", \"output_voltmeter\"]")
+            .replace(
+                "measure_voltage = { object = \"input\", address = 0x3000, type = \"f32\", word_order = \"high_first\", unit = \"V\" }",
+                "measure_voltage = { object = \"input\", address = 0x3100, type = \"i16\", scale = 0.001, unit = \"V\", overrange = [0x7FFF, 0x8000] }",
+            )
+            .replace("measure_current = { object = \"input\", address = 0x3002, type = \"u32\", word_order = \"low_first\", unit = \"uA\" }\n", "");
+        let cfg = BenchConfig::parse(&text, "other.toml").unwrap_or_else(|e| panic!("{e}"));
+        let bench = Bench::open(&cfg).await.unwrap_or_else(|e| panic!("{e}"));
+        let (r, _) = bench
+            .read_role(Role::OutputVoltmeter)
+            .await
+            .unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(r, Reading::Overrange);
+        // 0x8000 is -32768 as i16: declared too.
+        station.input.lock().unwrap().insert(0x3100, 0x8000);
+        let (r, _) = bench.read_role(Role::OutputVoltmeter).await.unwrap();
+        assert_eq!(r, Reading::Overrange);
+        // 12.345 V in 1 mV counts.
+        station.input.lock().unwrap().insert(0x3100, 12345);
+        let (r, _) = bench.read_role(Role::OutputVoltmeter).await.unwrap();
+        assert_eq!(r, Reading::Value(12.345));
+        // The same code without the declaration is a number (32.767 V).
+        drop(bench);
+        station.input.lock().unwrap().insert(0x3100, 0x7FFF);
+        let cfg = BenchConfig::parse(&text.replace(", overrange = [0x7FFF, 0x8000]", ""), "other.toml").unwrap();
+        let bench = Bench::open(&cfg).await.unwrap_or_else(|e| panic!("{e}"));
+        let (r, _) = bench.read_role(Role::OutputVoltmeter).await.unwrap();
+        assert_eq!(r, Reading::Value(32.767));
+    });
+}
+
+/// A meter that flags "over range" in a status register bit (bit 3 of holding register
+/// 0x2002, an invented layout): while the bit is set the reading is over range whatever the
+/// value register holds; when it is clear the value register's number counts.
+#[test]
+fn an_overrange_flag_bit_reads_as_overrange() {
+    use regulus::measure::{Reading, Role};
+    let rt = runtime();
+    rt.block_on(async {
+        let station = Station::new();
+        station.input.lock().unwrap().insert(0x3100, 12345);
+        station.holding.lock().unwrap().insert(0x2002, 0b0000_0001);
+        let port = serve(station.clone()).await;
+        let text = bench_file(port, "")
+            .replace("roles = [\"load\", \"output_voltmeter\", \"output_ammeter\"]", "roles = [\"load\", \"output_voltmeter\"]")
+            .replace(
+                "measure_voltage = { object = \"input\", address = 0x3000, type = \"f32\", word_order = \"high_first\", unit = \"V\" }",
+                "measure_voltage = { object = \"input\", address = 0x3100, type = \"u16\", scale = 0.001, unit = \"V\", overrange_flag = { object = \"holding\", address = 0x2002, bit = 3 } }",
+            )
+            .replace("measure_current = { object = \"input\", address = 0x3002, type = \"u32\", word_order = \"low_first\", unit = \"uA\" }\n", "");
+        let cfg = BenchConfig::parse(&text, "other.toml").unwrap_or_else(|e| panic!("{e}"));
+        let bench = Bench::open(&cfg).await.unwrap_or_else(|e| panic!("{e}"));
+        // Another bit set (bit 0): not the flag.
+        let (r, _) = bench.read_role(Role::OutputVoltmeter).await.unwrap_or_else(|e| panic!("{e}"));
+        assert_eq!(r, Reading::Value(12.345));
+        station.holding.lock().unwrap().insert(0x2002, 0b0000_1001);
+        let (r, _) = bench.read_role(Role::OutputVoltmeter).await.unwrap();
+        assert_eq!(r, Reading::Overrange);
+        station.holding.lock().unwrap().insert(0x2002, 0);
+        let (r, _) = bench.read_role(Role::OutputVoltmeter).await.unwrap();
+        assert_eq!(r, Reading::Value(12.345));
+    });
+}
