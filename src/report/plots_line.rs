@@ -164,12 +164,16 @@ fn draw_line<DB: DrawingBackend>(
     let data = range_of(ys.iter().copied().chain(env_ys)).unwrap_or((0.0, 1.0));
     let mut yr = pad(at_least(data, MIN_VOLT_SPAN), 0.12);
     let band = band.filter(|b| sane(b.min) && sane(b.max) && b.min <= b.max);
-    // A unit outside the design's band shows the nearer edge of it.
+    // A unit outside the design's band shows the band too, and the legend goes into the
+    // empty gap between them.
+    let mut legend_at = SeriesLabelPosition::UpperMiddle;
     if let Some(b) = band {
         if b.max < yr.0 {
-            yr = pad((b.max, yr.1), 0.05);
+            yr = pad((b.min, yr.1), 0.05);
+            legend_at = SeriesLabelPosition::MiddleMiddle;
         } else if b.min > yr.1 {
-            yr = pad((yr.0, b.min), 0.05);
+            yr = pad((yr.0, b.max), 0.05);
+            legend_at = SeriesLabelPosition::MiddleMiddle;
         }
     }
     let xr = pad(at_least((x_lo, x_hi), 1.0), 0.05);
@@ -190,9 +194,11 @@ fn draw_line<DB: DrawingBackend>(
         .draw()
         .map_err(s)?;
     if let Some(b) = band {
-        // Lighter than the V-I band: on a unit inside it the band fills the whole plot.
-        let fill = BAND.mix(0.2).filled();
+        // Lighter when the band fills the whole plot (a unit well inside it).
         let (lo, hi) = (b.min.max(yr.0), b.max.min(yr.1));
+        let fill = BAND
+            .mix(if lo <= yr.0 && hi >= yr.1 { 0.2 } else { 0.4 })
+            .filled();
         if lo < hi {
             chart
                 .draw_series([Rectangle::new([(xr.0, lo), (xr.1, hi)], fill)])
@@ -245,7 +251,7 @@ fn draw_line<DB: DrawingBackend>(
             .label(format!("plan limit: +-{max} % over the sweep (dotted)"))
             .legend(move |(x, y)| DashedPathElement::new(vec![(x, y), (x + 18, y)], 2, 2, style));
     }
-    legend(&mut chart, SeriesLabelPosition::UpperMiddle)
+    legend(&mut chart, legend_at)
 }
 
 /// Output-voltage tick labels with enough digits for the axis span.
