@@ -46,7 +46,13 @@ pub enum PipelineError {
     /// The pre-flight stopped the unit, but the record of the stop could not be written (a
     /// station failure: the disk or the records folder).
     #[error("{message}; the record of this stop could not be written: {error}")]
-    PreFlightNotRecorded { message: String, error: String },
+    PreFlightNotRecorded {
+        message: String,
+        error: String,
+        /// The record folder could not be created (check --records: exit 2, as for a run
+        /// the runner cannot start); otherwise writing it failed (the disk: exit 4).
+        config: bool,
+    },
     /// The pre-flight reading could not be taken (the station's failure).
     #[error("pre-flight: the unloaded output could not be read: {error}")]
     PreFlightInstrument {
@@ -84,8 +90,8 @@ impl PipelineError {
     pub fn is_config(&self) -> bool {
         match self {
             PipelineError::Bench(e) => e.is_config(),
+            PipelineError::PreFlightNotRecorded { config, .. } => *config,
             PipelineError::PreFlight { .. }
-            | PipelineError::PreFlightNotRecorded { .. }
             | PipelineError::PreFlightInstrument { .. }
             | PipelineError::PreFlightCancelled => false,
             _ => true,

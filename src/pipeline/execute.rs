@@ -112,7 +112,16 @@ fn record_preflight_stop<B: BenchControl>(
     measured_v: f64,
     row: Option<Box<Row>>,
 ) -> PipelineError {
-    let started = chrono::Utc::now();
+    // The record starts when the pre-flight reading began (its row's time less its elapsed
+    // time), so the row's elapsed_s counts from the record's start like every other row.
+    let started = row
+        .as_ref()
+        .and_then(|r| {
+            let at = chrono::DateTime::parse_from_rfc3339(&r.utc).ok()?;
+            let since = chrono::Duration::milliseconds((r.elapsed_s * 1000.0).round() as i64);
+            Some(at.with_timezone(&chrono::Utc) - since)
+        })
+        .unwrap_or_else(chrono::Utc::now);
     let info = RunInfo {
         schema_version: SCHEMA_VERSION,
         tool_version: env!("CARGO_PKG_VERSION").to_string(),
@@ -128,16 +137,18 @@ fn record_preflight_stop<B: BenchControl>(
         reason: None,
         rows: 0,
     };
-    let write = || -> Result<std::path::PathBuf, String> {
+    // Err((what went wrong, whether the folder could not even be created)).
+    let write = || -> Result<std::path::PathBuf, (String, bool)> {
         let mut w = RecordWriter::create(&req.records, started, info, &prep.snapshots())
-            .map_err(|e| format!("{e} (check --records)"))?;
+            .map_err(|e| (format!("{e} (check --records)"), true))?;
         let dir = w.dir().to_path_buf();
+        let failed = |e: String| (e, false);
         if let Some(r) = &row {
-            w.append(r).map_err(|e| e.to_string())?;
+            w.append(r).map_err(|e| failed(e.to_string()))?;
         }
         w.finish(chrono::Utc::now(), Outcome::Aborted, Some(message.clone()))
-            .map_err(|e| e.to_string())?;
-        write_derived_in(&dir, prep).map_err(|e| e.to_string())?;
+            .map_err(|e| failed(e.to_string()))?;
+        write_derived_in(&dir, prep).map_err(|e| failed(e.to_string()))?;
         // The index is a cache: the record is complete either way.
         let _ = crate::index::run_finished(&dir);
         Ok(dir)
@@ -149,7 +160,11 @@ fn record_preflight_stop<B: BenchControl>(
             row: None,
             record: Some(dir),
         },
-        Err(error) => PipelineError::PreFlightNotRecorded { message, error },
+        Err((error, config)) => PipelineError::PreFlightNotRecorded {
+            message,
+            error,
+            config,
+        },
     }
 }
 

@@ -348,6 +348,9 @@ fn a_unit_that_does_not_look_like_the_design_stops_at_the_pre_flight() {
     assert_eq!(rec.rows.len(), 1, "{:?}", rec.rows);
     let row = &rec.rows[0];
     assert_eq!(row.step_kind, regulus::record::StepKind::Preflight);
+    // The record starts when the reading began (RFC 3339 with milliseconds and Z: the
+    // strings order as the times do).
+    assert!(rec.info.started_utc <= row.utc, "{:?} {row:?}", rec.info);
     assert!(row.load_mode.is_off());
     let v = row
         .value(regulus::measure::Quantity::OutputVoltage)
@@ -388,6 +391,36 @@ fn a_unit_that_does_not_look_like_the_design_stops_at_the_pre_flight() {
         .unwrap();
     assert_eq!(out.status.code(), Some(1), "{}", show(&out));
     assert!(String::from_utf8_lossy(&out.stdout).contains("output_voltage"));
+}
+
+#[test]
+fn a_pre_flight_stop_whose_record_cannot_be_created_says_so() {
+    // The same stop with --records naming a plain file: the record of the stop cannot be
+    // created, which the console says next to the stop itself; like a run whose record
+    // cannot be created, that is a problem with --records (exit 2), and the bench is safe.
+    let _g = serial();
+    let mut rig = Rig::start(
+        "fixed-12v-3a-foldback.toml",
+        SimOptions::default().seed(209),
+    );
+    rig.design_path = crate::support::e2e::sample(LAB);
+    std::fs::write(&rig.records, "not a folder\n").unwrap();
+    let out = rig.run("E2E-0209", QUICK);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr.contains("does not look like the design"),
+        "{}",
+        show(&out)
+    );
+    assert!(
+        stderr.contains("the record of this stop could not be written"),
+        "{}",
+        show(&out)
+    );
+    assert!(stderr.contains("--records"), "{}", show(&out));
+    assert_eq!(out.status.code(), Some(2), "{}", show(&out));
+    let (_, _, c) = rig.sim.state();
+    assert!(!c.load.input_on && !c.source.output_on, "bench not safe");
 }
 
 /// A characterisation plan for the diagnosis: regulation, the knee and a short.
