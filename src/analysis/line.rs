@@ -6,20 +6,25 @@ use super::metrics::*;
 use crate::measure::Quantity;
 use crate::record::{Row, StepKind};
 
-pub(super) fn line_regulation(
-    rows: &[Row],
-    opts: &AnalysisOptions,
-    v_no_load: Option<f64>,
-) -> Option<LineRegulation> {
-    let pts: Vec<(f64, f64)> = rows
-        .iter()
+/// The (input voltage, output voltage) points of the line sweep: the measured input voltage,
+/// else the programmed source voltage. The points [`line_regulation`] fits, and the plot draws.
+pub fn line_points(rows: &[Row]) -> Vec<(f64, f64)> {
+    rows.iter()
         .filter(|r| r.step_kind == StepKind::LineSweep)
         .filter_map(|r| {
             let vin = r.value(Quantity::InputVoltage).or(r.source_volts)?;
             let vout = r.value(Quantity::OutputVoltage)?;
             Some((vin, vout))
         })
-        .collect();
+        .collect()
+}
+
+pub(super) fn line_regulation(
+    rows: &[Row],
+    opts: &AnalysisOptions,
+    v_no_load: Option<f64>,
+) -> Option<LineRegulation> {
+    let pts = line_points(rows);
     let xs: Vec<f64> = pts.iter().map(|p| p.0).collect();
     let ys: Vec<f64> = pts.iter().map(|p| p.1).collect();
     let fit = linear_fit(&xs, &ys)?;

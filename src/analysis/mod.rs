@@ -29,9 +29,11 @@ mod tests;
 
 pub use curve::{analyse, curve_points, load_regulation_percent};
 pub use fit::{fit_exponential, linear_fit, robust_fit, ExpFit, LineFit};
+pub use line::line_points;
 pub use metrics::{
     AnalysisOptions, CurvePoint, KneeConditions, KneeMetrics, LineRegulation, LoadRegulation,
     Metrics, OutputResistance, RegulationReference, ShortCircuit, Soak, DEFAULT_KNEE_DROP,
     DEFAULT_REGULATION_SPAN,
 };
 pub use short::{dwell_series, SHORTED_FRACTION};
+pub use soak::{soak_series, SoakPoint};

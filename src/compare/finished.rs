@@ -60,6 +60,8 @@ impl Promised {
             StepKind::ShortCircuit => &[Promised::ShortCircuitCurrent, Promised::Recovery],
             StepKind::LineSweep => &[Promised::LineRegulation],
             StepKind::Soak => &[Promised::SoakDrift],
+            // The pre-flight reading only decides whether the plan runs.
+            StepKind::Preflight => &[],
         }
     }
 

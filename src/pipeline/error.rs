@@ -33,8 +33,26 @@ pub enum PipelineError {
     #[error("{message} (bench file {})", bench.display())]
     BenchRoles { message: String, bench: PathBuf },
     /// The pre-flight reading does not look like the design; the bench is in its safe state.
-    #[error("{message}")]
-    PreFlight { message: String, measured_v: f64 },
+    /// `record` is the run folder that keeps the stop (run.json `aborted` with the reason,
+    /// the reading in readings.csv, summary and report), once written.
+    #[error("{message}{}", record.as_ref().map(|d| format!("; the record {} keeps the reading and says why", d.display())).unwrap_or_default())]
+    PreFlight {
+        message: String,
+        measured_v: f64,
+        /// The reading as a record row (kind `preflight`), to be written into the record.
+        row: Option<Box<crate::record::Row>>,
+        record: Option<PathBuf>,
+    },
+    /// The pre-flight stopped the unit, but the record of the stop could not be written (a
+    /// station failure: the disk or the records folder).
+    #[error("{message}; the record of this stop could not be written: {error}")]
+    PreFlightNotRecorded {
+        message: String,
+        error: String,
+        /// The record folder could not be created (check --records: exit 2, as for a run
+        /// the runner cannot start); otherwise writing it failed (the disk: exit 4).
+        config: bool,
+    },
     /// The pre-flight reading could not be taken (the station's failure).
     #[error("pre-flight: the unloaded output could not be read: {error}")]
     PreFlightInstrument {
@@ -72,6 +90,7 @@ impl PipelineError {
     pub fn is_config(&self) -> bool {
         match self {
             PipelineError::Bench(e) => e.is_config(),
+            PipelineError::PreFlightNotRecorded { config, .. } => *config,
             PipelineError::PreFlight { .. }
             | PipelineError::PreFlightInstrument { .. }
             | PipelineError::PreFlightCancelled => false,

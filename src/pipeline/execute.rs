@@ -6,6 +6,7 @@
 use super::{PipelineError, Prepared, RunRequest};
 use crate::compare::Verdict;
 use crate::control::BenchControl;
+use crate::record::{Outcome, RecordWriter, Row, RunInfo, SCHEMA_VERSION};
 use crate::report::{ReportError, ReportOptions, Written};
 use crate::runner::{self, CancelToken, Observer, RunReport, RunSetup};
 
@@ -59,7 +60,20 @@ pub async fn execute<B: BenchControl, O: Observer>(
     observer: &mut O,
     cancel: &CancelToken,
 ) -> Result<Finished, PipelineError> {
-    super::preflight(bench, prep, cancel).await?;
+    match super::preflight(bench, prep, cancel).await {
+        Ok(()) => {}
+        Err(PipelineError::PreFlight {
+            message,
+            measured_v,
+            row,
+            ..
+        }) => {
+            return Err(record_preflight_stop(
+                bench, prep, req, message, measured_v, row,
+            ))
+        }
+        Err(e) => return Err(e),
+    }
     let setup = RunSetup {
         records: &req.records,
         unit: req.unit.clone(),
@@ -85,11 +99,85 @@ pub async fn execute<B: BenchControl, O: Observer>(
     })
 }
 
+/// Keep a pre-flight stop as a record: run.json (outcome `aborted`, the stop's message as
+/// the reason), the reading in readings.csv (kind `preflight`), summary.json, the plots and
+/// report.html, all on disk before the stop is reported; the run is added to the index.
+/// The bench is already in its safe state. A record that cannot be written is a station
+/// failure ([`PipelineError::PreFlightNotRecorded`]).
+fn record_preflight_stop<B: BenchControl>(
+    bench: &B,
+    prep: &Prepared,
+    req: &RunRequest,
+    message: String,
+    measured_v: f64,
+    row: Option<Box<Row>>,
+) -> PipelineError {
+    // The record starts when the pre-flight reading began (its row's time less its elapsed
+    // time), so the row's elapsed_s counts from the record's start like every other row.
+    let started = row
+        .as_ref()
+        .and_then(|r| {
+            let at = chrono::DateTime::parse_from_rfc3339(&r.utc).ok()?;
+            let since = chrono::Duration::milliseconds((r.elapsed_s * 1000.0).round() as i64);
+            Some(at.with_timezone(&chrono::Utc) - since)
+        })
+        .unwrap_or_else(chrono::Utc::now);
+    let info = RunInfo {
+        schema_version: SCHEMA_VERSION,
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        unit: req.unit.clone(),
+        plan_name: prep.plan.name.clone(),
+        design: prep.design_ref.clone(),
+        instruments: bench.identities(),
+        operator: req.operator.clone(),
+        note: req.note.clone(),
+        started_utc: String::new(),
+        ended_utc: None,
+        outcome: Outcome::Running,
+        reason: None,
+        rows: 0,
+    };
+    // Err((what went wrong, whether the folder could not even be created)).
+    let write = || -> Result<std::path::PathBuf, (String, bool)> {
+        let mut w = RecordWriter::create(&req.records, started, info, &prep.snapshots())
+            .map_err(|e| (format!("{e} (check --records)"), true))?;
+        let dir = w.dir().to_path_buf();
+        let failed = |e: String| (e, false);
+        if let Some(r) = &row {
+            w.append(r).map_err(|e| failed(e.to_string()))?;
+        }
+        w.finish(chrono::Utc::now(), Outcome::Aborted, Some(message.clone()))
+            .map_err(|e| failed(e.to_string()))?;
+        write_derived_in(&dir, prep).map_err(|e| failed(e.to_string()))?;
+        // The index is a cache: the record is complete either way.
+        let _ = crate::index::run_finished(&dir);
+        Ok(dir)
+    };
+    match write() {
+        Ok(dir) => PipelineError::PreFlight {
+            message,
+            measured_v,
+            row: None,
+            record: Some(dir),
+        },
+        Err((error, config)) => PipelineError::PreFlightNotRecorded {
+            message,
+            error,
+            config,
+        },
+    }
+}
+
 /// Write summary.json, plots (SVG and PNG) and report.html for a finished run, with drift
 /// flags against the unit's earlier records.
 pub fn write_derived(report: &RunReport, prep: &Prepared) -> Result<Written, ReportError> {
+    write_derived_in(&report.dir, prep)
+}
+
+/// [`write_derived`] for the record in `dir`.
+fn write_derived_in(dir: &std::path::Path, prep: &Prepared) -> Result<Written, ReportError> {
     let analysis = crate::analysis::AnalysisOptions::default();
-    let earlier = crate::report::earlier_entries(&report.dir, &analysis);
+    let earlier = crate::report::earlier_entries(dir, &analysis);
     let opts = ReportOptions {
         analysis,
         earlier,
@@ -99,5 +187,5 @@ pub fn write_derived(report: &RunReport, prep: &Prepared) -> Result<Written, Rep
             prep.plan.steps.iter().map(|s| s.limits),
         )),
     };
-    crate::report::write_report_for_design(&report.dir, &prep.design, &prep.expectation, &opts)
+    crate::report::write_report_for_design(dir, &prep.design, &prep.expectation, &opts)
 }

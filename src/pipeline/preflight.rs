@@ -1,13 +1,15 @@
 //! Pre-flight: before any stress, power the unit unloaded, take one reading and compare the
 //! output with the design's band. A unit that does not look like the design (the wrong design
 //! file, the wrong unit, a dead or miswired one) stops there, with the bench in its safe
-//! state and no record started; `Preflight::Skip` (the command line's `--no-preflight`)
+//! state; the stop carries the reading as a record row (kind `preflight`) for the record that
+//! `execute` writes of it. `Preflight::Skip` (the command line's `--no-preflight`)
 //! overrides. Talks to the bench only through `BenchControl`; prints nothing.
 
 use super::{PipelineError, Prepared};
 use crate::control::BenchControl;
-use crate::measure::{Quantity, Role};
+use crate::measure::{Measurement, Quantity, Reading, Role};
 use crate::quantity::eng;
+use crate::record::{Cell, Cells, Flags, LoadState, Row, StepKind};
 use crate::runner::CancelToken;
 use std::time::Duration;
 
@@ -45,16 +47,54 @@ pub fn judge_preflight(prep: &Prepared, volts: f64) -> Result<(), PipelineError>
     Err(PipelineError::PreFlight {
         message: format!(
             "pre-flight: the unloaded output reads {} where design '{}' gives {} .. {} \
-             (worst case): this unit does not look like the design, so nothing was stressed \
-             and no record was started; check the --design file, the unit and its wiring, or \
-             run with --no-preflight to go ahead anyway",
+             (worst case): this unit does not look like the design, so nothing was stressed; \
+             check the --design file, the unit and its wiring, or run with --no-preflight to \
+             go ahead anyway",
             eng(volts, "V"),
             prep.design.design.name,
             eng(wc.min, "V"),
             eng(wc.max, "V"),
         ),
         measured_v: volts,
+        row: None,
+        record: None,
     })
+}
+
+/// The pre-flight reading as a record row: kind `preflight`, step 0, load off, the source
+/// voltage programmed for it (if any), one sample.
+pub fn preflight_row(m: &Measurement, elapsed_s: f64, source_volts: Option<f64>) -> Row {
+    let cells: Cells = m
+        .values
+        .iter()
+        .map(|(q, r)| {
+            let cell = match r {
+                Reading::Value(v) => Some(Cell::Value {
+                    mean: *v,
+                    spread: 0.0,
+                }),
+                Reading::Overrange => Some(Cell::Overrange),
+            };
+            (*q, cell)
+        })
+        .collect();
+    let mut flags = Flags::new();
+    if cells.any_overrange() {
+        flags.insert(crate::record::Flag::Overrange);
+    }
+    Row {
+        utc: crate::record::utc_string(chrono::Utc::now()),
+        elapsed_s: (elapsed_s * 1000.0).round() / 1000.0,
+        step: 0,
+        step_kind: StepKind::Preflight,
+        point: 0,
+        load_mode: LoadState::Off,
+        setpoint: None,
+        source_volts,
+        samples: 1,
+        cells,
+        flags,
+    }
 }
 
 /// Take the pre-flight reading and judge it. On a stop (or an instrument failure) the bench
@@ -67,12 +107,15 @@ pub async fn preflight<B: BenchControl>(
     if prep.preflight == Preflight::Skip || !bench.has_role(Role::OutputVoltmeter) {
         return Ok(());
     }
+    let t0 = std::time::Instant::now();
+    let mut source_v = None;
     let reading = async {
         bench.set_load_input(false).await?;
         if bench.has_role(Role::InputSource) {
             if let Some(v) = prep.plan.source_volts {
                 bench.set_source_voltage(v).await?;
                 bench.set_source_output(true).await?;
+                source_v = Some(v);
             }
         }
         let settle = prep
@@ -87,10 +130,27 @@ pub async fn preflight<B: BenchControl>(
     .await;
     let verdict = match reading {
         Ok(_) if cancel.is_cancelled() => Err(PipelineError::PreFlightCancelled),
-        Ok(m) => match m.get(Quantity::OutputVoltage) {
-            Some(v) => judge_preflight(prep, v),
-            None => judge_preflight(prep, f64::NAN),
-        },
+        Ok(m) => {
+            let v = m.get(Quantity::OutputVoltage).unwrap_or(f64::NAN);
+            judge_preflight(prep, v).map_err(|e| match e {
+                PipelineError::PreFlight {
+                    message,
+                    measured_v,
+                    record,
+                    ..
+                } => PipelineError::PreFlight {
+                    message,
+                    measured_v,
+                    row: Some(Box::new(preflight_row(
+                        &m,
+                        t0.elapsed().as_secs_f64(),
+                        source_v,
+                    ))),
+                    record,
+                },
+                other => other,
+            })
+        }
         Err(error) => Err(PipelineError::PreFlightInstrument { error }),
     };
     if verdict.is_err() {

@@ -135,6 +135,17 @@ impl Cx<'_> {
             })
         };
         let action = match kind {
+            // Never parsed from a plan (`StepKind::parse` does not know it); refused all the
+            // same rather than trusted.
+            StepKind::Preflight => {
+                return Err(self.at(
+                    rs.span(),
+                    format!(
+                        "step {}: 'preflight' is not a plan step (the pre-flight reading is                          taken before every plan; --no-preflight skips it)",
+                        index + 1
+                    ),
+                ))
+            }
             StepKind::LoadSweep => {
                 let setpoints = self.range(s, rs, Dim::Current, index, kind)?;
                 Action::Sweep {

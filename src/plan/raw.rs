@@ -131,5 +131,6 @@ pub(super) fn allowed_fields(kind: StepKind) -> &'static [&'static str] {
         ],
         StepKind::LineSweep => &["from", "to", "step", "points", "load", "max_change"],
         StepKind::Soak => &["load", "duration", "interval", "max_drift", "max_rise"],
+        StepKind::Preflight => &[],
     }
 }

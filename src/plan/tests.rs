@@ -226,6 +226,11 @@ fn unknown_kind_and_stray_fields_are_located() {
     let (line, col, msg) = located(parse(text).unwrap_err());
     assert_eq!((line, col), (4, 8));
     assert!(msg.contains("unknown step kind"), "{msg}");
+    // The pre-flight reading's row kind is not a plan step.
+    let text = "name = \"x\"\n\n[[step]]\nkind = \"preflight\"\n";
+    let (line, _, msg) = located(parse(text).unwrap_err());
+    assert_eq!(line, 4);
+    assert!(msg.contains("unknown step kind 'preflight'"), "{msg}");
 
     let text = "name = \"x\"\n[[step]]\nkind = \"soak\"\nload = 1\nduration = 5\ninterval = 1\ndwell = 3\n";
     let (line, col, msg) = located(parse(text).unwrap_err());

@@ -76,7 +76,7 @@ fn parse_row(rec: &csv::StringRecord) -> Result<Row, String> {
         }
     };
     let step_kind =
-        StepKind::parse(field(3)).ok_or_else(|| format!("unknown step_kind '{}'", field(3)))?;
+        StepKind::parse_row(field(3)).ok_or_else(|| format!("unknown step_kind '{}'", field(3)))?;
     let samples = field(8)
         .parse::<u32>()
         .map_err(|_| format!("`samples` is not a whole number: '{}'", field(8)))?;
@@ -296,6 +296,13 @@ mod tests {
         let e = parse_row(&record(&fields)).unwrap_err();
         assert!(e.contains("unknown flag 'dwell'"), "{e}");
         fields[19] = String::new();
+        // The pre-flight reading's kind reads back (a record row, not a plan step).
+        fields[3] = "preflight".into();
+        assert_eq!(
+            parse_row(&record(&fields)).map(|r| r.step_kind),
+            Ok(StepKind::Preflight)
+        );
+        fields[3] = "soak".into();
         fields[5] = "xx".into();
         let e = parse_row(&record(&fields)).unwrap_err();
         assert!(e.contains("unknown load_mode 'xx'"), "{e}");

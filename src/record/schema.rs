@@ -30,6 +30,9 @@ pub enum StepKind {
     ShortCircuit,
     LineSweep,
     Soak,
+    /// The unloaded reading taken before the first step (a record row only, never a plan
+    /// step: it promises no metric and no analysis reads it).
+    Preflight,
 }
 
 impl StepKind {
@@ -41,8 +44,10 @@ impl StepKind {
             StepKind::ShortCircuit => "short_circuit",
             StepKind::LineSweep => "line_sweep",
             StepKind::Soak => "soak",
+            StepKind::Preflight => "preflight",
         }
     }
+    /// A plan step's kind (the pre-flight is not one).
     pub fn parse(s: &str) -> Option<StepKind> {
         [
             StepKind::LoadSweep,
@@ -54,6 +59,10 @@ impl StepKind {
         ]
         .into_iter()
         .find(|k| k.as_str() == s)
+    }
+    /// A record row's kind: a plan step's, or the pre-flight reading's.
+    pub fn parse_row(s: &str) -> Option<StepKind> {
+        StepKind::parse(s).or((s == StepKind::Preflight.as_str()).then_some(StepKind::Preflight))
     }
 }
 

@@ -13,6 +13,7 @@ mod history;
 pub mod html;
 pub mod pdf;
 pub mod plots;
+pub mod plots_line;
 mod summary;
 
 pub use history::*;

@@ -28,16 +28,16 @@ pub const SIZE: (u32, u32) = (800, 520);
 /// 100,000-row record still gives a small page (fits and knees use every point).
 pub const MAX_POINTS: usize = 2000;
 
-fn stride(n: usize) -> usize {
+pub(super) fn stride(n: usize) -> usize {
     n.div_ceil(MAX_POINTS).max(1)
 }
 
-const FONT: &str = font::FAMILY;
-const MEASURED: RGBColor = RGBColor(0, 0, 0);
-const EXPECTED: RGBColor = RGBColor(30, 80, 160);
-const KNEE_A: RGBColor = RGBColor(190, 30, 30);
-const KNEE_B: RGBColor = RGBColor(20, 120, 40);
-const BAND: RGBColor = RGBColor(150, 150, 150);
+pub(super) const FONT: &str = font::FAMILY;
+pub(super) const MEASURED: RGBColor = RGBColor(0, 0, 0);
+pub(super) const EXPECTED: RGBColor = RGBColor(30, 80, 160);
+pub(super) const KNEE_A: RGBColor = RGBColor(190, 30, 30);
+pub(super) const KNEE_B: RGBColor = RGBColor(20, 120, 40);
+pub(super) const BAND: RGBColor = RGBColor(150, 150, 150);
 const KNEE_SEARCH: RGBColor = RGBColor(200, 110, 0);
 
 /// The V-I points the adaptive knee search took, to draw them apart from the sweep's.
@@ -198,9 +198,9 @@ impl Chart<'_> {
     }
 }
 
-type DrawResult = Result<(), String>;
+pub(super) type DrawResult = Result<(), String>;
 
-fn s<E: std::fmt::Debug>(e: E) -> String {
+pub(super) fn s<E: std::fmt::Debug>(e: E) -> String {
     format!("{e:?}")
 }
 
@@ -208,16 +208,16 @@ fn s<E: std::fmt::Debug>(e: E) -> String {
 /// integer pixel arithmetic overflows on absurd coordinates.
 const SANE: f64 = 1e6;
 
-fn sane(v: f64) -> bool {
+pub(super) fn sane(v: f64) -> bool {
     v.is_finite() && v.abs() < SANE
 }
 
 /// True when a point lies inside the axis ranges (points outside are not drawn).
-fn inside(p: (f64, f64), xr: (f64, f64), yr: (f64, f64)) -> bool {
+pub(super) fn inside(p: (f64, f64), xr: (f64, f64), yr: (f64, f64)) -> bool {
     p.0 >= xr.0 && p.0 <= xr.1 && p.1 >= yr.0 && p.1 <= yr.1
 }
 
-fn range_of(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
+pub(super) fn range_of(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
     let mut lo = f64::INFINITY;
     let mut hi = f64::NEG_INFINITY;
     for v in values.filter(|v| sane(*v)) {
@@ -227,12 +227,12 @@ fn range_of(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
     (lo <= hi).then_some((lo, hi))
 }
 
-fn pad((lo, hi): (f64, f64), frac: f64) -> (f64, f64) {
+pub(super) fn pad((lo, hi): (f64, f64), frac: f64) -> (f64, f64) {
     let span = (hi - lo).abs().max(hi.abs().max(lo.abs()) * 1e-3).max(1e-9);
     (lo - span * frac, hi + span * frac)
 }
 
-fn legend<'a, DB: DrawingBackend + 'a, CT: plotters::coord::CoordTranslate>(
+pub(super) fn legend<'a, DB: DrawingBackend + 'a, CT: plotters::coord::CoordTranslate>(
     chart: &mut ChartContext<'a, DB, CT>,
     position: SeriesLabelPosition,
 ) -> DrawResult {

@@ -1,7 +1,7 @@
 //! The summary of a record (metrics, verdicts, drift flags) and the derived files written from
 //! it: `summary.json`, `plots/` and `report.html`. Building the summary is pure; only
 //! [`load_record`] and [`write_report`] touch files.
-use super::{html, plots};
+use super::{html, plots, plots_line};
 use crate::analysis::{self, AnalysisOptions, Metrics};
 use crate::compare::{
     self, Comparison, DesignExpectation, DriftFlag, HistoryEntry, KeyValues, Verdict,
@@ -386,6 +386,21 @@ pub fn write_derived_files(
         }
         svgs.push((c.name(), c.caption(), svg));
     }
+    let line = analysis::line_points(&rec.rows);
+    let soak = analysis::soak_series(&rec.rows);
+    let limits = judged_limits(&summary, opts);
+    for c in line_charts_for(&line, &soak, &summary.metrics, exp, &limits) {
+        let svg = c.to_svg(plots::SIZE)?;
+        let p = plots_dir.join(format!("{}.svg", c.name()));
+        write_file(&p, svg.as_bytes())?;
+        files.push(p);
+        if opts.png {
+            let p = plots_dir.join(format!("{}.png", c.name()));
+            c.to_png(&p, plots::SIZE)?;
+            files.push(p);
+        }
+        svgs.push((c.name(), c.caption(), svg));
+    }
     let mut page = Vec::new();
     html::write_html(&mut page, &rec.info, &summary, &svgs).map_err(|source| {
         ReportError::Write {
@@ -437,6 +452,57 @@ pub fn charts_for<'a>(
             band: exp
                 .and_then(|e| e.short_circuit_current)
                 .map(|b| (b.worst_case.min, b.worst_case.max)),
+        });
+    }
+    v
+}
+
+/// The limits a summary judged line regulation and the soak against (its checks), else the
+/// plan's limits given in the options: what the line and soak plots draw.
+pub fn judged_limits(summary: &Summary, opts: &ReportOptions) -> compare::MetricLimits {
+    let mut l = compare::MetricLimits::default();
+    for c in summary.comparison.iter().flat_map(|c| &c.checks) {
+        let max = Some(c.worst_case.max);
+        match c.metric.as_str() {
+            "line_regulation" => l.line_regulation_percent = max,
+            "soak_drift" => l.soak_drift_percent = max,
+            "soak_temperature_rise" => l.soak_rise_c = max,
+            _ => {}
+        }
+    }
+    let plan = opts.plan_limits.unwrap_or_default();
+    l.line_regulation_percent = l.line_regulation_percent.or(plan.line_regulation_percent);
+    l.soak_drift_percent = l.soak_drift_percent.or(plan.soak_drift_percent);
+    l.soak_rise_c = l.soak_rise_c.or(plan.soak_rise_c);
+    l
+}
+
+/// The line-regulation and soak plots a record gets: one for a line sweep with points, one
+/// for a soak with readings; none for a record without such steps.
+pub fn line_charts_for<'a>(
+    line: &'a [(f64, f64)],
+    soak: &'a [analysis::SoakPoint],
+    metrics: &Metrics,
+    exp: Option<&DesignExpectation>,
+    limits: &compare::MetricLimits,
+) -> Vec<plots_line::LineChart<'a>> {
+    let mut v = Vec::new();
+    if !line.is_empty() {
+        v.push(plots_line::LineChart::LineRegulation {
+            points: line,
+            reference_voltage: metrics.line_regulation.map(|l| l.reference_voltage),
+            band: exp.map(|e| e.vout.worst_case),
+            max_change_percent: limits.line_regulation_percent,
+        });
+    }
+    if soak
+        .iter()
+        .any(|p| p.voltage.is_some() || p.temperature.is_some())
+    {
+        v.push(plots_line::LineChart::Soak {
+            series: soak,
+            max_drift_percent: limits.soak_drift_percent,
+            max_rise_c: limits.soak_rise_c,
         });
     }
     v

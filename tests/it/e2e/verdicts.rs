@@ -302,8 +302,11 @@ fn a_plan_the_design_forbids_is_refused_before_any_port_opens() {
 #[test]
 fn a_unit_that_does_not_look_like_the_design_stops_at_the_pre_flight() {
     // The 20 V teaching-lab design given for a simulated 12 V unit: the unloaded output
-    // (about 12.0 V against 19.7-21.1 V) stops the run before any load is applied; no record
-    // is started and the bench is left safe. --no-preflight goes ahead, and the run fails.
+    // (about 12.0 V against 19.7-21.1 V) stops the run before any load is applied and the
+    // bench is left safe. The stop is kept as a record: run.json `aborted` with the reason,
+    // the pre-flight reading in readings.csv, summary.json and report.html saying why; the
+    // outcome is INCOMPLETE (exit 3, README "pre-flight"): the plan's metrics were never
+    // measured. --no-preflight goes ahead, and the run fails.
     let _g = serial();
     let mut rig = Rig::start(
         "fixed-12v-3a-foldback.toml",
@@ -321,13 +324,65 @@ fn a_unit_that_does_not_look_like_the_design_stops_at_the_pre_flight() {
     );
     assert!(stderr.contains("reads 12."), "{}", show(&out));
     assert!(stderr.contains("--no-preflight"), "{}", show(&out));
-    assert!(
-        !rig.records.join("E2E-0208").exists(),
-        "a record was started"
-    );
     let (_, _, c) = rig.sim.state();
     assert!(!c.load.input_on, "load input on");
     assert!(!c.source.output_on, "source output left on");
+
+    // The record of the stop, named on the console.
+    let dir = rig.run_dir("E2E-0208");
+    assert!(
+        stderr.contains(&format!("the record {}", dir.display())),
+        "{}",
+        show(&out)
+    );
+    let rec = regulus::record::read_run(&dir).unwrap();
+    assert_eq!(rec.info.outcome, regulus::record::Outcome::Aborted);
+    assert!(
+        matches!(rec.state, regulus::record::RecordState::Finished(_)),
+        "{:?}",
+        rec.state
+    );
+    let reason = rec.info.reason.clone().unwrap_or_default();
+    assert!(reason.contains("does not look like the design"), "{reason}");
+    // One row: the unloaded reading, load off, about 12 V (the simulated unit's design).
+    assert_eq!(rec.rows.len(), 1, "{:?}", rec.rows);
+    let row = &rec.rows[0];
+    assert_eq!(row.step_kind, regulus::record::StepKind::Preflight);
+    // The record starts when the reading began (RFC 3339 with milliseconds and Z: the
+    // strings order as the times do).
+    assert!(rec.info.started_utc <= row.utc, "{:?} {row:?}", rec.info);
+    assert!(row.load_mode.is_off());
+    let v = row
+        .value(regulus::measure::Quantity::OutputVoltage)
+        .unwrap();
+    assert!((v - 12.0).abs() < 0.6, "{v}");
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(s["verdict"], "incomplete", "{s}");
+    assert_eq!(s["outcome"], "aborted", "{s}");
+    assert!(
+        s["reasons"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|r| r.as_str().unwrap().contains("pre-flight")),
+        "{s}"
+    );
+    // The reading did not become a measured no-load output (nothing was judged on it).
+    assert!(s["metrics"]["no_load"].is_null(), "{s}");
+    let html = std::fs::read_to_string(dir.join("report.html")).unwrap();
+    assert!(
+        html.contains("does not look like the design"),
+        "report.html"
+    );
+    // `regulus report` reads the record back with the same outcome.
+    let again = std::process::Command::new(env!("CARGO_BIN_EXE_regulus"))
+        .arg("report")
+        .arg(&dir)
+        .output()
+        .unwrap();
+    assert_eq!(again.status.code(), Some(3), "{}", show(&again));
+    assert!(String::from_utf8_lossy(&again.stdout).contains("verdict: INCOMPLETE"));
 
     let out = rig
         .command("E2E-0208", &plan)
@@ -336,6 +391,36 @@ fn a_unit_that_does_not_look_like_the_design_stops_at_the_pre_flight() {
         .unwrap();
     assert_eq!(out.status.code(), Some(1), "{}", show(&out));
     assert!(String::from_utf8_lossy(&out.stdout).contains("output_voltage"));
+}
+
+#[test]
+fn a_pre_flight_stop_whose_record_cannot_be_created_says_so() {
+    // The same stop with --records naming a plain file: the record of the stop cannot be
+    // created, which the console says next to the stop itself; like a run whose record
+    // cannot be created, that is a problem with --records (exit 2), and the bench is safe.
+    let _g = serial();
+    let mut rig = Rig::start(
+        "fixed-12v-3a-foldback.toml",
+        SimOptions::default().seed(209),
+    );
+    rig.design_path = crate::support::e2e::sample(LAB);
+    std::fs::write(&rig.records, "not a folder\n").unwrap();
+    let out = rig.run("E2E-0209", QUICK);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr.contains("does not look like the design"),
+        "{}",
+        show(&out)
+    );
+    assert!(
+        stderr.contains("the record of this stop could not be written"),
+        "{}",
+        show(&out)
+    );
+    assert!(stderr.contains("--records"), "{}", show(&out));
+    assert_eq!(out.status.code(), Some(2), "{}", show(&out));
+    let (_, _, c) = rig.sim.state();
+    assert!(!c.load.input_on && !c.source.output_on, "bench not safe");
 }
 
 /// A characterisation plan for the diagnosis: regulation, the knee and a short.

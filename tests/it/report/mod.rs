@@ -4,6 +4,7 @@ mod cli;
 mod drift;
 mod html;
 mod outputs;
+mod plots_line;
 mod robust;
 mod sim;
 mod verdicts;

@@ -107,6 +107,18 @@ proptest! {
                 svgs.push((c.name(), c.caption(), svg));
             }
         }
+        let line = regulus::analysis::line_points(&rows);
+        let soak = regulus::analysis::soak_series(&rows);
+        let limits = regulus::compare::MetricLimits {
+            line_regulation_percent: Some(0.5),
+            soak_drift_percent: Some(0.5),
+            soak_rise_c: Some(25.0),
+        };
+        for c in report::line_charts_for(&line, &soak, &s.metrics, Some(exp), &limits) {
+            if let Ok(svg) = c.to_svg((400, 300)) {
+                svgs.push((c.name(), c.caption(), svg));
+            }
+        }
         let mut page = Vec::new();
         report::html::write_html(&mut page, &info, &s, &svgs).unwrap();
         let mut json = Vec::new();
