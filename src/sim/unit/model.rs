@@ -42,11 +42,6 @@ pub struct UnitModel {
     pub pass_tau_s: f64,
     /// Heatsink used when the design has not chosen one yet, degC/W.
     pub default_theta_sa: f64,
-    /// Clamp junctions: thermal resistance to ambient (small-signal parts in free air, about
-    /// 250 degC/W, from memory), time constant, and the drive current they divert when clamping.
-    pub clamp_theta: f64,
-    pub clamp_tau_s: f64,
-    pub clamp_drive_a: f64,
     /// Current the unit draws from its input besides the load (amplifier, reference), amperes.
     pub quiescent_a: f64,
     /// Input rejection: volts of output change per volt of input change (1e-4 is 80 dB, usual
@@ -65,12 +60,38 @@ pub struct UnitModel {
 #[serde(rename_all = "snake_case")]
 pub enum HeatModel {
     /// One lumped first-order stage (theta_jc + theta_cs + theta_sa, `pass_tau_s`).
-    #[default]
     Lumped,
     /// The design's three-stage network (junction, case, heatsink) when the design states its
     /// thermal masses (`[pass.thermal_mass]`), as the design model computes a short's dwell;
-    /// lumped otherwise.
+    /// lumped otherwise, with the reason in [`HeatInUse::note`].
+    #[default]
     Network,
+}
+
+impl HeatModel {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            HeatModel::Lumped => "simple",
+            HeatModel::Network => "network",
+        }
+    }
+
+    /// Parse the `regulus sim --heat` value: `simple` (one lumped stage) or `network`.
+    pub fn parse(s: &str) -> Option<HeatModel> {
+        match s.trim() {
+            "simple" => Some(HeatModel::Lumped),
+            "network" => Some(HeatModel::Network),
+            _ => None,
+        }
+    }
+}
+
+/// The heat model a unit actually runs: the one asked for, or the simple one with why.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct HeatInUse {
+    pub model: HeatModel,
+    /// Why the network was asked for and not used (the design lacks its thermal data).
+    pub note: Option<String>,
 }
 
 /// How wide the simulated clamp's knee is.
@@ -78,10 +99,10 @@ pub enum HeatModel {
 #[serde(rename_all = "snake_case")]
 pub enum KneeModel {
     /// One junction's N kT/q whatever the clamp.
-    #[default]
     OneJunction,
     /// N kT/q per junction that sets the threshold ([`knee_width_v`]): a string of n diodes is
     /// n times as wide.
+    #[default]
     PerJunction,
 }
 
@@ -94,14 +115,11 @@ impl Default for UnitModel {
             vce_sat: None,
             pass_tau_s: 8.0,
             default_theta_sa: 2.0,
-            clamp_theta: 250.0,
-            clamp_tau_s: 3.0,
-            clamp_drive_a: 0.010,
             quiescent_a: 0.008,
             line_rejection: 1e-4,
             ambient_c: None,
-            heat: HeatModel::Lumped,
-            knee: KneeModel::OneJunction,
+            heat: HeatModel::Network,
+            knee: KneeModel::PerJunction,
         }
     }
 }
@@ -313,6 +331,12 @@ pub struct Truth {
     /// Thermal path of the pass device: junction to ambient, degC/W, and time constant.
     pub pass_theta: f64,
     pub pass_tau_s: f64,
+    /// The heat model the unit runs (and why not the network when it was asked for).
+    pub heat: HeatInUse,
+    /// How wide the clamp's knee is.
+    pub knee_model: KneeModel,
+    /// Where the clamp's junctions sit thermally (the design's `clamp_mount`).
+    pub clamp_mount: crate::design::ClampMount,
     /// The as-built element values.
     pub params: Params,
     /// Faults built in.
