@@ -205,7 +205,9 @@ impl SimUnit {
             };
         }
         let missing = match &self.design.pass.thermal_mass {
-            None => "the design has no [pass.thermal_mass] table".to_string(),
+            None => "the design has no [pass.thermal_mass] table (heat capacities or time \
+                     constants of junction, case and heatsink)"
+                .to_string(),
             Some(m) => {
                 let stages = [
                     ("junction", m.junction_j_per_c.or(m.junction_tau_s)),
@@ -494,7 +496,11 @@ impl SimUnit {
             pass_theta: self.pass_theta(),
             pass_tau_s: self.model.pass_tau_s,
             heat: self.heat_in_use(),
+            pass_stage_tau_s: self
+                .network()
+                .map(|(c, r)| std::array::from_fn(|i| c[i] * r[i])),
             knee_model: self.model.knee,
+            knee_width_v: self.knee_scale(&cold) * cold.r_sense,
             clamp_mount: self.design.limit.clamp_mount,
             params: cold,
             faults: self.faults.iter().map(UnitFault::describe).collect(),

@@ -333,8 +333,13 @@ pub struct Truth {
     pub pass_tau_s: f64,
     /// The heat model the unit runs (and why not the network when it was asked for).
     pub heat: HeatInUse,
-    /// How wide the clamp's knee is.
+    /// With the network: the time constants theta x C of its junction, case and heatsink
+    /// stages, seconds.
+    pub pass_stage_tau_s: Option<[f64; 3]>,
+    /// How wide the clamp's knee is, and its width across the sense resistor at ambient, volts
+    /// (the e-folding of the clamp's exponential, n N kT/q).
     pub knee_model: KneeModel,
+    pub knee_width_v: f64,
     /// Where the clamp's junctions sit thermally (the design's `clamp_mount`).
     pub clamp_mount: crate::design::ClampMount,
     /// The as-built element values.
