@@ -273,9 +273,12 @@ impl SimUnit {
     pub(super) fn knee_scale(&self, p: &Params) -> f64 {
         let width = match self.model.knee {
             KneeModel::OneJunction => self.model.emission * thermal_voltage(p.clamp_junction_c),
-            KneeModel::PerJunction => {
-                knee_width_v(&self.design, self.model.emission, p.clamp_junction_c)
-            }
+            KneeModel::PerJunction => knee_width_v(
+                self.design.limit.clamp,
+                p.diodes,
+                self.model.emission,
+                p.clamp_junction_c,
+            ),
         };
         width / p.r_sense
     }

@@ -2,7 +2,7 @@
 //! does not give, built-in faults, the bench's settings on the unit, operating points and the
 //! true values tests check against. Pure data and formulas.
 
-use crate::design::{Design, Params};
+use crate::design::{Clamp, Design, Params};
 use crate::measure::LoadMode;
 use serde::Serialize;
 
@@ -279,11 +279,12 @@ pub fn transformer_sag_per_a(d: &Design, line: f64) -> f64 {
 }
 
 /// Width of the clamp's soft knee in volts across the sense resistor: N kT/q per junction
-/// whose drop sets the threshold (a string of n diodes: n N kT/q, Shockley's law for junctions
-/// in series; a limiter transistor: N kT/q).
-pub fn knee_width_v(d: &Design, emission: f64, clamp_temp_c: f64) -> f64 {
-    let junctions = match d.limit.clamp {
-        crate::design::Clamp::DiodeString => d.limit.diodes.unwrap_or(1).max(1) as f64,
+/// whose drop sets the threshold (a string of `diodes` diodes: n N kT/q, Shockley's law for
+/// junctions in series; a limiter transistor: N kT/q). `diodes` is the string as built (a unit
+/// with a diode too many has a wider knee than its design).
+pub fn knee_width_v(clamp: Clamp, diodes: u32, emission: f64, clamp_temp_c: f64) -> f64 {
+    let junctions = match clamp {
+        Clamp::DiodeString => diodes.max(1) as f64,
         _ => 1.0,
     };
     emission * junctions * thermal_voltage(clamp_temp_c)
