@@ -21,7 +21,8 @@
 //! limit current, rises by m x 2 mV/degC / R_s per degree (about 10 % here). The clamp diodes
 //! sit at ambient, as the design states (`clamp_mount` default). The cold `Truth` is therefore
 //! not the value to compare with. What is comparable is the same unit's characteristic at the
-//! junction temperatures it had when the probe next to the knee was read, at the search's own
+//! junction temperatures it had when the search's last probe (one of the two bracketing the
+//! knee) was read, at the search's own
 //! threshold voltage: the simulator keeps its thermal state at every moment an instrument
 //! looked (`SimBench::thermal_history`), the test rebuilds the unit from the same seed
 //! (`SimUnit::build`, checked equal through `truth()`), sets the state from the moment that
@@ -133,21 +134,20 @@ fn search(design_name: &str, seed: u64, fault: Option<&str>) -> Found {
         .expect("the knee step reports a result");
     let rec = read_run(&report.dir).unwrap();
     assert!(rec.rows.iter().all(|r| r.step_kind == StepKind::KneeSearch));
-    // The probe next to the knee: the row whose measured current is nearest the located one
-    // (the search probes with a CR load, so the set point is in ohms); the junctions as they
-    // were when that row's reading was answered (the last state the simulator had before the
-    // row's time stamp).
-    let found = knee.limit_current_a.expect("a located knee has a current");
-    let amps = |r: &regulus::record::Row| r.value(regulus::measure::Quantity::OutputCurrent);
-    let row = rec
-        .rows
-        .iter()
-        .filter(|r| amps(r).is_some())
-        .min_by(|a, b| {
-            let d = |r: &regulus::record::Row| (amps(r).unwrap() - found).abs();
-            d(a).total_cmp(&d(b))
-        })
-        .expect("the search recorded probes");
+    // The probe next to the knee: the search's last probe, which is one of the two that
+    // bracket the threshold (the last regulating and the last non-regulating probe,
+    // `KneeResult::bracket_a`; the bracket is narrower than the search's resolution); the
+    // junctions as they were when that row's reading was answered (the last state the
+    // simulator had before the row's time stamp).
+    let row = rec.rows.last().expect("the search recorded probes");
+    let last_i = row
+        .value(regulus::measure::Quantity::OutputCurrent)
+        .expect("the probe read the output current");
+    let (lo, hi) = knee.bracket_a.expect("a located knee has its bracket");
+    assert!(
+        last_i == lo || last_i == hi,
+        "the last probe ({last_i} A) brackets the knee ({lo}, {hi})"
+    );
     let at = chrono::DateTime::parse_from_rfc3339(&row.utc)
         .unwrap()
         .with_timezone(&chrono::Utc);
