@@ -59,7 +59,9 @@ pub struct UnitModel {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
 #[serde(rename_all = "snake_case")]
 pub enum HeatModel {
-    /// One lumped first-order stage (theta_jc + theta_cs + theta_sa, `pass_tau_s`).
+    /// One lumped first-order stage (theta_jc + theta_cs + theta_sa, `pass_tau_s`); `simple`
+    /// on the command line and in the true values.
+    #[serde(rename = "simple")]
     Lumped,
     /// The design's three-stage network (junction, case, heatsink) when the design states its
     /// thermal masses (`[pass.thermal_mass]`), as the design model computes a short's dwell;

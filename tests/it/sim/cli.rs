@@ -61,6 +61,11 @@ fn sim_prints_ports_truth_and_writes_the_bench_file() {
             .unwrap();
     // The fault is in the element values: the fitted sense resistor.
     assert_eq!(truth["params"]["r_sense"].as_f64(), Some(0.39));
+    assert_eq!(truth["heat"]["model"].as_str(), Some("simple"), "{truth}");
+    assert!(truth["heat"]["note"]
+        .as_str()
+        .unwrap()
+        .contains("[pass.thermal_mass]"));
     assert!(truth["short_circuit_current"].as_f64().unwrap() > 0.0);
     assert_eq!(written.matches("[[instrument]]").count(), 4);
     assert!(!written.contains("input_source"));
