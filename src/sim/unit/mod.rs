@@ -1,6 +1,7 @@
 //! Physics of one simulated as-built unit: the regulated output with a small output resistance,
 //! dropout at low input, a soft current-limit knee from the junction law, foldback where designed,
-//! and first-order self-heating of the pass device and the clamp junctions. It also answers how
+//! and self-heating of the pass device (the design's thermal network, or one lumped stage), with
+//! the clamp junctions where the design puts them. It also answers how
 //! the unit meets an electronic load in CC, CV or CR mode. Pure: element values and settings in,
 //! operating points out; time is an explicit argument (the serving code feeds wall-clock time).
 //! No I/O and no clock reads live here.

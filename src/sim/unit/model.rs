@@ -227,8 +227,10 @@ pub struct Controls {
     pub source: SourceSetting,
 }
 
-/// Junction temperatures of the unit (degC), and the pass device's case and heatsink when
-/// the design gives its thermal masses (then the three-stage network heats them in turn).
+/// Junction temperatures of the unit (degC), and the pass device's case and heatsink (with
+/// the design's thermal masses the three-stage network heats them in turn; otherwise their
+/// shares of the lumped rise). The clamp junctions follow the design's `clamp_mount`: at
+/// ambient or at the heatsink's temperature.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Thermal {
     pub pass_junction_c: f64,
