@@ -744,3 +744,34 @@ fn the_knee_widens_with_the_junctions_that_set_it() {
     let one = one_junction_unit(&d);
     assert!((one.truth().knee_width_v - thermal_voltage(one.params().ambient_c)).abs() < 1e-12);
 }
+
+#[test]
+fn clamp_diodes_sit_where_the_design_mounts_them() {
+    // The design model keeps the clamp's junctions at ambient, or at the heatsink's
+    // temperature with `clamp_mount = "heatsink"` (design::heating); the unit does the same.
+    // On the heatsink the string's threshold follows the junction law at the sink's
+    // temperature: V_sense = n (V_F + tc (T_sink - 25)) - m (V_BE + tc (T_j - 25)).
+    let d = lab();
+    let mut u = unit(&d, &[]);
+    let short = load(LoadMode::ConstantVoltage, 0.0);
+    u.advance(&short, 60.0);
+    assert_eq!(u.thermal().clamp_junction_c, u.params().ambient_c);
+    let text = include_str!("../../../samples/teaching-lab-0-20v.toml")
+        .replace("diodes = 3\n", "diodes = 3\nclamp_mount = \"heatsink\"\n");
+    let d = Design::parse(&text, "lab-on-sink").unwrap();
+    let mut u = unit(&d, &[]);
+    let op = u.advance(&short, 60.0);
+    let th = u.thermal();
+    assert!(th.sink_c > u.params().ambient_c + 1.0, "{th:?}");
+    assert_eq!(th.clamp_junction_c, th.sink_c);
+    let p = u.params();
+    let tc = d.environment.junction_tempco_mv_per_c * 1e-3;
+    let vs = p.diodes as f64 * (p.diode_vf + tc * (th.sink_c - 25.0))
+        - 2.0 * (p.pass_vbe + tc * (th.pass_junction_c - 25.0));
+    assert!(
+        (op.iout - vs / p.r_sense).abs() < 1e-3 * op.iout,
+        "{} vs {}",
+        op.iout,
+        vs / p.r_sense
+    );
+}
