@@ -3,10 +3,10 @@
 //! file for those ports, and run until interrupted (or for a set time).
 
 use super::{CodedError, EXIT_OK, EXIT_USAGE};
-use crate::design::Design;
+use crate::design::{ClampMount, Design};
 use crate::quantity::eng;
 use crate::sim::instruments::InstrumentKind;
-use crate::sim::{Fault, Link, SimBench, SimOptions, TransportMix, Truth};
+use crate::sim::{Fault, HeatModel, KneeModel, Link, SimBench, SimOptions, TransportMix, Truth};
 use anyhow::Context;
 use std::io::Write;
 use std::path::PathBuf;
@@ -58,6 +58,12 @@ pub struct Args {
     /// Without psu the unit always runs from its own input.
     #[arg(long, value_name = "NAME")]
     pub without: Vec<String>,
+    /// How the pass device heats: network (the default: the design's three-stage network,
+    /// junction, case and heatsink, from its [pass.thermal_mass]; a design without thermal
+    /// masses falls back to simple, and the output says why) or simple (one lumped
+    /// first-order stage, junction to ambient).
+    #[arg(long, default_value = "network", value_name = "MODEL")]
+    pub heat: String,
     /// Stop after this many seconds instead of waiting for Ctrl-C.
     #[arg(long, value_name = "SECONDS")]
     pub run_for: Option<f64>,
@@ -90,8 +96,15 @@ pub fn options(args: &Args) -> Result<SimOptions, CodedError> {
             )));
         }
     }
+    let heat = crate::sim::HeatModel::parse(&args.heat).ok_or_else(|| {
+        usage(format!(
+            "--heat '{}': use network (the design's thermal network) or simple (one lumped stage)",
+            args.heat
+        ))
+    })?;
     let model = crate::sim::UnitModel {
         ambient_c: args.ambient,
+        heat,
         ..Default::default()
     };
     let mut opts = SimOptions::default()
@@ -153,15 +166,56 @@ pub fn write_truth<W: Write>(w: &mut W, t: &Truth) -> std::io::Result<()> {
         ("ambient", eng(t.ambient_c, "degC")),
         (
             "pass device thermal",
+            match t.heat.model {
+                HeatModel::Network => {
+                    let tau = t.pass_stage_tau_s.unwrap_or_default();
+                    // Without a heatsink (the theta_sa fault) its stage keeps no mass.
+                    let sink = if tau[2] < 1e-3 * tau[1] {
+                        "none fitted".to_string()
+                    } else {
+                        eng(tau[2], "s")
+                    };
+                    format!(
+                        "{} junction to ambient, network (time constants: junction {}, case {}, \
+                         heatsink {sink})",
+                        eng(t.pass_theta, "degC/W"),
+                        eng(tau[0], "s"),
+                        eng(tau[1], "s"),
+                    )
+                }
+                HeatModel::Lumped => format!(
+                    "{} junction to ambient, simple: one stage, time constant {}",
+                    eng(t.pass_theta, "degC/W"),
+                    eng(t.pass_tau_s, "s")
+                ),
+            },
+        ),
+        (
+            "clamp junctions",
+            match t.clamp_mount {
+                ClampMount::Ambient => "at ambient (the design's clamp_mount)".to_string(),
+                ClampMount::Heatsink => {
+                    "on the pass device's heatsink (the design's clamp_mount)".to_string()
+                }
+            },
+        ),
+        (
+            "knee width",
             format!(
-                "{} junction to ambient, time constant {}",
-                eng(t.pass_theta, "degC/W"),
-                eng(t.pass_tau_s, "s")
+                "{} across the sense resistor ({})",
+                eng(t.knee_width_v, "V"),
+                match t.knee_model {
+                    KneeModel::PerJunction => "N kT/q per junction that sets the threshold",
+                    KneeModel::OneJunction => "one junction's N kT/q",
+                }
             ),
         ),
     ];
     for (k, v) in rows {
         writeln!(w, "  {k:<24} {v}")?;
+    }
+    if let Some(note) = &t.heat.note {
+        writeln!(w, "  note                     {note}")?;
     }
     if t.faults.is_empty() {
         writeln!(w, "  faults                   none")?;

@@ -193,6 +193,12 @@ impl SimBench {
         (w.unit.operating_point(&c), w.unit.thermal(), c)
     }
 
+    /// The unit's thermal state at each moment an instrument looked at it (wall clock, oldest
+    /// first; the most recent [`super::serve::HISTORY_LEN`]).
+    pub fn thermal_history(&self) -> Vec<(chrono::DateTime<chrono::Utc>, Thermal)> {
+        lock(&self.world).history.iter().copied().collect()
+    }
+
     /// True once an instrument's port has closed for good (a closing fault fired).
     pub fn is_closed(&self, kind: InstrumentKind) -> bool {
         self.endpoints

@@ -18,4 +18,7 @@ pub use bench::{SimBench, PTY_PAIR_LOCK};
 pub use bench_file::bench_toml;
 pub use options::{Fault, PortFault, SimError, SimOptions, TransportMix};
 pub use ports::{Link, PortInfo, PortProtocol};
-pub use unit::{Controls, OperatingPoint, SimUnit, Thermal, Truth, UnitFault, UnitModel};
+pub use unit::{
+    Controls, HeatInUse, HeatModel, KneeModel, OperatingPoint, SimUnit, Thermal, Truth, UnitFault,
+    UnitModel,
+};

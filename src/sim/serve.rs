@@ -8,7 +8,8 @@ use super::instruments::{
     respond, stream_line, Fate, FaultSchedule, InstrumentKind, InstrumentState, Noise, Snapshot,
     GARBAGE,
 };
-use super::unit::{Controls, SimUnit};
+use super::unit::{Controls, SimUnit, Thermal};
+use std::collections::VecDeque;
 use std::io::{self, Read, Write};
 use std::net::{TcpListener, TcpStream};
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -30,12 +31,19 @@ pub(crate) fn lock<T>(m: &Mutex<T>) -> MutexGuard<'_, T> {
     m.lock().unwrap_or_else(|e| e.into_inner())
 }
 
+/// Most thermal states kept in [`World::history`] (at about 20 syncs per second from a
+/// streaming meter, well over an hour).
+pub const HISTORY_LEN: usize = 100_000;
+
 /// The simulated unit and the bench settings, advanced with the wall clock.
 #[derive(Debug)]
 pub struct World {
     pub unit: SimUnit,
     pub controls: Controls,
     last: Instant,
+    /// The unit's thermal state at every sync (wall-clock time), oldest first, at most
+    /// [`HISTORY_LEN`]: what the junctions were when a reading was answered.
+    pub history: VecDeque<(chrono::DateTime<chrono::Utc>, Thermal)>,
 }
 
 impl World {
@@ -44,6 +52,7 @@ impl World {
             unit,
             controls: Controls::default(),
             last: Instant::now(),
+            history: VecDeque::new(),
         }
     }
 
@@ -52,7 +61,13 @@ impl World {
         let now = Instant::now();
         let dt = now.duration_since(self.last).as_secs_f64();
         self.last = now;
-        Snapshot::from(self.unit.advance(&self.controls, dt))
+        let snap = Snapshot::from(self.unit.advance(&self.controls, dt));
+        if self.history.len() >= HISTORY_LEN {
+            self.history.pop_front();
+        }
+        self.history
+            .push_back((chrono::Utc::now(), self.unit.thermal()));
+        snap
     }
 }
 

@@ -5,7 +5,7 @@
 
 use super::model::*;
 use crate::design::model::{evaluate, limit_current_at, sense_voltage};
-use crate::design::{Clamp, Design, InputKind, Params, Stage};
+use crate::design::{Clamp, ClampMount, Design, InputKind, Params, Stage};
 use crate::measure::LoadMode;
 use crate::rng::Rng;
 
@@ -152,11 +152,7 @@ impl SimUnit {
     /// Junction-to-ambient thermal resistance of the pass device, degC/W.
     pub fn pass_theta(&self) -> f64 {
         let p = &self.design.pass;
-        let sa = if self
-            .faults
-            .iter()
-            .any(|f| matches!(f, UnitFault::ThetaSa(_)))
-        {
+        let sa = if self.heatsink_missing() {
             self.model.default_theta_sa
         } else {
             p.theta_sa.unwrap_or(self.model.default_theta_sa)
@@ -164,13 +160,79 @@ impl SimUnit {
         p.theta_jc + p.theta_cs + sa
     }
 
-    /// The three-stage thermal network when the design gives thermal masses.
+    /// Sink-to-ambient thermal resistance of this unit's heatsink, degC/W.
+    pub(super) fn theta_sa(&self) -> f64 {
+        let p = &self.design.pass;
+        self.pass_theta() - p.theta_jc - p.theta_cs
+    }
+
+    /// The three-stage thermal network when the network is asked for and the design gives
+    /// thermal masses.
     pub(super) fn network(&self) -> Option<([f64; 3], [f64; 3])> {
         if self.model.heat == HeatModel::Lumped {
             return None;
         }
-        let p = &self.design.pass;
-        pass_network(&self.design, self.pass_theta() - p.theta_jc - p.theta_cs)
+        let mut net = pass_network(&self.design, self.theta_sa())?;
+        if self.heatsink_missing() {
+            // No heatsink fitted: its heat capacity is not there either. The case reaches
+            // ambient through the fault's theta directly, so the sink node keeps only a
+            // vanishing capacity (a millionth of the case's: it follows the case at once).
+            net.0[2] = net.0[1] * 1e-6;
+        }
+        Some(net)
+    }
+
+    /// The unit was built without its heatsink (the `theta_sa` fault).
+    pub(super) fn heatsink_missing(&self) -> bool {
+        self.faults
+            .iter()
+            .any(|f| matches!(f, UnitFault::ThetaSa(_)))
+    }
+
+    /// The heat model this unit runs, and why it is the simple one when the network was asked
+    /// for (the design does not state the thermal masses the network needs).
+    pub fn heat_in_use(&self) -> HeatInUse {
+        if self.model.heat == HeatModel::Lumped {
+            return HeatInUse {
+                model: HeatModel::Lumped,
+                note: None,
+            };
+        }
+        if self.network().is_some() {
+            return HeatInUse {
+                model: HeatModel::Network,
+                note: None,
+            };
+        }
+        let missing = match &self.design.pass.thermal_mass {
+            None => "the design has no [pass.thermal_mass] table (heat capacities or time \
+                     constants of junction, case and heatsink)"
+                .to_string(),
+            Some(m) => {
+                let stages = [
+                    ("junction", m.junction_j_per_c.or(m.junction_tau_s)),
+                    ("case", m.case_j_per_c.or(m.case_tau_s)),
+                    ("sink", m.sink_j_per_c.or(m.sink_tau_s)),
+                ];
+                let names: Vec<&str> = stages
+                    .iter()
+                    .filter(|(_, v)| v.is_none())
+                    .map(|(n, _)| *n)
+                    .collect();
+                format!(
+                    "[pass.thermal_mass] gives no heat capacity or time constant for the {}",
+                    names.join(", ")
+                )
+            }
+        };
+        HeatInUse {
+            model: HeatModel::Lumped,
+            note: Some(format!(
+                "thermal network not used: {missing}; the pass device heats as one lumped \
+                 stage (time constant {} s)",
+                self.model.pass_tau_s
+            )),
+        }
     }
 
     pub(super) fn vce_sat(&self) -> f64 {
@@ -211,9 +273,12 @@ impl SimUnit {
     pub(super) fn knee_scale(&self, p: &Params) -> f64 {
         let width = match self.model.knee {
             KneeModel::OneJunction => self.model.emission * thermal_voltage(p.clamp_junction_c),
-            KneeModel::PerJunction => {
-                knee_width_v(&self.design, self.model.emission, p.clamp_junction_c)
-            }
+            KneeModel::PerJunction => knee_width_v(
+                self.design.limit.clamp,
+                p.diodes,
+                self.model.emission,
+                p.clamp_junction_c,
+            ),
         };
         width / p.r_sense
     }
@@ -334,21 +399,46 @@ impl SimUnit {
         }
     }
 
-    /// Pass device case temperature: the junction's rise scaled by the case-to-ambient share of
-    /// the thermal path (junction and heatsink lumped into one time constant).
+    /// Pass device case temperature: from the network when it runs; otherwise the junction's
+    /// rise scaled by the case-to-ambient share of the thermal path (junction and heatsink
+    /// lumped into one time constant).
     pub fn case_temperature(&self) -> f64 {
         if self.network().is_some() {
             return self.thermal.case_c;
         }
-        let p = &self.design.pass;
+        self.lumped_share(self.pass_theta() - self.design.pass.theta_jc)
+    }
+
+    /// Heatsink temperature: from the network when it runs; otherwise the junction's rise
+    /// scaled by the sink-to-ambient share of the thermal path.
+    pub fn sink_temperature(&self) -> f64 {
+        if self.network().is_some() {
+            return self.thermal.sink_c;
+        }
+        self.lumped_share(self.theta_sa())
+    }
+
+    /// Ambient plus the share `theta_part / theta` of the pass junction's rise (thermal Ohm's
+    /// law on a series path: each resistance takes its share of the rise).
+    fn lumped_share(&self, theta_part: f64) -> f64 {
         let theta = self.pass_theta();
         let share = if theta > 0.0 {
-            (theta - p.theta_jc) / theta
+            (theta_part / theta).clamp(0.0, 1.0)
         } else {
             0.0
         };
         let ta = self.params.ambient_c;
         ta + (self.thermal.pass_junction_c - ta) * share
+    }
+
+    /// The clamp junctions' temperature under the design's stated assumption
+    /// (`limit.clamp_mount`): at ambient in free air, or at the heatsink's temperature. The
+    /// design model (`design::heating`, `design::dwell`) keeps them there; so does the unit.
+    pub fn clamp_temperature(&self) -> f64 {
+        match self.design.limit.clamp_mount {
+            ClampMount::Ambient => self.params.ambient_c,
+            ClampMount::Heatsink => self.sink_temperature(),
+        }
     }
 
     /// Let `dt` seconds pass with the load and source held as set: the junctions move towards
@@ -383,19 +473,12 @@ impl SimUnit {
                 dt,
             );
         }
-        let p = self.hot_params();
-        let clamp_v = match self.design.limit.clamp {
-            Clamp::DiodeString => p.diodes as f64 * p.diode_vf,
-            Clamp::Transistor | Clamp::Foldback => p.limiter_vbe,
-        };
-        let clamp_w = clamp_v * self.model.clamp_drive_a * op.clamp_share;
-        let target = ta + clamp_w * self.model.clamp_theta;
-        self.thermal.clamp_junction_c = first_order_step(
-            self.thermal.clamp_junction_c,
-            target,
-            self.model.clamp_tau_s,
-            dt,
-        );
+        if self.network().is_none() {
+            // Keep the lumped case and sink estimates in the state too.
+            self.thermal.case_c = self.case_temperature();
+            self.thermal.sink_c = self.sink_temperature();
+        }
+        self.thermal.clamp_junction_c = self.clamp_temperature();
     }
 
     /// The true values of this unit (junctions at ambient, design input).
@@ -415,6 +498,13 @@ impl SimUnit {
             ambient_c: cold.ambient_c,
             pass_theta: self.pass_theta(),
             pass_tau_s: self.model.pass_tau_s,
+            heat: self.heat_in_use(),
+            pass_stage_tau_s: self
+                .network()
+                .map(|(c, r)| std::array::from_fn(|i| c[i] * r[i])),
+            knee_model: self.model.knee,
+            knee_width_v: self.knee_scale(&cold) * cold.r_sense,
+            clamp_mount: self.design.limit.clamp_mount,
             params: cold,
             faults: self.faults.iter().map(UnitFault::describe).collect(),
         }

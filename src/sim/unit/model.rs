@@ -2,7 +2,7 @@
 //! does not give, built-in faults, the bench's settings on the unit, operating points and the
 //! true values tests check against. Pure data and formulas.
 
-use crate::design::{Design, Params};
+use crate::design::{Clamp, Design, Params};
 use crate::measure::LoadMode;
 use serde::Serialize;
 
@@ -42,11 +42,6 @@ pub struct UnitModel {
     pub pass_tau_s: f64,
     /// Heatsink used when the design has not chosen one yet, degC/W.
     pub default_theta_sa: f64,
-    /// Clamp junctions: thermal resistance to ambient (small-signal parts in free air, about
-    /// 250 degC/W, from memory), time constant, and the drive current they divert when clamping.
-    pub clamp_theta: f64,
-    pub clamp_tau_s: f64,
-    pub clamp_drive_a: f64,
     /// Current the unit draws from its input besides the load (amplifier, reference), amperes.
     pub quiescent_a: f64,
     /// Input rejection: volts of output change per volt of input change (1e-4 is 80 dB, usual
@@ -64,13 +59,41 @@ pub struct UnitModel {
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Default)]
 #[serde(rename_all = "snake_case")]
 pub enum HeatModel {
-    /// One lumped first-order stage (theta_jc + theta_cs + theta_sa, `pass_tau_s`).
-    #[default]
+    /// One lumped first-order stage (theta_jc + theta_cs + theta_sa, `pass_tau_s`); `simple`
+    /// on the command line and in the true values.
+    #[serde(rename = "simple")]
     Lumped,
     /// The design's three-stage network (junction, case, heatsink) when the design states its
     /// thermal masses (`[pass.thermal_mass]`), as the design model computes a short's dwell;
-    /// lumped otherwise.
+    /// lumped otherwise, with the reason in [`HeatInUse::note`].
+    #[default]
     Network,
+}
+
+impl HeatModel {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            HeatModel::Lumped => "simple",
+            HeatModel::Network => "network",
+        }
+    }
+
+    /// Parse the `regulus sim --heat` value: `simple` (one lumped stage) or `network`.
+    pub fn parse(s: &str) -> Option<HeatModel> {
+        match s.trim() {
+            "simple" => Some(HeatModel::Lumped),
+            "network" => Some(HeatModel::Network),
+            _ => None,
+        }
+    }
+}
+
+/// The heat model a unit actually runs: the one asked for, or the simple one with why.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct HeatInUse {
+    pub model: HeatModel,
+    /// Why the network was asked for and not used (the design lacks its thermal data).
+    pub note: Option<String>,
 }
 
 /// How wide the simulated clamp's knee is.
@@ -78,10 +101,10 @@ pub enum HeatModel {
 #[serde(rename_all = "snake_case")]
 pub enum KneeModel {
     /// One junction's N kT/q whatever the clamp.
-    #[default]
     OneJunction,
     /// N kT/q per junction that sets the threshold ([`knee_width_v`]): a string of n diodes is
     /// n times as wide.
+    #[default]
     PerJunction,
 }
 
@@ -94,14 +117,11 @@ impl Default for UnitModel {
             vce_sat: None,
             pass_tau_s: 8.0,
             default_theta_sa: 2.0,
-            clamp_theta: 250.0,
-            clamp_tau_s: 3.0,
-            clamp_drive_a: 0.010,
             quiescent_a: 0.008,
             line_rejection: 1e-4,
             ambient_c: None,
-            heat: HeatModel::Lumped,
-            knee: KneeModel::OneJunction,
+            heat: HeatModel::Network,
+            knee: KneeModel::PerJunction,
         }
     }
 }
@@ -207,8 +227,10 @@ pub struct Controls {
     pub source: SourceSetting,
 }
 
-/// Junction temperatures of the unit (degC), and the pass device's case and heatsink when
-/// the design gives its thermal masses (then the three-stage network heats them in turn).
+/// Junction temperatures of the unit (degC), and the pass device's case and heatsink (with
+/// the design's thermal masses the three-stage network heats them in turn; otherwise their
+/// shares of the lumped rise). The clamp junctions follow the design's `clamp_mount`: at
+/// ambient or at the heatsink's temperature.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Thermal {
     pub pass_junction_c: f64,
@@ -261,11 +283,12 @@ pub fn transformer_sag_per_a(d: &Design, line: f64) -> f64 {
 }
 
 /// Width of the clamp's soft knee in volts across the sense resistor: N kT/q per junction
-/// whose drop sets the threshold (a string of n diodes: n N kT/q, Shockley's law for junctions
-/// in series; a limiter transistor: N kT/q).
-pub fn knee_width_v(d: &Design, emission: f64, clamp_temp_c: f64) -> f64 {
-    let junctions = match d.limit.clamp {
-        crate::design::Clamp::DiodeString => d.limit.diodes.unwrap_or(1).max(1) as f64,
+/// whose drop sets the threshold (a string of `diodes` diodes: n N kT/q, Shockley's law for
+/// junctions in series; a limiter transistor: N kT/q). `diodes` is the string as built (a unit
+/// with a diode too many has a wider knee than its design).
+pub fn knee_width_v(clamp: Clamp, diodes: u32, emission: f64, clamp_temp_c: f64) -> f64 {
+    let junctions = match clamp {
+        Clamp::DiodeString => diodes.max(1) as f64,
         _ => 1.0,
     };
     emission * junctions * thermal_voltage(clamp_temp_c)
@@ -313,6 +336,17 @@ pub struct Truth {
     /// Thermal path of the pass device: junction to ambient, degC/W, and time constant.
     pub pass_theta: f64,
     pub pass_tau_s: f64,
+    /// The heat model the unit runs (and why not the network when it was asked for).
+    pub heat: HeatInUse,
+    /// With the network: the time constants theta x C of its junction, case and heatsink
+    /// stages, seconds.
+    pub pass_stage_tau_s: Option<[f64; 3]>,
+    /// How wide the clamp's knee is, and its width across the sense resistor at ambient, volts
+    /// (the e-folding of the clamp's exponential, n N kT/q).
+    pub knee_model: KneeModel,
+    pub knee_width_v: f64,
+    /// Where the clamp's junctions sit thermally (the design's `clamp_mount`).
+    pub clamp_mount: crate::design::ClampMount,
     /// The as-built element values.
     pub params: Params,
     /// Faults built in.

@@ -25,6 +25,13 @@ fn per_junction_unit(d: &Design) -> SimUnit {
     };
     SimUnit::build(d, 7, &[], model).unwrap()
 }
+fn one_junction_unit(d: &Design) -> SimUnit {
+    let model = UnitModel {
+        knee: KneeModel::OneJunction,
+        ..UnitModel::default()
+    };
+    SimUnit::build(d, 11, &[], model).unwrap()
+}
 
 fn load(mode: LoadMode, value: f64) -> Controls {
     let mut c = Controls::default();
@@ -124,9 +131,11 @@ fn foldback_limit_line_and_short_circuit() {
 fn knee_is_soft_over_a_few_thermal_voltages() {
     // Upper branch: dV = dV_sat exp((I - I_L) R_s / (N kT/q)) (Shockley's law, module doc).
     // At the 2 % point: I = I_L + (N V_T / R_s) ln(0.02 V0 / dV_sat) - R_out I, so the knee sits
-    // ln(0.03/0.02) = 0.405 thermal voltages of sense drop below the sharp limit line.
+    // ln(0.03/0.02) = 0.405 thermal voltages of sense drop below the sharp limit line. This is
+    // the one-junction knee (`KneeModel::OneJunction`, chosen here; the default is per junction,
+    // checked in the next test).
     let d = lab();
-    let u = unit(&d, &[]);
+    let u = one_junction_unit(&d);
     let t = u.truth();
     let p = u.params();
     let vt = thermal_voltage(p.ambient_c);
@@ -176,9 +185,9 @@ fn a_diode_string_knee_is_as_wide_as_its_junctions() {
     assert!(span_mv > 120.0 && span_mv < 450.0, "{span_mv} mV");
     // A limiter transistor's knee is one junction wide.
     let f = fold();
-    let w1 = knee_width_v(&f, 1.0, 25.0);
+    let w1 = knee_width_v(f.limit.clamp, 3, 1.0, 25.0);
     assert!((w1 - thermal_voltage(25.0)).abs() < 1e-15);
-    assert!((knee_width_v(&d, 1.0, 25.0) - 3.0 * w1).abs() < 1e-15);
+    assert!((knee_width_v(d.limit.clamp, 3, 1.0, 25.0) - 3.0 * w1).abs() < 1e-15);
 }
 
 #[test]
@@ -188,7 +197,15 @@ fn cc_load_sinks_set_current_then_collapses_above_limit() {
     let t = u.truth();
     let op = u.operating_point(&load(LoadMode::ConstantCurrent, 0.8));
     assert!((op.iout - 0.8).abs() < 1e-12);
-    let expected = t.regulated_v - 0.8 * t.output_resistance;
+    // V = V_set - R_out I - dV_sat exp((I - I_L) R_s / (n N kT/q)) (module doc: the clamp's
+    // Shockley law against the amplifier's gain; the string of n = 3 diodes sets the knee's
+    // width, so half-way to the limit the output already sags a few millivolts).
+    let p = u.params();
+    let width = p.diodes as f64 * thermal_voltage(p.ambient_c);
+    let dv_sat = u.model().knee_sat_fraction * t.regulated_v;
+    let expected = t.regulated_v
+        - 0.8 * t.output_resistance
+        - dv_sat * ((0.8 - t.limit_line_current) * p.r_sense / width).exp();
     assert!(
         (op.vout - expected).abs() < 1e-5,
         "{} vs {expected} {t:?}",
@@ -490,7 +507,15 @@ fn the_case_lags_the_junction_and_the_heatsink_takes_minutes() {
     };
     let mut u = SimUnit::build(&d, 7, &[], model).unwrap();
     assert!(u.network().is_some());
-    assert!(unit(&d, &[]).network().is_none(), "lumped by default");
+    assert!(unit(&d, &[]).network().is_some(), "the network by default");
+    let simple = UnitModel {
+        heat: HeatModel::Lumped,
+        ..UnitModel::default()
+    };
+    assert!(SimUnit::build(&d, 7, &[], simple)
+        .unwrap()
+        .network()
+        .is_none());
     let op = u.operating_point(&load(LoadMode::ConstantCurrent, 1.0));
     let ta = u.params().ambient_c;
     let w = op.pass_w;
@@ -537,4 +562,216 @@ fn own_input_sags_to_the_rated_secondary_at_rated_load() {
     assert!((feed.mean(1.2) - (rated_peak - 0.5 * ripple)).abs() < 1e-9);
     // Without a stated regulation there is no sag.
     assert_eq!(transformer_sag_per_a(&lab(), 1.0), 0.0);
+}
+
+#[test]
+fn the_simulated_short_follows_the_designs_dwell_model() {
+    // The design model's dwell (design::dwell::short_dwell) steps the same three-stage network
+    // with the clamp's current following the heating (diode-string threshold n V_F - m V_BE,
+    // -2 mV/degC per junction, diodes at ambient), fed at the highest input (no load, its
+    // line) from the rated-load steady state. The unit is put in the same place: fed from a
+    // source at that input, its junction, case and heatsink at the dwell's starting
+    // temperatures, its output shorted (a CV load at 0 V). Its junction rise above ambient
+    // must follow the dwell's curve within 1 % wherever the dwell samples it.
+    let d = lab();
+    let mut u = unit(&d, &[]);
+    let p = u.params().clone();
+    let dwell = crate::design::dwell::short_dwell(&d, &p).expect("the sample states its masses");
+    let ta = p.ambient_c;
+    u.set_thermal(Thermal {
+        pass_junction_c: dwell.start_junction_c,
+        clamp_junction_c: ta,
+        case_c: dwell.start_case_c,
+        sink_c: dwell.start_sink_c,
+    });
+    let mut c = load(LoadMode::ConstantVoltage, 0.0);
+    c.source = SourceSetting {
+        in_use: true,
+        volts: crate::design::evaluate(&d, &p).vin_no_load,
+        output_on: true,
+    };
+    let mut now = 0.0;
+    let mut compared = 0;
+    for &(t, tj, tc) in dwell.curve.iter().filter(|s| s.0 > 0.0 && s.0 <= 1200.0) {
+        while now < t - 1e-12 {
+            let dt = (t - now).min(20.0);
+            let op = u.advance(&c, dt);
+            assert!(op.vout == 0.0 && op.iout > 1.0, "{op:?}");
+            now += dt;
+        }
+        let th = u.thermal();
+        let (sim_rise, model_rise) = (th.pass_junction_c - ta, tj - ta);
+        assert!(
+            (sim_rise - model_rise).abs() <= 0.01 * model_rise,
+            "at {t} s: unit {} degC, design {} degC",
+            th.pass_junction_c,
+            tj
+        );
+        let (sim_case, model_case) = (th.case_c - ta, tc - ta);
+        assert!(
+            (sim_case - model_case).abs() <= 0.01 * model_case,
+            "case at {t} s: unit {} degC, design {} degC",
+            th.case_c,
+            tc
+        );
+        compared += 1;
+    }
+    assert!(compared >= 10, "{compared} points compared");
+    // Over the 20 minutes the junction has heated well above its start (the short
+    // dissipates more than rated load).
+    assert!(u.thermal().pass_junction_c > dwell.start_junction_c + 20.0);
+}
+
+/// The teaching-lab sample with its thermal masses replaced (the `[pass.thermal_mass]` lines).
+fn lab_with_masses(junction: &str, case: &str, sink: &str) -> Design {
+    let text = include_str!("../../../samples/teaching-lab-0-20v.toml")
+        .replace("junction_tau_s = 0.5 ", &format!("{junction} "))
+        .replace("case_j_per_c = 10 ", &format!("{case} "))
+        .replace("sink_j_per_c = 900 ", &format!("{sink} "));
+    Design::parse(&text, "lab-masses").unwrap()
+}
+
+#[test]
+fn junction_and_case_stages_each_follow_a_first_order_step() {
+    // First-order thermal stage (textbook RC step response): at a held power P a stage of
+    // resistance theta and capacity C rises as P theta (1 - e^(-t/tau)), tau = theta C.
+    // Junction stage: with the case's capacity made huge (10^7 J/degC) the case stays at
+    // ambient for seconds, so the junction alone is first order, tau = 0.5 s (the sample's).
+    let d = lab_with_masses(
+        "junction_tau_s = 0.5",
+        "case_j_per_c = 1e7",
+        "sink_j_per_c = 1e7",
+    );
+    let mut u = SimUnit::build(&d, 7, &[], UnitModel::default()).unwrap();
+    let op = u.operating_point(&load(LoadMode::ConstantCurrent, 1.0));
+    let (w, ta) = (op.pass_w, u.params().ambient_c);
+    assert!(w > 5.0, "{w}");
+    u.heat(op, 0.5);
+    let rise = u.thermal().pass_junction_c - ta;
+    let want = w * d.pass.theta_jc * (1.0 - (-1.0f64).exp());
+    assert!((rise - want).abs() <= 0.005 * want, "{rise} vs {want}");
+    // Case stage: with the junction's capacity made negligible (tau 0.1 ms) and the heatsink's
+    // huge, all of P flows into the case, which rises as P theta_cs (1 - e^(-t/tau_c)),
+    // tau_c = theta_cs C_case = 0.2 x 10 = 2 s, while the junction sits P theta_jc above it at
+    // once: the case lags the junction.
+    let d = lab_with_masses(
+        "junction_tau_s = 1e-4",
+        "case_j_per_c = 10",
+        "sink_j_per_c = 1e7",
+    );
+    let mut u = SimUnit::build(&d, 7, &[], UnitModel::default()).unwrap();
+    let op = u.operating_point(&load(LoadMode::ConstantCurrent, 1.0));
+    let w = op.pass_w;
+    let tau_c = d.pass.theta_cs * 10.0;
+    for (t, dt) in [(0.5, 0.5), (2.0, 1.5), (6.0, 4.0)] {
+        u.heat(op, dt);
+        let th = u.thermal();
+        let case_want = w * d.pass.theta_cs * (1.0 - (-t / tau_c).exp());
+        assert!(
+            (th.case_c - ta - case_want).abs() <= 0.005 * case_want,
+            "at {t} s: case {} vs {}",
+            th.case_c - ta,
+            case_want
+        );
+        let over_case = th.pass_junction_c - th.case_c;
+        assert!(
+            (over_case - w * d.pass.theta_jc).abs() <= 0.005 * w * d.pass.theta_jc,
+            "at {t} s: junction over case {over_case}"
+        );
+    }
+    // On the sample as drawn the case lags too: one junction time constant into a held
+    // dissipation the case has taken under a tenth of the junction's rise (its capacity is
+    // 14 times the junction's, C_j = 0.5 s / 0.7 degC/W).
+    let d = lab();
+    let mut u = SimUnit::build(&d, 7, &[], UnitModel::default()).unwrap();
+    let op = u.operating_point(&load(LoadMode::ConstantCurrent, 1.0));
+    u.heat(op, 0.5);
+    let th = u.thermal();
+    assert!(th.case_c - ta < 0.1 * (th.pass_junction_c - ta), "{th:?}");
+}
+
+#[test]
+fn the_knee_widens_with_the_junctions_that_set_it() {
+    // Shockley's law for n junctions in series: the string's drop changes by n N kT/q per
+    // e-fold of current, so on the upper branch of the knee (module doc)
+    // V0 - R_out I - V = dV_sat exp((I - I_L) R_s / w) with width w = n N kT/q. The width is
+    // read back from the unit's characteristic at a 0.5 % and a 2 % output drop, fed from a
+    // 40 V source so that headroom never cuts in, for the designed string of three diodes and
+    // for a unit built with one diode more; a limiter transistor's knee is one junction wide.
+    let width_of = |d: &Design, faults: &[UnitFault]| {
+        let u = SimUnit::build(d, 7, faults, UnitModel::default()).unwrap();
+        let c = Controls {
+            source: SourceSetting {
+                in_use: true,
+                volts: 40.0,
+                output_on: true,
+            },
+            ..Controls::default()
+        };
+        let v0 = u.operating_point(&c).vout;
+        let t = u.truth();
+        let (rs, ro) = (u.params().r_sense, u.model().output_resistance);
+        let dv_sat = u.model().knee_sat_fraction * v0;
+        let widths: Vec<f64> = [0.995, 0.98]
+            .iter()
+            .map(|f| {
+                let v = f * v0;
+                let i = u.supply_current_at(&c, v);
+                (i - t.limit_line_current) * rs / ((v0 - ro * i - v) / dv_sat).ln()
+            })
+            .collect();
+        (u, widths)
+    };
+    let d = lab();
+    for (faults, n) in [(vec![], 3.0), (vec![UnitFault::DiodeDelta(1)], 4.0)] {
+        let (u, widths) = width_of(&d, &faults);
+        assert_eq!(u.params().diodes as f64, n);
+        let want = n * thermal_voltage(u.params().ambient_c);
+        for w in widths {
+            assert!(
+                (w - want).abs() <= 0.01 * want,
+                "{n} diodes: {w} V vs {want} V"
+            );
+        }
+        assert!((u.truth().knee_width_v - want).abs() < 1e-12);
+    }
+    // A limiter transistor: one junction (the foldback sample's knee on its limit line at the
+    // set output, where the divider's share is fixed).
+    let f = fold();
+    let u = SimUnit::build(&f, 7, &[], UnitModel::default()).unwrap();
+    assert!((u.truth().knee_width_v - thermal_voltage(u.params().ambient_c)).abs() < 1e-12);
+    // The one-junction model ignores the count.
+    let one = one_junction_unit(&d);
+    assert!((one.truth().knee_width_v - thermal_voltage(one.params().ambient_c)).abs() < 1e-12);
+}
+
+#[test]
+fn clamp_diodes_sit_where_the_design_mounts_them() {
+    // The design model keeps the clamp's junctions at ambient, or at the heatsink's
+    // temperature with `clamp_mount = "heatsink"` (design::heating); the unit does the same.
+    // On the heatsink the string's threshold follows the junction law at the sink's
+    // temperature: V_sense = n (V_F + tc (T_sink - 25)) - m (V_BE + tc (T_j - 25)).
+    let d = lab();
+    let mut u = unit(&d, &[]);
+    let short = load(LoadMode::ConstantVoltage, 0.0);
+    u.advance(&short, 60.0);
+    assert_eq!(u.thermal().clamp_junction_c, u.params().ambient_c);
+    let text = include_str!("../../../samples/teaching-lab-0-20v.toml")
+        .replace("diodes = 3\n", "diodes = 3\nclamp_mount = \"heatsink\"\n");
+    let d = Design::parse(&text, "lab-on-sink").unwrap();
+    let mut u = unit(&d, &[]);
+    let op = u.advance(&short, 60.0);
+    let th = u.thermal();
+    assert!(th.sink_c > u.params().ambient_c + 1.0, "{th:?}");
+    assert_eq!(th.clamp_junction_c, th.sink_c);
+    let p = u.params();
+    let tc = d.environment.junction_tempco_mv_per_c * 1e-3;
+    let vs = p.diodes as f64 * (p.diode_vf + tc * (th.sink_c - 25.0))
+        - 2.0 * (p.pass_vbe + tc * (th.pass_junction_c - 25.0));
+    assert!(
+        (op.iout - vs / p.r_sense).abs() < 1e-3 * op.iout,
+        "{} vs {}",
+        op.iout,
+        vs / p.r_sense
+    );
 }

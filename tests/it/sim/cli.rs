@@ -48,12 +48,24 @@ fn sim_prints_ports_truth_and_writes_the_bench_file() {
     assert!(text.contains("short-circuit current"), "{text}");
     assert!(text.contains("sense resistor fitted: 0.39 ohm"), "{text}");
     assert!(text.contains("ports closed"), "{text}");
+    // The foldback sample states no thermal masses: the network cannot run, and the output
+    // says so and what the unit uses instead.
+    assert!(
+        text.contains("thermal network not used: the design has no [pass.thermal_mass]"),
+        "{text}"
+    );
+    assert!(text.contains("simple: one stage"), "{text}");
     let written = std::fs::read_to_string(&bench).unwrap();
     let truth: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(dir.path().join("truth.json")).unwrap())
             .unwrap();
     // The fault is in the element values: the fitted sense resistor.
     assert_eq!(truth["params"]["r_sense"].as_f64(), Some(0.39));
+    assert_eq!(truth["heat"]["model"].as_str(), Some("simple"), "{truth}");
+    assert!(truth["heat"]["note"]
+        .as_str()
+        .unwrap()
+        .contains("[pass.thermal_mass]"));
     assert!(truth["short_circuit_current"].as_f64().unwrap() > 0.0);
     assert_eq!(written.matches("[[instrument]]").count(), 4);
     assert!(!written.contains("input_source"));
@@ -70,6 +82,7 @@ fn sim_config_errors_exit_2() {
         vec!["--noise", "-1"],
         vec!["--without", "scope"],
         vec!["--ambient", "300"],
+        vec!["--heat", "lumpy"],
     ] {
         let out = regulus()
             .args(["sim", "--design", &design, "--run-for", "0"])
@@ -195,4 +208,37 @@ fn write_bench_keeps_an_existing_file_unless_told() {
     assert!(std::fs::read_to_string(&bench)
         .unwrap()
         .contains("[[instrument]]"));
+}
+
+#[test]
+fn sim_heats_through_the_designs_network_unless_asked_for_the_simple_model() {
+    let _g = serial();
+    let design = sample("teaching-lab-0-20v.toml");
+    let run = |extra: &[&str]| {
+        let out = regulus()
+            .args(["sim", "--design", &design, "--run-for", "0"])
+            .args(extra)
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(0));
+        String::from_utf8_lossy(&out.stdout).into_owned()
+    };
+    // The teaching-lab sample states its thermal masses: junction tau 0.5 s, case 10 J/degC
+    // through theta_cs 0.2 degC/W (tau = theta C = 2 s), heatsink 900 J/degC through
+    // 0.35 degC/W (315 s).
+    let text = run(&[]);
+    assert!(
+        text.contains("network (time constants: junction 500 ms, case 2.00 s, heatsink 315 s)"),
+        "{text}"
+    );
+    assert!(!text.contains("thermal network not used"), "{text}");
+    // Three diodes set the threshold: the knee is 3 kT/q wide, 77.1 mV at 25 degC
+    // (k T / q = 25.69 mV at 298.15 K, SI 2019 constants).
+    assert!(text.contains("knee width               77.1 mV"), "{text}");
+    let text = run(&["--heat", "simple"]);
+    assert!(
+        text.contains("simple: one stage, time constant 8.00 s"),
+        "{text}"
+    );
+    assert!(!text.contains("network ("), "{text}");
 }
