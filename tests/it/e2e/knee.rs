@@ -20,13 +20,16 @@
 //! common practice for silicon junctions) and the clamp's threshold n V_F - m V_BE, with it the
 //! limit current, rises by m x 2 mV/degC / R_s per degree (about 10 % here). The clamp diodes
 //! sit at ambient, as the design states (`clamp_mount` default). The cold `Truth` is therefore
-//! not the value to compare with. What is comparable is the same unit's characteristic at the
-//! junction temperatures it had when the search's last probe (one of the two bracketing the
-//! knee) was read, at the search's own
-//! threshold voltage: the simulator keeps its thermal state at every moment an instrument
-//! looked (`SimBench::thermal_history`), the test rebuilds the unit from the same seed
-//! (`SimUnit::build`, checked equal through `truth()`), sets the state from the moment that
-//! probe's row was taken and asks it for the current at that voltage. That is checked to 0.5 %.
+//! not the value to compare with, and neither is one warm state: the knee moves up by about a
+//! milliampere per probe while the search runs, so the bisection's two bracketing probes (the
+//! last regulating and the last non-regulating one) were read on slightly different
+//! characteristics. The search interpolates linearly between them at its threshold voltage;
+//! the comparable truth is the same interpolation of the unit's own knee at each probe's
+//! moment. The simulator keeps its thermal state at every moment an instrument looked
+//! (`SimBench::thermal_history`); the test rebuilds the unit from the same seed
+//! (`SimUnit::build`, checked equal through `truth()`), sets the state each bracketing probe's
+//! row was taken in, asks it for the current at the threshold, and weighs the two as the search
+//! did. That is checked to 0.5 %.
 //! The cold knee, moved by the junction law to those temperatures
 //! (I_cold + m |dV_BE/dT| (T_pass - T_a) / R_s for a diode string; a limiter transistor at
 //! ambient does not move), is checked to 1 %, and the sign (warmer pass device, higher limit)
@@ -35,6 +38,7 @@
 use crate::support::e2e::{design, sample, serial};
 use regulus::bench::{Bench, BenchConfig};
 use regulus::cli::run::{prepare, Args};
+use regulus::measure::Quantity;
 use regulus::plan::{KneeOutcome, KneeResult};
 use regulus::record::{read_run, StepKind};
 use regulus::runner::{self, CancelToken, RunSetup, Silent};
@@ -57,8 +61,8 @@ struct Found {
     cold: f64,
     /// The cold knee moved by the junction law to the pass junctions' temperature at the probe.
     cold_moved: f64,
-    /// The same unit's current at the search's threshold voltage, junctions as the search left
-    /// them.
+    /// The same unit's current at the search's threshold voltage, junctions as at the two
+    /// bracketing probes, weighed as the search's interpolation weighs them.
     warm: f64,
     /// The design's expected limit current.
     expected: f64,
@@ -134,47 +138,68 @@ fn search(design_name: &str, seed: u64, fault: Option<&str>) -> Found {
         .expect("the knee step reports a result");
     let rec = read_run(&report.dir).unwrap();
     assert!(rec.rows.iter().all(|r| r.step_kind == StepKind::KneeSearch));
-    // The probe next to the knee: the search's last probe, which is one of the two that
-    // bracket the threshold (the last regulating and the last non-regulating probe,
-    // `KneeResult::bracket_a`; the bracket is narrower than the search's resolution); the
-    // junctions as they were when that row's reading was answered (the last state the
-    // simulator had before the row's time stamp).
-    let row = rec.rows.last().expect("the search recorded probes");
-    let last_i = row
-        .value(regulus::measure::Quantity::OutputCurrent)
-        .expect("the probe read the output current");
-    let (lo, hi) = knee.bracket_a.expect("a located knee has its bracket");
-    assert!(
-        last_i == lo || last_i == hi,
-        "the last probe ({last_i} A) brackets the knee ({lo}, {hi})"
-    );
-    let at = chrono::DateTime::parse_from_rfc3339(&row.utc)
-        .unwrap()
-        .with_timezone(&chrono::Utc);
+    // The two probes that bracket the knee (`KneeResult::bracket_a`: the last regulating and
+    // the last non-regulating probe), each with the junctions as they were when its reading
+    // was answered (the last state the simulator had before the row's time stamp). The unit
+    // warms during the search, so the two were read on slightly different characteristics.
     let history = sim.thermal_history();
-    let thermal = history
-        .iter()
-        .rev()
-        .find(|(t, _)| *t <= at)
-        .map(|(_, th)| *th)
-        .expect("the simulator's thermal history reaches back to the probe");
+    let th = knee.threshold_v;
+    let (lo_i, hi_i) = knee.bracket_a.expect("a located knee has its bracket");
+    let probe = |want_i: f64, regulating: bool| {
+        let row = rec
+            .rows
+            .iter()
+            .rev()
+            .find(|r| {
+                let v = r.value(Quantity::OutputVoltage).unwrap_or(f64::NAN);
+                let i = r.value(Quantity::OutputCurrent).unwrap_or(f64::NAN);
+                i == want_i && (v >= th) == regulating
+            })
+            .unwrap_or_else(|| panic!("a recorded probe at {want_i} A brackets the knee"));
+        let v = row.value(Quantity::OutputVoltage).unwrap();
+        let at = chrono::DateTime::parse_from_rfc3339(&row.utc)
+            .unwrap()
+            .with_timezone(&chrono::Utc);
+        let thermal = history
+            .iter()
+            .rev()
+            .find(|(t, _)| *t <= at)
+            .map(|(_, th)| *th)
+            .expect("the simulator's thermal history reaches back to the probe");
+        (v, thermal)
+    };
+    let (lo_v, lo_th) = probe(lo_i, true);
+    let (hi_v, hi_th) = probe(hi_i, false);
     sim.shutdown();
-    twin.set_thermal(thermal);
+    // The search interpolates linearly between the two probes at the threshold voltage; the
+    // comparable truth is the same interpolation of the unit's own knee at each probe's moment
+    // (the current it delivers at the threshold with the junctions as they were then).
+    let w = if lo_v > hi_v {
+        (lo_v - th) / (lo_v - hi_v)
+    } else {
+        0.5
+    };
     // Controls::default(): the unit fed from its own input, as during the search (the plan
     // commands no source).
-    let warm = twin.supply_current_at(&Controls::default(), knee.threshold_v);
+    let mut knee_at = |t: Thermal| {
+        twin.set_thermal(t);
+        twin.supply_current_at(&Controls::default(), th)
+    };
+    let warm = (1.0 - w) * knee_at(lo_th) + w * knee_at(hi_th);
     // Junction law: every pass junction's V_BE moves tc per degC (the design's
     // junction_tempco_mv_per_c, -2 mV/degC), and a diode string's threshold n V_F - m V_BE moves
     // by -m tc per degC of the pass junctions (the diodes stay at ambient); a limiter transistor
     // sits at ambient and its threshold does not follow the pass device.
     let tc = d.environment.junction_tempco_mv_per_c * 1e-3;
+    let pass_c = (1.0 - w) * lo_th.pass_junction_c + w * hi_th.pass_junction_c;
     let shift = match d.limit.clamp {
         regulus::design::Clamp::DiodeString => {
             let m = d.pass.stage.junctions() as f64;
-            -m * tc * (thermal.pass_junction_c - truth.ambient_c) / truth.params.r_sense
+            -m * tc * (pass_c - truth.ambient_c) / truth.params.r_sense
         }
         _ => 0.0,
     };
+    let thermal = if w >= 0.5 { hi_th } else { lo_th };
     Found {
         knee,
         cold: truth.knee_current,
