@@ -66,8 +66,29 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         })
         .copied()
         .min_by(|a, b| a.current.total_cmp(&b.current));
+    // Without a load sweep or a curve (a run stopped at its pre-flight check), the pre-flight
+    // reading is all there is of the unit's unloaded output (its load input was off).
+    let preflight_no_load = rows
+        .iter()
+        .filter(|r| r.step_kind == StepKind::Preflight)
+        .find_map(|r| {
+            let v = r.value(Quantity::OutputVoltage).filter(|v| v.is_finite())?;
+            let i = r
+                .value(Quantity::OutputCurrent)
+                .filter(|i| i.is_finite())
+                .unwrap_or(0.0);
+            Some(CurvePoint {
+                current: i,
+                voltage: v,
+            })
+        });
     if no_load.is_none() {
-        notes.push("no load-sweep or curve rows with output voltage and current".into());
+        notes.push(match preflight_no_load {
+            Some(_) => "no load-sweep or curve rows: only the pre-flight reading of the \
+                        unloaded output"
+                .into(),
+            None => "no load-sweep or curve rows with output voltage and current".into(),
+        });
     }
 
     let mut knee = no_load.map(|nl| knee_metrics(&curve, nl.voltage, d, opts.regulation_span));
@@ -226,6 +247,11 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
         max_temperature,
         knee_conditions,
         soak,
+        preflight: if no_load.is_none() {
+            preflight_no_load
+        } else {
+            None
+        },
         notes,
     }
 }

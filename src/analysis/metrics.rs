@@ -171,6 +171,11 @@ pub struct Metrics {
     /// Output drift and temperature rise over a soak.
     #[serde(default)]
     pub soak: Option<Soak>,
+    /// The pre-flight reading of the unloaded output, when the run stopped there (no load
+    /// sweep or curve): not judged as the output (the unit may not be the design's), but
+    /// what a diagnosis of that stop fits.
+    #[serde(default)]
+    pub preflight: Option<CurvePoint>,
     pub notes: Vec<String>,
 }
 

@@ -102,6 +102,28 @@ pub struct RunResult<'a> {
     pub summary: Option<&'a crate::report::Summary>,
 }
 
+/// The likely causes the record of a pre-flight stop gives (its summary's diagnosis of the
+/// unloaded output), best first; none for any other error or when the summary is unreadable.
+pub fn preflight_causes(e: &PipelineError) -> Vec<String> {
+    let PipelineError::PreFlight {
+        record: Some(dir), ..
+    } = e
+    else {
+        return Vec::new();
+    };
+    std::fs::read(dir.join("summary.json"))
+        .ok()
+        .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
+        .and_then(|s| {
+            s["comparison"]["likely_causes"].as_array().map(|a| {
+                a.iter()
+                    .filter_map(|c| c.as_str().map(String::from))
+                    .collect()
+            })
+        })
+        .unwrap_or_default()
+}
+
 /// Run a prepared plan on an open bench through the pipeline with a progress bar per step.
 /// The record is closed (run.json's final state synced) and the summary and report written
 /// before anything about the result is printed; printing cannot change the exit code (a
@@ -123,6 +145,13 @@ pub async fn run_and_show<B: BenchControl>(
                 for f in safe_state {
                     eprintln!("warning: safe state: {f}");
                 }
+            }
+            let mut out = Console::new(std::io::stdout().lock());
+            for cause in preflight_causes(&e) {
+                let _ = writeln!(
+                    out,
+                    "if the unit is built to this design, likely cause: {cause}"
+                );
             }
             return Err(e.into());
         }

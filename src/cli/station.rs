@@ -95,6 +95,12 @@ pub async fn test_unit<B: BenchControl>(
                 }
             }
             writeln!(out, "error: {}", present::chain_text(&e))?;
+            for cause in present::preflight_causes(&e) {
+                writeln!(
+                    out,
+                    "if the unit is built to this design, likely cause: {cause}"
+                )?;
+            }
             big_verdict(out, FloorResult::Error, &req.unit)?;
             return Ok(UnitDone {
                 result: FloorResult::Error,

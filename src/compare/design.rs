@@ -328,7 +328,14 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
         .map(|c| c.verdict)
         .max()
         .unwrap_or(Verdict::Pass);
-    let off = checks.iter().any(|c| c.verdict != Verdict::Pass);
+    // A run stopped at its pre-flight check judged nothing, but an unloaded output outside
+    // the design's band is still worth a diagnosis (which part would make the unit read so).
+    let preflight_off = checks.is_empty()
+        && metrics.preflight.is_some_and(|p| {
+            let wc = exp.vout.worst_case;
+            !(p.voltage >= wc.min && p.voltage <= wc.max)
+        });
+    let off = preflight_off || checks.iter().any(|c| c.verdict != Verdict::Pass);
     let likely_causes = match (&exp.design, off) {
         (Some(d), true) => {
             super::diagnosis_lines(&super::diagnose(d, exp, &observations(metrics, d)))
@@ -421,7 +428,7 @@ pub fn plan_limit_checks(m: &Metrics, l: &MetricLimits) -> Vec<Check> {
 /// case reading plus dissipation times theta_jc (settled against the case).
 pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observations {
     use super::Observed;
-    let vout = m.no_load.map(|p| Observed {
+    let vout = m.no_load.or(m.preflight).map(|p| Observed {
         value: p.voltage,
         u: (2e-3f64).max(1e-4 * p.voltage.abs()),
     });
@@ -450,6 +457,17 @@ pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observatio
             u: 0.005 * p.current.abs(),
         }),
     };
+    // At the short's first reading the junction is between the case before the short (the
+    // knee's case reading) and the case's peak plus the short's dissipation, V_in I_sc, times
+    // theta_jc (thermal Ohm's law; common practice).
+    let short_junction_c = m.short_circuit.and_then(|s| {
+        let lo = pass_case_c.or(s.peak_temperature)?;
+        let case_hi = s.peak_temperature.unwrap_or(lo).max(lo);
+        let p = crate::design::Params::nominal(d);
+        let vin = crate::design::model::evaluate(d, &p).vin_no_load;
+        let watts = (vin * s.start_current).max(0.0);
+        Some((lo, case_hi + watts * d.pass.theta_jc))
+    });
     super::Observations {
         vout,
         limit,
@@ -457,6 +475,7 @@ pub fn observations(m: &Metrics, d: &crate::design::Design) -> super::Observatio
         pass_junction_c,
         pass_case_c,
         limit_at_least,
+        short_junction_c,
     }
 }
 
@@ -654,7 +673,14 @@ pub fn likely_causes(metrics: &Metrics, exp: &DesignExpectation, checks: &[Check
     }
     // Heating is named only when something is off; a few percent of drift during a short is
     // normal for a junction-referenced clamp.
-    let off = checks.iter().any(|c| c.verdict != Verdict::Pass);
+    // A run stopped at its pre-flight check judged nothing, but an unloaded output outside
+    // the design's band is still worth a diagnosis (which part would make the unit read so).
+    let preflight_off = checks.is_empty()
+        && metrics.preflight.is_some_and(|p| {
+            let wc = exp.vout.worst_case;
+            !(p.voltage >= wc.min && p.voltage <= wc.max)
+        });
+    let off = preflight_off || checks.iter().any(|c| c.verdict != Verdict::Pass);
     if let Some(sc) = metrics.short_circuit.as_ref().filter(|_| off) {
         if sc.drift_percent.abs() > HEATING_DRIFT_PERCENT {
             let tau = sc

@@ -36,6 +36,11 @@ pub struct Observations {
     /// When the limit was not reached: the highest current at which the output still
     /// regulated (the limit lies above it).
     pub limit_at_least: Option<Observed>,
+    /// Where the pass junction may be at the short's first reading, `(low, high)` degC: no
+    /// cooler than the case before the short, no hotter than the case's peak plus the short's
+    /// dissipation times theta_jc (the junction settles within about its time constant, so
+    /// the first reading can be anywhere between). Without it, the knee's range is used.
+    pub short_junction_c: Option<(f64, f64)>,
 }
 
 /// A hypothesis that fits, with its score and what it predicts.
@@ -60,6 +65,8 @@ pub const FIT_Z: f64 = 3.0;
 pub struct Diagnosis {
     /// True when the design as drawn (no part wrong) fits every measurement.
     pub nominal_fits: bool,
+    /// The design as drawn's score (as [`Hypothesis::score`]).
+    pub nominal_score: f64,
     /// Fitting hypotheses that explain the measurements better than the design as drawn,
     /// best first.
     pub fits: Vec<Hypothesis>,
@@ -100,6 +107,20 @@ fn tolerance_spread(exp: &DesignExpectation) -> [(f64, f64); 3] {
 /// it (project choice: the common series is the likelier part to be picked by mistake).
 const OFF_SERIES_PENALTY: f64 = 1.0;
 
+/// Score added per place along the E24 series beyond the neighbouring value (project choice:
+/// a part from the next drawer is the likelier mistake; the further the value, the less
+/// likely). It only orders hypotheses the measurements cannot tell apart.
+const STEP_PENALTY: f64 = 0.5;
+
+/// How many standard spreads of the limit above zero a unit's clamp must be for its output
+/// to be taken as regulating unloaded (two-sided 95 %; common practice).
+const COLLAPSE_SIGMA: f64 = 2.0;
+
+/// Improvement of the score over the design as drawn that names a part even when the design
+/// as drawn fits too (a chi-square difference of 9: three standard deviations of evidence for
+/// the hypothesis, as in a likelihood-ratio test; common practice).
+pub const EVIDENCE_SCORE: f64 = 9.0;
+
 /// Most the pass junction may run above its estimate from the case reading for heating to
 /// explain a limit (project choice: theta_jc and the dissipation at the knee are known to
 /// about this).
@@ -107,22 +128,47 @@ const HEATING_SLACK_C: f64 = 25.0;
 
 fn predict(d: &Design, p: &Params) -> [f64; 3] {
     let pt: Point = evaluate(d, p);
-    [pt.vout_set, pt.limit_current, pt.short_circuit_current]
+    // The limit as the clamp relation gives it, V_threshold / R_s, may be at or below zero
+    // (a threshold the clamp reaches before any load current flows); the scorer decides what
+    // the output does then.
+    [
+        pt.vout_set,
+        pt.limit_current,
+        pt.short_circuit_current.max(0.0),
+    ]
 }
 
 /// Where the pass junction may be: `(low, high)` degC, both ends included.
 type JunctionRange = Option<(f64, f64)>;
 
+/// The junction's range at the knee (for the output and the limit) and at the short.
+#[derive(Debug, Clone, Copy)]
+struct Ranges {
+    knee: JunctionRange,
+    short: JunctionRange,
+}
+
+impl Ranges {
+    /// Both ranges moved up by `dt` degC (extra heating).
+    fn warmer(self, dt: f64) -> Ranges {
+        let up = |r: JunctionRange| r.map(|(lo, hi)| (lo + dt, hi + dt));
+        Ranges {
+            knee: up(self.knee),
+            short: up(self.short),
+        }
+    }
+}
+
 /// A prediction with the pass junction at the middle of its range, and the standard spread
 /// per metric that the range leaves (uniform over the range: width / sqrt 12).
-fn predict_in(d: &Design, p: &Params, tj: JunctionRange) -> ([f64; 3], [f64; 3]) {
+fn predict_over(d: &Design, p: &Params, tj: JunctionRange) -> ([f64; 3], [f64; 3]) {
+    let at = |t: f64| {
+        let mut q = p.clone();
+        q.pass_junction_c = t;
+        predict(d, &q)
+    };
     match tj {
         Some((lo, hi)) if hi > lo => {
-            let at = |t: f64| {
-                let mut q = p.clone();
-                q.pass_junction_c = t;
-                predict(d, &q)
-            };
             let (a, b) = (at(lo), at(hi));
             let mid = at(0.5 * (lo + hi));
             let mut s = [0.0; 3];
@@ -131,13 +177,21 @@ fn predict_in(d: &Design, p: &Params, tj: JunctionRange) -> ([f64; 3], [f64; 3])
             }
             (mid, s)
         }
-        Some((t, _)) => {
-            let mut q = p.clone();
-            q.pass_junction_c = t;
-            (predict(d, &q), [0.0; 3])
-        }
+        Some((t, _)) => (at(t), [0.0; 3]),
         None => (predict(d, p), [0.0; 3]),
     }
+}
+
+/// The output and the limit predicted over the knee's junction range, the short-circuit
+/// current over the short's.
+fn predict_in(d: &Design, p: &Params, r: Ranges) -> ([f64; 3], [f64; 3]) {
+    let (mut pred, mut spread) = predict_over(d, p, r.knee);
+    if r.short.is_some() {
+        let (ps, ss) = predict_over(d, p, r.short);
+        pred[2] = ps[2];
+        spread[2] = ss[2];
+    }
+    (pred, spread)
 }
 
 struct Scorer {
@@ -150,20 +204,60 @@ impl Scorer {
     /// (score, worst z) of a prediction with the extra spread `temp` per metric (from the
     /// junction's temperature range).
     fn score(&self, (pred, temp): ([f64; 3], [f64; 3]), free: usize) -> (f64, f64) {
+        let mut pred = pred;
+        // A clamp that conducts before any load current flows leaves the pass stage no drive:
+        // the output sits at 0 V even unloaded (common practice). Where the limit is within
+        // COLLAPSE_SIGMA of zero by the tolerances, a built unit may or may not do so: the
+        // output is then either the setting or 0 V, each as likely (a two-way mixture: the
+        // nearer outcome is scored, plus -2 ln 1/2 for not knowing which).
+        let (rel, abs) = self.spread[1];
+        let lim_sigma = (rel * pred[1]).abs().max(abs).max(temp[1]).max(1e-9);
+        let q = pred[1] / lim_sigma;
+        let mut outcomes = vec![(pred[0], 0.0)];
+        let mut anywhere_between = false;
+        if q <= -COLLAPSE_SIGMA {
+            outcomes = vec![(0.0, 0.0)];
+        } else if q < COLLAPSE_SIGMA {
+            let mix = 2.0 * std::f64::consts::LN_2;
+            outcomes = vec![(pred[0], mix), (0.0, mix)];
+            anywhere_between = true;
+        }
+        pred[1] = pred[1].max(0.0);
+        let z_of = |k: usize, p: f64| -> Option<f64> {
+            let o = self.obs[k]?;
+            let (rel, abs) = self.spread[k];
+            let tol = (rel * p).abs().max(abs);
+            let s = (o.u.powi(2) + tol.powi(2) + temp[k].powi(2)).sqrt();
+            Some(if s > 0.0 { (o.value - p) / s } else { 0.0 })
+        };
         let mut chi2 = 0.0;
         let mut worst: f64 = 0.0;
-        for (((obs, (rel, abs)), p), t) in self.obs.iter().zip(self.spread).zip(pred).zip(temp) {
-            if let Some(o) = obs {
-                let tol = (rel * p).abs().max(abs);
-                let s = (o.u.powi(2) + tol.powi(2) + t.powi(2)).sqrt();
-                let z = if s > 0.0 { (o.value - p) / s } else { 0.0 };
+        // The output: the likelier of its possible outcomes.
+        if let Some(o) = self.obs[0] {
+            // Or anywhere between, on the clamp's soft knee: uniform over the setting, which
+            // costs -2 ln of its density against the reading's own spread.
+            if anywhere_between && o.value > 0.0 && o.value < pred[0] {
+                let (rel, abs) = self.spread[0];
+                let s = (o.u.powi(2) + ((rel * pred[0]).abs().max(abs)).powi(2)).sqrt();
+                let cost = 2.0 * (pred[0] / (s * (2.0 * std::f64::consts::PI).sqrt())).ln();
+                outcomes.push((o.value, cost.max(2.0 * std::f64::consts::LN_2)));
+            }
+            let (z, extra) = outcomes
+                .iter()
+                .map(|&(v, extra)| (z_of(0, v).unwrap_or(0.0), extra))
+                .min_by(|a, b| (a.0 * a.0 + a.1).total_cmp(&(b.0 * b.0 + b.1)))
+                .unwrap_or((0.0, 0.0));
+            chi2 += z * z + extra;
+            worst = worst.max(z.abs());
+        }
+        for (k, &p) in pred.iter().enumerate().skip(1) {
+            if let Some(z) = z_of(k, p) {
                 chi2 += z * z;
                 worst = worst.max(z.abs());
             }
         }
         // A one-sided observation: only a predicted limit below the bound is a residual.
         if let Some(b) = self.limit_at_least {
-            let (rel, abs) = self.spread[1];
             let s =
                 (b.u.powi(2) + ((rel * pred[1]).abs().max(abs)).powi(2) + temp[1].powi(2)).sqrt();
             if pred[1] < b.value && s > 0.0 {
@@ -233,13 +327,20 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         limit_at_least: obs.limit_at_least,
     };
     // The pass junction lies between the case reading and its settled value above it.
-    let tj: JunctionRange = match (obs.pass_case_c, obs.pass_junction_c) {
+    let knee: JunctionRange = match (obs.pass_case_c, obs.pass_junction_c) {
         (Some(c), Some(j)) => Some((c.min(j), c.max(j))),
         (None, Some(j)) => Some((j, j)),
         _ => None,
     };
+    let tj = Ranges {
+        knee,
+        short: obs
+            .short_junction_c
+            .map(|(a, b)| (a.min(b), a.max(b)))
+            .or(knee),
+    };
     let mut base = Params::nominal(d);
-    if let Some((lo, hi)) = tj {
+    if let Some((lo, hi)) = knee {
         base.pass_junction_c = 0.5 * (lo + hi);
     }
     // Clamp parts sit at ambient unless the design mounts them on the heatsink; there they
@@ -256,21 +357,20 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
     }
     let (nominal_score, nominal_z) = scorer.score(predict_in(d, &base, tj), 0);
     let mut out = Vec::new();
-    let mut push =
-        |part: String, d2: &Design, p: &Params, free: usize, prior: f64, at: JunctionRange| {
-            let pred = predict_in(d2, p, at);
-            let (score, worst_z) = scorer.score(pred, free);
-            let pred = pred.0;
-            let score = score + prior;
-            if worst_z <= FIT_Z && score < nominal_score {
-                out.push(Hypothesis {
-                    part,
-                    score,
-                    worst_z,
-                    predicted: pred,
-                });
-            }
-        };
+    let mut push = |part: String, d2: &Design, p: &Params, free: usize, prior: f64, at: Ranges| {
+        let pred = predict_in(d2, p, at);
+        let (score, worst_z) = scorer.score(pred, free);
+        let pred = pred.0;
+        let score = score + prior;
+        if worst_z <= FIT_Z && score < nominal_score {
+            out.push(Hypothesis {
+                part,
+                score,
+                worst_z,
+                predicted: pred,
+            });
+        }
+    };
 
     // Sense resistor at each neighbouring preferred value (E24 within a factor of two).
     let r0 = d.limit.sense.ohms;
@@ -281,11 +381,14 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
         let mut p = base.clone();
         p.r_sense = r;
         let in_e12 = |x: f64| preferred_between(x * 0.999, x * 1.001, Series::E12).len() == 1;
+        // Preferred values strictly between the two, plus one: how many places along the
+        // E24 series the part is from the design's.
+        let steps = preferred_between(r.min(r0) * 1.001, r.max(r0) * 0.999, Series::E24).len() + 1;
         let prior = if in_e12(r0) && !in_e12(r) {
             OFF_SERIES_PENALTY
         } else {
             0.0
-        };
+        } + STEP_PENALTY * (steps - 1) as f64;
         push(
             format!(
                 "a {} sense resistor fitted instead of {}",
@@ -372,7 +475,8 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
             p.vref = base.vref * x;
             scorer.score(predict_in(d, &p, tj), 1).0
         };
-        let x = fit_free(0.8, 1.2, f);
+        // From a quarter to twice the design's setting: a wrong part, not a drift.
+        let x = fit_free(0.25, 2.0, f);
         let mut p = base.clone();
         p.vref = base.vref * x;
         let v_nom = predict(d, &base)[0];
@@ -445,8 +549,13 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
             p.pass_junction_c = t;
             p
         };
+        // The knee read with the junction at t; the short as much warmer than its own range.
+        let hot_at = |t: f64| Ranges {
+            knee: Some((t, t)),
+            short: tj.warmer(t - t0).short,
+        };
         let t = fit_free(t0, t_max, |t| {
-            scorer.score(predict_in(d, &hot(t), None), 1).0
+            scorer.score(predict_in(d, &hot(t), hot_at(t)), 1).0
         });
         if t > t0 + 5.0 && t < t_max - 0.5 {
             push(
@@ -459,7 +568,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
                 &hot(t),
                 1,
                 0.0,
-                None,
+                hot_at(t),
             );
         }
     }
@@ -486,20 +595,28 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
     let out = merged;
     Diagnosis {
         nominal_fits: nominal_z <= FIT_Z,
+        nominal_score,
         fits: out,
     }
 }
 
 /// Lines for people: the ranked fitting hypotheses, or that none fits.
 pub fn diagnosis_lines(diag: &Diagnosis) -> Vec<String> {
-    if diag.nominal_fits {
+    // Where the design as drawn fits too, only a hypothesis with strong evidence over it is
+    // named.
+    let fits: Vec<&Hypothesis> = diag
+        .fits
+        .iter()
+        .filter(|h| !diag.nominal_fits || diag.nominal_score - h.score >= EVIDENCE_SCORE)
+        .collect();
+    if diag.nominal_fits && fits.is_empty() {
         return Vec::new();
     }
-    if diag.fits.is_empty() {
+    if fits.is_empty() {
         return vec!["no single-part explanation fits the measurements".to_string()];
     }
-    let best = diag.fits[0].score;
-    diag.fits
+    let best = fits[0].score;
+    let mut lines: Vec<String> = fits
         .iter()
         .enumerate()
         .map(|(k, h)| {
@@ -513,7 +630,14 @@ pub fn diagnosis_lines(diag: &Diagnosis) -> Vec<String> {
                 h.part, h.score, h.worst_z
             )
         })
-        .collect()
+        .collect();
+    if let (true, Some(first)) = (diag.nominal_fits, lines.first_mut()) {
+        first.push_str(&format!(
+            "; the design as drawn, no part wrong, also fits, less well (score {:.1})",
+            diag.nominal_score
+        ));
+    }
+    lines
 }
 
 /// Score difference under which two hypotheses are said to fit equally well (a chi-square
@@ -550,6 +674,7 @@ mod tests {
             pass_junction_c: None,
             pass_case_c: None,
             limit_at_least: None,
+            short_junction_c: None,
         }
     }
 
@@ -715,6 +840,7 @@ mod tests {
                 pass_junction_c: Some(settled),
                 pass_case_c: Some(case),
                 limit_at_least: None,
+                short_junction_c: None,
             };
             let diag = diagnose(&d, &x, &obs);
             let first = diag.fits.first().map(|h| h.part.clone());
@@ -740,6 +866,7 @@ mod tests {
         };
         let diag = Diagnosis {
             nominal_fits: false,
+            nominal_score: 40.0,
             fits: vec![h("a", 0.9), h("b", 1.8), h("c", 2.9)],
         };
         let lines = diagnosis_lines(&diag);
@@ -781,6 +908,7 @@ mod tests {
             pass_junction_c: Some(settled),
             pass_case_c: Some(case),
             limit_at_least: None,
+            short_junction_c: None,
         };
         let diag = diagnose(&d, &x, &obs);
         let first = diag.fits.first().map(|h| (h.part.clone(), h.worst_z));
@@ -815,11 +943,119 @@ mod tests {
             pass_junction_c: None,
             pass_case_c: None,
             limit_at_least: None,
+            short_junction_c: None,
         };
         let diag = diagnose(&d, &x, &obs);
         assert_eq!(
             diagnosis_lines(&diag),
             vec!["no single-part explanation fits the measurements".to_string()]
+        );
+    }
+
+    /// Only the unloaded output (a run stopped at its pre-flight check).
+    fn output_only(v: f64) -> Observations {
+        Observations {
+            vout: Some(Observed { value: v, u: 2e-3 }),
+            ..Observations::default()
+        }
+    }
+
+    #[test]
+    fn an_unloaded_output_alone_names_the_swapped_feedback_pair() {
+        // V = V_ref (1 + R_t / R_b) (non-inverting amplifier gain; textbook): with the 30 k and
+        // 10 k of the teaching-lab design swapped, 5.1 V x (1 + 10/30) = 6.8 V.
+        let (d, x) = sample("lab");
+        let lines = diagnosis_lines(&diagnose(&d, &x, &output_only(5.1 * (1.0 + 10.0 / 30.0))));
+        assert!(
+            lines[0].starts_with("the feedback resistors swapped"),
+            "{lines:?}"
+        );
+    }
+
+    #[test]
+    fn a_clamp_that_conducts_unloaded_is_one_diode_fewer() {
+        // Two 0.65 V diodes against the Darlington's two 0.65 V base-emitter junctions leave
+        // the clamp a threshold of n V_F - m V_BE = 0 V (the clamp relation; common practice):
+        // the clamp takes the drive before any load current flows and the output reads 0 V.
+        let (d, x) = sample("lab");
+        let lines = diagnosis_lines(&diagnose(&d, &x, &output_only(0.0)));
+        assert!(lines[0].starts_with("one clamp diode fewer"), "{lines:?}");
+        // The same unit on the edge, its output part way down the clamp's soft knee and a
+        // limit of tens of milliamperes: still that part, and no other.
+        let obs = Observations {
+            vout: Some(Observed {
+                value: 19.9,
+                u: 2e-3,
+            }),
+            limit: Some(Observed {
+                value: 0.04,
+                u: 0.012,
+            }),
+            short: Some(Observed {
+                value: 0.048,
+                u: 0.001,
+            }),
+            ..Observations::default()
+        };
+        let lines = diagnosis_lines(&diagnose(&d, &x, &obs));
+        assert_eq!(lines.len(), 1, "{lines:?}");
+        assert!(lines[0].starts_with("one clamp diode fewer"), "{lines:?}");
+    }
+
+    #[test]
+    fn a_part_is_named_where_the_design_fits_too_only_with_strong_evidence() {
+        let (d, x) = sample("lab");
+        let nominal = predict(&d, &Params::nominal(&d));
+        let with = |r: f64| {
+            let mut p = Params::nominal(&d);
+            p.r_sense = r;
+            predict(&d, &p)
+        };
+        let diag_at = |pred: [f64; 3], u: f64| {
+            let obs = Observations {
+                vout: Some(Observed {
+                    value: pred[0],
+                    u: 2e-3,
+                }),
+                limit: Some(Observed {
+                    value: pred[1],
+                    u: u * pred[1],
+                }),
+                short: Some(Observed {
+                    value: pred[2],
+                    u: u * pred[2],
+                }),
+                ..Observations::default()
+            };
+            diagnose(&d, &x, &obs)
+        };
+        // A unit exactly as drawn: nothing named.
+        assert!(diagnosis_lines(&diag_at(nominal, 0.005)).is_empty());
+        // Measurements that the 0.33 ohm part explains much better than the design's 0.39
+        // ohm, read with a spread wide enough that the design's prediction still fits: the
+        // part is named, with the design's own score beside it.
+        let mut exercised = 0;
+        for k in 1..60 {
+            let diag = diag_at(with(0.33), 0.0025 * k as f64);
+            if !diag.nominal_fits {
+                continue;
+            }
+            let lines = diagnosis_lines(&diag);
+            match diag.fits.first() {
+                Some(h) if diag.nominal_score - h.score >= EVIDENCE_SCORE => {
+                    exercised += 1;
+                    assert!(
+                        lines[0].starts_with("a 0.33 ohm sense resistor"),
+                        "{lines:?}"
+                    );
+                    assert!(lines[0].contains("also fits, less well"), "{lines:?}");
+                }
+                _ => assert!(lines.is_empty(), "{lines:?}"),
+            }
+        }
+        assert!(
+            exercised > 0,
+            "no spread left the design fitting with strong evidence against it"
         );
     }
 }

@@ -16,7 +16,7 @@ use std::time::Duration;
 /// File name of the index in a records root.
 pub const INDEX_FILE: &str = ".regulus-index.sqlite";
 /// Schema version of the index (a different version is rebuilt).
-const SCHEMA: i64 = 3;
+const SCHEMA: i64 = 4;
 
 /// Where the index of a records root lives.
 pub fn index_path(records: &Path) -> PathBuf {

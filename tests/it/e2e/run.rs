@@ -352,3 +352,49 @@ fn run_against_a_regulus_sim_process_as_a_user_would() {
     assert_eq!(code, Some(0), "{rest}");
     assert!(rest.contains("ports closed"), "{rest}");
 }
+
+/// Ctrl-C while the pre-flight reading is under way (the source is on, the reading waits for
+/// the plan's settle time): the bench ends safe, the exit is INCOMPLETE (3), nothing was
+/// stressed and no record was started (the pre-flight writes a record only of a reading it
+/// judged).
+#[test]
+fn sigint_during_the_preflight_reading_leaves_the_bench_safe_with_exit_3() {
+    const SLOW_START: &str = r#"
+name = "e2e-slow-start"
+source = "100 % of vin"
+settle = "4 s"
+samples = 1
+
+[[step]]
+kind = "load_sweep"
+from = "0 A"
+to = "50 % of max_load"
+points = 2
+"#;
+    let _g = serial();
+    let rig = Rig::start(LAB, SimOptions::default().seed(107));
+    let child = rig.spawn("E2E-0007", SLOW_START);
+    // The pre-flight switches the source on, then settles before it reads.
+    let t0 = std::time::Instant::now();
+    while !rig.sim.state().2.source.output_on {
+        assert!(
+            t0.elapsed() < Duration::from_secs(20),
+            "the source never came on"
+        );
+        std::thread::sleep(Duration::from_millis(10));
+    }
+    std::thread::sleep(Duration::from_millis(300));
+    assert!(!rig.load_input_on(), "the pre-flight reads unloaded");
+    child.signal(libc::SIGINT);
+    let (code, stdout, stderr) = child.finish();
+    assert_eq!(code, Some(3), "{stdout}\n{stderr}");
+    assert!(stderr.contains("pre-flight"), "{stderr}");
+    assert!(stderr.contains("nothing was stressed"), "{stderr}");
+    let (_, _, c) = rig.sim.state();
+    assert!(!c.source.output_on, "source output left on");
+    assert!(!c.load.input_on, "load input left on");
+    assert!(
+        !rig.records.join("E2E-0007").exists(),
+        "no record is started by an interrupted pre-flight"
+    );
+}
