@@ -202,10 +202,11 @@ pub fn judge(
     if let Some(c) = comparison {
         if c.checks.is_empty() {
             raise(Verdict::Incomplete, &mut worst);
-            reasons.push(
-                "no metric of this record has a limit in the design: nothing was judged"
-                    .to_string(),
-            );
+            reasons.push(if missing.is_empty() {
+                "no metric of this record has a limit in the design: nothing was judged".to_string()
+            } else {
+                "none of the metrics the design limits was measured: nothing was judged".to_string()
+            });
         }
         for ch in &c.checks {
             raise(ch.verdict, &mut worst);
