@@ -76,11 +76,61 @@ pub struct Output {
     pub population: compare::Population,
 }
 
-/// A record offered for judging, judged.
+/// A record offered for judging, and how it is judged once chosen (only the records that
+/// stand for a unit are judged).
 struct Offered {
     candidate: compare::Candidate,
-    judged: Judged,
-    values: KeyValues,
+    work: Work,
+}
+
+enum Work {
+    /// Judged from its folder already (its candidate needed the folder).
+    Done { judged: Judged, values: KeyValues },
+    /// To judge from metrics without the folder.
+    Fileless(Box<FilelessRun>),
+    /// To judge from the judgement the index made against this design.
+    Prejudged(Box<PrejudgedRun>),
+}
+
+impl Work {
+    fn judge(self, exp: &compare::DesignExpectation) -> (Judged, KeyValues) {
+        match self {
+            Work::Done { judged, values } => (judged, values),
+            Work::Fileless(r) => without_files(*r, exp),
+            Work::Prejudged(r) => prejudged(*r),
+        }
+    }
+}
+
+/// An indexed run with the judgement the index made against the design it is judged against.
+struct PrejudgedRun {
+    record: String,
+    unit: String,
+    outcome: crate::record::Outcome,
+    state: crate::record::RecordState,
+    prejudged: crate::index::Prejudged,
+}
+
+/// Judge an indexed run by the one rule from the comparison and the missing metrics the index
+/// made against this very design (as [`without_files`] decides from the metrics).
+fn prejudged(r: PrejudgedRun) -> (Judged, KeyValues) {
+    let p = r.prejudged;
+    let facts = compare::RecordFacts {
+        outcome: r.outcome,
+        state: Some(r.state),
+        reason: p.reason.as_deref(),
+    };
+    let judgement = compare::judge(facts, Some(&p.comparison), &p.missing);
+    (
+        Judged {
+            record: r.record,
+            unit: r.unit,
+            verdict: judgement.verdict,
+            reasons: judgement.reasons,
+            comparison: Some(p.comparison),
+        },
+        p.values,
+    )
 }
 
 /// A run judged from what an index or a store holds, without its folder.
@@ -90,18 +140,29 @@ struct FilelessRun {
     started_utc: String,
     outcome: crate::record::Outcome,
     state: crate::record::RecordState,
-    metrics: Option<crate::analysis::Metrics>,
+    metrics: Option<Box<crate::analysis::Metrics>>,
     judging: Option<compare::Judging>,
     /// The run was analysed against the design it is judged against.
     same_design: bool,
 }
 
+impl FilelessRun {
+    fn candidate(&self) -> compare::Candidate {
+        compare::Candidate {
+            record: self.record.clone(),
+            unit: self.unit.clone(),
+            started_utc: self.started_utc.clone(),
+            finished: compare::finished(self.outcome, Some(self.state)),
+        }
+    }
+}
+
 /// Judge a run by the one rule from its metrics and what its plan promised. Without its
 /// metrics every promised metric is missing; without knowing what its plan promised the run
 /// cannot pass (INCOMPLETE, with the reason).
-fn without_files(r: FilelessRun, exp: &compare::DesignExpectation) -> Offered {
+fn without_files(r: FilelessRun, exp: &compare::DesignExpectation) -> (Judged, KeyValues) {
     let summarised = r.metrics.is_some();
-    let m = r.metrics.unwrap_or_default();
+    let m = r.metrics.map(|m| *m).unwrap_or_default();
     let known = r.judging.is_some();
     let j = r.judging.unwrap_or_default();
     let facts = compare::RecordFacts {
@@ -133,22 +194,22 @@ fn without_files(r: FilelessRun, exp: &compare::DesignExpectation) -> Offered {
             "its metrics were analysed against the design it ran with, not this one".to_string(),
         );
     }
-    Offered {
-        candidate: compare::Candidate {
-            record: r.record.clone(),
-            unit: r.unit.clone(),
-            started_utc: r.started_utc,
-            finished: compare::finished(r.outcome, Some(r.state)),
-        },
-        values: KeyValues::from_metrics(&m),
-        judged: Judged {
+    (
+        Judged {
             record: r.record,
             unit: r.unit,
             verdict: judgement.verdict,
             reasons: judgement.reasons,
             comparison,
         },
-    }
+        KeyValues::from_metrics(&m),
+    )
+}
+
+/// What precedes `<unit>/<folder>` in the name of a record under `root`: the name is then
+/// the one `root.join(unit).join(folder)` displays, without building a path per record.
+fn record_prefix(root: &Path) -> String {
+    root.join("").display().to_string()
 }
 
 /// Record folders under `path`: the folder itself when it holds run.json, else its
@@ -201,14 +262,19 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let code = super::for_verdicts(out.records.iter().map(|j| j.verdict));
     // Buffered: a comparison of many runs is many lines (stdout alone writes each line).
     let mut w = Console::new(std::io::BufWriter::new(std::io::stdout().lock()));
-    if args.json {
-        let _ = serde_json::to_writer_pretty(&mut w, &out);
-        let _ = writeln!(w);
-    } else {
-        let _ = write_table(&mut w, &out);
-    }
+    let _ = write_output(&mut w, &out, args.json);
     let _ = w.flush();
     Ok(code)
+}
+
+/// Print what [`evaluate`] decided: the table, or JSON with `json`.
+pub fn write_output<W: Write>(mut w: W, out: &Output, json: bool) -> std::io::Result<()> {
+    if json {
+        serde_json::to_writer_pretty(&mut w, out)?;
+        writeln!(w)
+    } else {
+        write_table(&mut w, out)
+    }
 }
 
 /// Everything `regulus compare` decides and writes (the histograms of `--plot-dir`), without
@@ -245,32 +311,55 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
     // Indexed runs of this very design, with a summary analysed with the default settings
     // and a plan snapshot, are judged from the index alone: their metrics are those the
     // folder would give and the index holds what the plan promised, so the one rule decides
-    // exactly as it would from the files. Every other indexed run is judged from its folder.
+    // exactly as it would from the files. When the index compared the run with this design
+    // already (from the record's own snapshot of it), the rule decides from that comparison.
+    // Every other indexed run is judged from its folder.
     if let Some(root) = &args.index {
-        let (fast, slow) = super::index::judging_rows(root, args.unit.as_deref(), &aopts)?
-            .into_iter()
-            .partition::<Vec<_>, _>(|r| {
-                r.design_sha256 == design_sha256 && r.metrics.is_some() && r.judging.is_some()
-            });
+        let rows = super::index::judging_rows(root, args.unit.as_deref(), &aopts, &design_sha256)?;
+        // Named as the folders would be (`<root>/<unit>/<folder>`), built on every core.
+        let prefix = record_prefix(root);
+        let (fast, slow): (Vec<_>, Vec<_>) = rows.into_iter().partition(|r| {
+            r.design_sha256 == design_sha256
+                && (r.prejudged.is_some() || (r.metrics.is_some() && r.judging.is_some()))
+        });
         for r in slow {
             dirs.push(root.join(&r.unit).join(&r.folder));
         }
-        // Judged on every core: each run's judgement is pure.
         offered.extend(crate::par::map(fast, |r| {
-            let record = root.join(&r.unit).join(&r.folder).display().to_string();
-            without_files(
-                FilelessRun {
-                    record,
-                    unit: r.unit,
-                    started_utc: r.started_utc,
-                    outcome: r.outcome,
-                    state: r.state,
-                    metrics: r.metrics,
-                    judging: r.judging,
-                    same_design: true,
+            let record = format!("{prefix}{}/{}", r.unit, r.folder);
+            match r.prejudged {
+                Some(p) => Offered {
+                    candidate: compare::Candidate {
+                        record: record.clone(),
+                        unit: r.unit.clone(),
+                        started_utc: r.started_utc,
+                        finished: compare::finished(r.outcome, Some(r.state)),
+                    },
+                    work: Work::Prejudged(Box::new(PrejudgedRun {
+                        record,
+                        unit: r.unit,
+                        outcome: r.outcome,
+                        state: r.state,
+                        prejudged: p,
+                    })),
                 },
-                &exp,
-            )
+                None => {
+                    let run = FilelessRun {
+                        record,
+                        unit: r.unit,
+                        started_utc: r.started_utc,
+                        outcome: r.outcome,
+                        state: r.state,
+                        metrics: r.metrics,
+                        judging: r.judging,
+                        same_design: true,
+                    };
+                    Offered {
+                        candidate: run.candidate(),
+                        work: Work::Fileless(Box::new(run)),
+                    }
+                }
+            }
         }));
     }
     let mut ao = aopts.clone();
@@ -290,13 +379,15 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
                 started_utc: rec.info.started_utc.clone(),
                 finished: compare::finished(rec.info.outcome, Some(rec.state)),
             },
-            values: KeyValues::from_metrics(&s.metrics),
-            judged: Judged {
-                record: r.display().to_string(),
-                unit: s.unit,
-                verdict: s.verdict,
-                reasons: s.reasons,
-                comparison: s.comparison,
+            work: Work::Done {
+                values: KeyValues::from_metrics(&s.metrics),
+                judged: Judged {
+                    record: r.display().to_string(),
+                    unit: s.unit,
+                    verdict: s.verdict,
+                    reasons: s.reasons,
+                    comparison: s.comparison,
+                },
             },
         });
     }
@@ -305,19 +396,20 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
     if let Some(url) = &args.store {
         for r in super::sync::store_metrics(url, args.unit.as_deref(), &aopts)? {
             let same_design = r.design_sha256 == design_sha256;
-            offered.push(without_files(
-                FilelessRun {
-                    record: r.run_id,
-                    unit: r.unit,
-                    started_utc: r.started_utc,
-                    outcome: r.outcome,
-                    state: r.state,
-                    metrics: r.metrics,
-                    judging: r.judging,
-                    same_design,
-                },
-                &exp,
-            ));
+            let run = FilelessRun {
+                record: r.run_id,
+                unit: r.unit,
+                started_utc: r.started_utc,
+                outcome: r.outcome,
+                state: r.state,
+                metrics: r.metrics.map(Box::new),
+                judging: r.judging,
+                same_design,
+            };
+            offered.push(Offered {
+                candidate: run.candidate(),
+                work: Work::Fileless(Box::new(run)),
+            });
         }
     }
     let selection = if args.every_record {
@@ -325,20 +417,27 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
     } else {
         Selection::LatestFinished
     };
-    let candidates: Vec<compare::Candidate> = offered.iter().map(|o| o.candidate.clone()).collect();
+    let (candidates, works): (Vec<compare::Candidate>, Vec<Work>) =
+        offered.into_iter().map(|o| (o.candidate, o.work)).unzip();
     let chosen = compare::choose_records(&candidates, selection);
-    let mut slots: Vec<Option<Offered>> = offered.into_iter().map(Some).collect();
+    // Only the chosen records are judged, on every core (each judgement is pure), in order.
+    let mut slots: Vec<Option<Work>> = works.into_iter().map(Some).collect();
+    let picked: Vec<(bool, Work)> = chosen
+        .judged
+        .iter()
+        .filter_map(|&i| Some((candidates.get(i)?.finished, slots.get_mut(i)?.take()?)))
+        .collect();
+    drop(slots);
     let mut judged = Vec::new();
     let mut units: Vec<(String, KeyValues)> = Vec::new();
-    for &i in &chosen.judged {
-        let Some(o) = slots.get_mut(i).and_then(Option::take) else {
-            continue;
-        };
+    for (finished, (j, values)) in
+        crate::par::map(picked, |(finished, w)| (finished, w.judge(&exp)))
+    {
         // Only units judged on a finished run enter the population statistics.
-        if o.candidate.finished {
-            units.push((o.judged.unit.clone(), o.values));
+        if finished {
+            units.push((j.unit.clone(), values));
         }
-        judged.push(o.judged);
+        judged.push(j);
     }
     let specs = vec![
         (KeyMetric::OutputVoltage, exp.vout.worst_case),
@@ -449,4 +548,18 @@ fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
         )?;
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn records_are_named_as_their_folder_paths_display() {
+        for root in ["records", "records/", "/srv/regulus/records", "./r", ""] {
+            let name = format!("{}{}/{}", record_prefix(Path::new(root)), "TLB-0001", "f_x");
+            let path = Path::new(root).join("TLB-0001").join("f_x");
+            assert_eq!(name, path.display().to_string(), "root {root:?}");
+        }
+    }
 }
