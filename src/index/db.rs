@@ -19,7 +19,7 @@ pub const INDEX_FILE: &str = ".regulus-index.sqlite";
 /// Schema version of the index (a different version is rebuilt). A change to how a run is
 /// compared with its design (the judgements the index keeps, `Prejudged`) comes with a new
 /// version, so they are made again from the folders.
-const SCHEMA: i64 = 4;
+const SCHEMA: i64 = 5;
 
 /// Where the index of a records root lives.
 pub fn index_path(records: &Path) -> PathBuf {
@@ -85,7 +85,10 @@ impl Index {
         if made_anew {
             conn.execute_batch(&format!(
                 "BEGIN IMMEDIATE;
+                 DROP VIEW IF EXISTS runs_all;
                  DROP TABLE IF EXISTS runs;
+                 DROP TABLE IF EXISTS run_data;
+                 -- what is read for many runs at once: small rows, several to a page
                  CREATE TABLE runs (
                    unit TEXT NOT NULL, folder TEXT NOT NULL, station TEXT, operator TEXT,
                    design_name TEXT NOT NULL, design_sha256 TEXT NOT NULL, plan_name TEXT NOT NULL,
@@ -96,11 +99,16 @@ impl Index {
                    run_mtime INTEGER NOT NULL, summary_mtime INTEGER NOT NULL,
                    -- read for every run by `compare --index` against the run's own design
                    prejudged_key TEXT, prejudged_bin BLOB,
+                   PRIMARY KEY (unit, folder));
+                 -- the large columns, read only for the runs that need them
+                 CREATE TABLE run_data (
+                   unit TEXT NOT NULL, folder TEXT NOT NULL,
                    judging_json TEXT, metrics_bin BLOB,
                    -- last: a row's large text goes to overflow pages that reading the
                    -- columns before it never touches
                    metrics_json TEXT,
                    PRIMARY KEY (unit, folder));
+                 CREATE VIEW runs_all AS SELECT * FROM runs JOIN run_data USING (unit, folder);
                  CREATE INDEX runs_by_design ON runs (design_sha256, started_utc);
                  CREATE INDEX runs_by_design_name ON runs (design_name, started_utc);
                  CREATE INDEX runs_by_started ON runs (started_utc);
@@ -145,10 +153,21 @@ impl Index {
         let tx = self.conn.transaction().map_err(sq)?;
         {
             let mut st = tx
-                .prepare_cached(&format!(
-                    "INSERT OR REPLACE INTO runs ({COLUMNS}) VALUES \
-                     (?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19,?20,?21,?22,?23,?24,?25,?26,?27)"
-                ))
+                .prepare_cached(
+                    "INSERT OR REPLACE INTO runs (unit, folder, station, operator, design_name, \
+                     design_sha256, plan_name, started_utc, ended_utc, outcome, state, verdict, \
+                     result, rows, output_voltage, load_regulation, output_resistance, \
+                     limit_current, short_circuit_current, short_circuit_drift, run_mtime, \
+                     summary_mtime, prejudged_key, prejudged_bin) VALUES (?1, ?2, ?3, ?4, ?5, \
+                     ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20, ?21, \
+                     ?22, ?23, ?24)",
+                )
+                .map_err(sq)?;
+            let mut data = tx
+                .prepare_cached(
+                    "INSERT OR REPLACE INTO run_data (unit, folder, judging_json, metrics_bin, \
+                     metrics_json) VALUES (?1, ?2, ?3, ?4, ?5)",
+                )
                 .map_err(sq)?;
             for r in runs {
                 let v = |k| r.values.get(k);
@@ -173,13 +192,18 @@ impl Index {
                     v(KeyMetric::LimitCurrent),
                     v(KeyMetric::ShortCircuitCurrent),
                     v(KeyMetric::ShortCircuitDrift),
-                    r.metrics_json,
                     r.run_mtime,
                     r.summary_mtime,
-                    r.judging_json,
-                    r.metrics_bin,
                     r.prejudged_key,
                     r.prejudged_bin,
+                ])
+                .map_err(sq)?;
+                data.execute(params![
+                    r.unit,
+                    r.folder,
+                    r.judging_json,
+                    r.metrics_bin,
+                    r.metrics_json,
                 ])
                 .map_err(sq)?;
             }
@@ -202,7 +226,9 @@ impl Index {
         }
         out.indexed = runs.len();
         let sq = self.sq();
-        self.conn.execute("DELETE FROM runs", []).map_err(&sq)?;
+        self.conn
+            .execute_batch("DELETE FROM runs; DELETE FROM run_data;")
+            .map_err(&sq)?;
         drop(sq);
         self.upsert(&runs)?;
         Ok(out)
@@ -267,12 +293,14 @@ impl Index {
         if !gone.is_empty() {
             let sq = self.sq();
             for f in gone {
-                self.conn
-                    .execute(
-                        "DELETE FROM runs WHERE unit = ?1 AND folder = ?2",
-                        [unit, f],
-                    )
-                    .map_err(&sq)?;
+                for table in ["runs", "run_data"] {
+                    self.conn
+                        .execute(
+                            &format!("DELETE FROM {table} WHERE unit = ?1 AND folder = ?2"),
+                            [unit, f],
+                        )
+                        .map_err(&sq)?;
+                }
             }
         }
         if !fresh.is_empty() {
@@ -284,7 +312,7 @@ impl Index {
     /// Runs matching a filter, oldest first.
     pub fn runs(&self, filter: &RunFilter) -> Result<Vec<IndexedRun>, IndexError> {
         let sq = self.sq();
-        let mut sql = format!("SELECT {COLUMNS} FROM runs WHERE 1=1");
+        let mut sql = format!("SELECT {COLUMNS} FROM runs_all WHERE 1=1");
         let mut args: Vec<String> = Vec::new();
         if let Some(u) = &filter.unit {
             args.push(u.clone());
@@ -317,7 +345,7 @@ impl Index {
         let mut st = self
             .conn
             .prepare(
-                "SELECT unit, folder, outcome, state, metrics_json FROM runs \
+                "SELECT unit, folder, outcome, state, metrics_json FROM runs_all \
                  WHERE metrics_json IS NOT NULL AND (?1 IS NULL OR unit = ?1) \
                  ORDER BY started_utc, unit, folder",
             )
@@ -362,11 +390,17 @@ impl Index {
         let sq = self.sq();
         let key = prejudged_key(design_sha256);
         // No ORDER BY: sorting in SQL would carry every row's blobs through the sort. A run
-        // with a usable judgement skips its metrics and judging columns.
+        // with a usable judgement skips its metrics and judging (in the other table).
         let mut st = self
             .conn
             .prepare(
-                "SELECT unit, folder, started_utc, design_sha256, outcome, state,                  CASE WHEN prejudged_key = ?2 THEN prejudged_bin END,                  CASE WHEN prejudged_key IS NOT ?2 OR prejudged_bin IS NULL THEN metrics_bin END,                  CASE WHEN prejudged_key IS NOT ?2 OR prejudged_bin IS NULL THEN judging_json END                  FROM runs WHERE (?1 IS NULL OR unit = ?1)",
+                "SELECT unit, folder, started_utc, design_sha256, outcome, state, \
+                 CASE WHEN prejudged_key = ?2 THEN prejudged_bin END, \
+                 CASE WHEN prejudged_key IS NOT ?2 OR prejudged_bin IS NULL THEN (SELECT \
+                 metrics_bin FROM run_data d WHERE d.unit = r.unit AND d.folder = r.folder) END, \
+                 CASE WHEN prejudged_key IS NOT ?2 OR prejudged_bin IS NULL THEN (SELECT \
+                 judging_json FROM run_data d WHERE d.unit = r.unit AND d.folder = r.folder) END \
+                 FROM runs r WHERE (?1 IS NULL OR unit = ?1)",
             )
             .map_err(&sq)?;
         let raw: Vec<Raw> = st
@@ -410,7 +444,9 @@ impl Index {
         let mut rows = crate::par::map(raw, parse);
         let mut notes = self
             .conn
-            .prepare("SELECT metrics_json, judging_json FROM runs WHERE unit = ?1 AND folder = ?2")
+            .prepare(
+                "SELECT metrics_json, judging_json FROM run_data WHERE unit = ?1 AND folder = ?2",
+            )
             .map_err(&sq)?;
         for (r, undecoded) in &mut rows {
             let lacking = match (&r.metrics, &r.judging) {
@@ -453,7 +489,7 @@ impl Index {
         let sq = self.sq();
         self.conn
             .query_row(
-                &format!("SELECT {COLUMNS} FROM runs WHERE unit = ?1 AND folder = ?2"),
+                &format!("SELECT {COLUMNS} FROM runs_all WHERE unit = ?1 AND folder = ?2"),
                 [unit, folder],
                 row_to_run,
             )
