@@ -4,7 +4,8 @@
 //! check of its folders plus an indexed query. `compare --index` is measured on the command's
 //! own path (`regulus::cli::compare::evaluate` on parsed arguments) over a second index of
 //! 100,000 runs copied from the two records `regulus demo` makes on the simulated bench (one in
-//! twenty a failing unit, which is diagnosed).
+//! twenty a failing unit, whose diagnosis the index made when the run was indexed), both as
+//! `evaluate` decides and with the table or the JSON printed (into a sink).
 
 #[path = "../tests/it/support/report.rs"]
 mod report_support;
@@ -83,6 +84,8 @@ fn bench_index(c: &mut Criterion) {
         .expect("the demo's failing unit")
         .clone();
     assert!(pass.judging_json.is_some() && fail.judging_json.is_some());
+    // Judged against their own design when indexed: what compare --index reads for them.
+    assert!(pass.prejudged_bin.is_some() && fail.prejudged_bin.is_some());
     let copies: Vec<_> = (0..RUNS - demo_runs.len())
         .map(|k| {
             let mut r = if k % 20 == 0 {
@@ -138,6 +141,23 @@ fn bench_index(c: &mut Criterion) {
             })
         },
     );
+    for (json, name) in [
+        (
+            false,
+            "compare --index printed as the table (the whole command)",
+        ),
+        (true, "compare --index printed as JSON (the whole command)"),
+    ] {
+        g.bench_function(name, |b| {
+            b.iter(|| {
+                let out = regulus::cli::compare::evaluate(black_box(&args)).expect("compare");
+                // Buffered as the command prints, into a sink instead of the terminal.
+                let mut w = std::io::BufWriter::new(std::io::sink());
+                regulus::cli::compare::write_output(&mut w, &out, json).expect("print");
+                out.records.len()
+            })
+        });
+    }
     g.finish();
 }
 

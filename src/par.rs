@@ -17,15 +17,18 @@ pub fn map<T: Send, U: Send>(items: Vec<T>, f: impl Fn(T) -> U + Sync) -> Vec<U>
         parts.push(items.by_ref().take(chunk).collect());
     }
     let f = &f;
+    let n = parts.iter().map(Vec::len).sum();
     std::thread::scope(|s| {
         let handles: Vec<_> = parts
             .into_iter()
             .map(|part| s.spawn(move || part.into_iter().map(f).collect::<Vec<U>>()))
             .collect();
-        handles
-            .into_iter()
-            .flat_map(|h| h.join().unwrap_or_else(|p| std::panic::resume_unwind(p)))
-            .collect()
+        // Room for every result at once: no growing copies of a large result.
+        let mut out = Vec::with_capacity(n);
+        for h in handles {
+            out.extend(h.join().unwrap_or_else(|p| std::panic::resume_unwind(p)));
+        }
+        out
     })
 }
 

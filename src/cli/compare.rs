@@ -76,11 +76,61 @@ pub struct Output {
     pub population: compare::Population,
 }
 
-/// A record offered for judging, judged.
+/// A record offered for judging, and how it is judged once chosen (only the records that
+/// stand for a unit are judged).
 struct Offered {
     candidate: compare::Candidate,
-    judged: Judged,
-    values: KeyValues,
+    work: Work,
+}
+
+enum Work {
+    /// Judged from its folder already (its candidate needed the folder).
+    Done { judged: Judged, values: KeyValues },
+    /// To judge from metrics without the folder.
+    Fileless(Box<FilelessRun>),
+    /// To judge from the judgement the index made against this design.
+    Prejudged(Box<PrejudgedRun>),
+}
+
+impl Work {
+    fn judge(self, exp: &compare::DesignExpectation) -> (Judged, KeyValues) {
+        match self {
+            Work::Done { judged, values } => (judged, values),
+            Work::Fileless(r) => without_files(*r, exp),
+            Work::Prejudged(r) => prejudged(*r),
+        }
+    }
+}
+
+/// An indexed run with the judgement the index made against the design it is judged against.
+struct PrejudgedRun {
+    record: String,
+    unit: String,
+    outcome: crate::record::Outcome,
+    state: crate::record::RecordState,
+    prejudged: crate::index::Prejudged,
+}
+
+/// Judge an indexed run by the one rule from the comparison and the missing metrics the index
+/// made against this very design (as [`without_files`] decides from the metrics).
+fn prejudged(r: PrejudgedRun) -> (Judged, KeyValues) {
+    let p = r.prejudged;
+    let facts = compare::RecordFacts {
+        outcome: r.outcome,
+        state: Some(r.state),
+        reason: p.reason.as_deref(),
+    };
+    let judgement = compare::judge(facts, Some(&p.comparison), &p.missing);
+    (
+        Judged {
+            record: r.record,
+            unit: r.unit,
+            verdict: judgement.verdict,
+            reasons: judgement.reasons,
+            comparison: Some(p.comparison),
+        },
+        p.values,
+    )
 }
 
 /// A run judged from what an index or a store holds, without its folder.
@@ -90,18 +140,29 @@ struct FilelessRun {
     started_utc: String,
     outcome: crate::record::Outcome,
     state: crate::record::RecordState,
-    metrics: Option<crate::analysis::Metrics>,
+    metrics: Option<Box<crate::analysis::Metrics>>,
     judging: Option<compare::Judging>,
     /// The run was analysed against the design it is judged against.
     same_design: bool,
 }
 
+impl FilelessRun {
+    fn candidate(&self) -> compare::Candidate {
+        compare::Candidate {
+            record: self.record.clone(),
+            unit: self.unit.clone(),
+            started_utc: self.started_utc.clone(),
+            finished: compare::finished(self.outcome, Some(self.state)),
+        }
+    }
+}
+
 /// Judge a run by the one rule from its metrics and what its plan promised. Without its
 /// metrics every promised metric is missing; without knowing what its plan promised the run
 /// cannot pass (INCOMPLETE, with the reason).
-fn without_files(r: FilelessRun, exp: &compare::DesignExpectation) -> Offered {
+fn without_files(r: FilelessRun, exp: &compare::DesignExpectation) -> (Judged, KeyValues) {
     let summarised = r.metrics.is_some();
-    let m = r.metrics.unwrap_or_default();
+    let m = r.metrics.map(|m| *m).unwrap_or_default();
     let known = r.judging.is_some();
     let j = r.judging.unwrap_or_default();
     let facts = compare::RecordFacts {
@@ -133,22 +194,22 @@ fn without_files(r: FilelessRun, exp: &compare::DesignExpectation) -> Offered {
             "its metrics were analysed against the design it ran with, not this one".to_string(),
         );
     }
-    Offered {
-        candidate: compare::Candidate {
-            record: r.record.clone(),
-            unit: r.unit.clone(),
-            started_utc: r.started_utc,
-            finished: compare::finished(r.outcome, Some(r.state)),
-        },
-        values: KeyValues::from_metrics(&m),
-        judged: Judged {
+    (
+        Judged {
             record: r.record,
             unit: r.unit,
             verdict: judgement.verdict,
             reasons: judgement.reasons,
             comparison,
         },
-    }
+        KeyValues::from_metrics(&m),
+    )
+}
+
+/// What precedes `<unit>/<folder>` in the name of a record under `root`: the name is then
+/// the one `root.join(unit).join(folder)` displays, without building a path per record.
+fn record_prefix(root: &Path) -> String {
+    root.join("").display().to_string()
 }
 
 /// Record folders under `path`: the folder itself when it holds run.json, else its
@@ -201,14 +262,176 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
     let code = super::for_verdicts(out.records.iter().map(|j| j.verdict));
     // Buffered: a comparison of many runs is many lines (stdout alone writes each line).
     let mut w = Console::new(std::io::BufWriter::new(std::io::stdout().lock()));
-    if args.json {
-        let _ = serde_json::to_writer_pretty(&mut w, &out);
-        let _ = writeln!(w);
-    } else {
-        let _ = write_table(&mut w, &out);
-    }
+    let _ = write_output(&mut w, &out, args.json);
     let _ = w.flush();
+    // The process ends here: what was judged is left to its exit, not freed piece by piece
+    // (a comparison of many runs holds many small allocations).
+    std::mem::forget(out);
     Ok(code)
+}
+
+/// Print what [`evaluate`] decided: the table, or JSON with `json` (pretty, as
+/// `serde_json::to_writer_pretty` writes it, and a newline).
+pub fn write_output<W: Write>(mut w: W, out: &Output, json: bool) -> std::io::Result<()> {
+    if json {
+        write_json(&mut w, out)
+    } else {
+        write_table(&mut w, out)
+    }
+}
+
+/// Records rendered per part, and parts per batch for each core (bounds the memory held).
+const PART: usize = 1024;
+
+/// `render` over the records on every core, a batch at a time, written in order.
+fn write_records<W: Write>(
+    w: &mut W,
+    records: &[Judged],
+    render: impl Fn(&mut Vec<u8>, usize, &Judged) -> std::io::Result<()> + Sync,
+) -> std::io::Result<()> {
+    let threads = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let mut first = 0;
+    for batch in records.chunks(PART * threads.max(1)) {
+        let parts: Vec<(usize, &[Judged])> = batch
+            .chunks(PART)
+            .enumerate()
+            .map(|(k, c)| (first + k * PART, c))
+            .collect();
+        first += batch.len();
+        let rendered = crate::par::map(parts, |(start, part)| {
+            let mut buf = Vec::with_capacity(part.len() * 512);
+            for (i, j) in part.iter().enumerate() {
+                render(&mut buf, start + i, j)?;
+            }
+            Ok::<_, std::io::Error>(buf)
+        });
+        for r in rendered {
+            w.write_all(&r?)?;
+        }
+    }
+    Ok(())
+}
+
+/// `value` pretty-printed as JSON nested `depth` levels deep: serde_json's pretty form
+/// (two spaces a level) as it prints inside `depth` enclosing objects or arrays.
+fn pretty_at<T: serde::Serialize + ?Sized>(
+    buf: &mut Vec<u8>,
+    value: &T,
+    depth: usize,
+) -> std::io::Result<()> {
+    let mut ser = serde_json::Serializer::with_formatter(
+        buf,
+        Nested {
+            level: depth,
+            has_value: false,
+        },
+    );
+    value.serialize(&mut ser)?;
+    Ok(())
+}
+
+/// serde_json's pretty formatter (`PrettyFormatter` with its default two-space indent),
+/// starting `level` levels deep.
+struct Nested {
+    level: usize,
+    has_value: bool,
+}
+
+impl Nested {
+    fn indent<W: ?Sized + Write>(&self, w: &mut W) -> std::io::Result<()> {
+        for _ in 0..self.level {
+            w.write_all(b"  ")?;
+        }
+        Ok(())
+    }
+    fn open<W: ?Sized + Write>(&mut self, w: &mut W, bracket: &[u8]) -> std::io::Result<()> {
+        self.level += 1;
+        self.has_value = false;
+        w.write_all(bracket)
+    }
+    fn close<W: ?Sized + Write>(&mut self, w: &mut W, bracket: &[u8]) -> std::io::Result<()> {
+        self.level = self.level.saturating_sub(1);
+        if self.has_value {
+            w.write_all(b"\n")?;
+            self.indent(w)?;
+        }
+        w.write_all(bracket)
+    }
+    fn item<W: ?Sized + Write>(&mut self, w: &mut W, first: bool) -> std::io::Result<()> {
+        w.write_all(if first { b"\n" } else { b",\n" })?;
+        self.indent(w)
+    }
+}
+
+impl serde_json::ser::Formatter for Nested {
+    fn begin_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.open(w, b"[")
+    }
+    fn end_array<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.close(w, b"]")
+    }
+    fn begin_array_value<W: ?Sized + Write>(
+        &mut self,
+        w: &mut W,
+        first: bool,
+    ) -> std::io::Result<()> {
+        self.item(w, first)
+    }
+    fn end_array_value<W: ?Sized + Write>(&mut self, _w: &mut W) -> std::io::Result<()> {
+        self.has_value = true;
+        Ok(())
+    }
+    fn begin_object<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.open(w, b"{")
+    }
+    fn end_object<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        self.close(w, b"}")
+    }
+    fn begin_object_key<W: ?Sized + Write>(
+        &mut self,
+        w: &mut W,
+        first: bool,
+    ) -> std::io::Result<()> {
+        self.item(w, first)
+    }
+    fn begin_object_value<W: ?Sized + Write>(&mut self, w: &mut W) -> std::io::Result<()> {
+        w.write_all(b": ")
+    }
+    fn end_object_value<W: ?Sized + Write>(&mut self, _w: &mut W) -> std::io::Result<()> {
+        self.has_value = true;
+        Ok(())
+    }
+}
+
+/// The JSON of [`Output`] byte for byte as `serde_json::to_writer_pretty` writes it (and a
+/// newline), with the records rendered on every core.
+fn write_json<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
+    let mut head = Vec::new();
+    head.extend_from_slice(b"{\n  \"design\": ");
+    pretty_at(&mut head, &out.design, 1)?;
+    head.extend_from_slice(b",\n  \"offered\": ");
+    pretty_at(&mut head, &out.offered, 1)?;
+    head.extend_from_slice(b",\n  \"units\": ");
+    pretty_at(&mut head, &out.units, 1)?;
+    head.extend_from_slice(b",\n  \"records\": ");
+    w.write_all(&head)?;
+    if out.records.is_empty() {
+        w.write_all(b"[]")?;
+    } else {
+        w.write_all(b"[")?;
+        write_records(&mut w, &out.records, |buf, i, j| {
+            buf.extend_from_slice(if i == 0 { b"\n    " } else { b",\n    " });
+            pretty_at(buf, j, 2)
+        })?;
+        w.write_all(b"\n  ]")?;
+    }
+    let mut tail = Vec::new();
+    tail.extend_from_slice(b",\n  \"left_out\": ");
+    pretty_at(&mut tail, &out.left_out, 1)?;
+    tail.extend_from_slice(b",\n  \"population\": ");
+    pretty_at(&mut tail, &out.population, 1)?;
+    tail.extend_from_slice(b"\n}\n");
+    w.write_all(&tail)
 }
 
 /// Everything `regulus compare` decides and writes (the histograms of `--plot-dir`), without
@@ -245,32 +468,55 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
     // Indexed runs of this very design, with a summary analysed with the default settings
     // and a plan snapshot, are judged from the index alone: their metrics are those the
     // folder would give and the index holds what the plan promised, so the one rule decides
-    // exactly as it would from the files. Every other indexed run is judged from its folder.
+    // exactly as it would from the files. When the index compared the run with this design
+    // already (from the record's own snapshot of it), the rule decides from that comparison.
+    // Every other indexed run is judged from its folder.
     if let Some(root) = &args.index {
-        let (fast, slow) = super::index::judging_rows(root, args.unit.as_deref(), &aopts)?
-            .into_iter()
-            .partition::<Vec<_>, _>(|r| {
-                r.design_sha256 == design_sha256 && r.metrics.is_some() && r.judging.is_some()
-            });
+        let rows = super::index::judging_rows(root, args.unit.as_deref(), &aopts, &design_sha256)?;
+        // Named as the folders would be (`<root>/<unit>/<folder>`), built on every core.
+        let prefix = record_prefix(root);
+        let (fast, slow): (Vec<_>, Vec<_>) = rows.into_iter().partition(|r| {
+            r.design_sha256 == design_sha256
+                && (r.prejudged.is_some() || (r.metrics.is_some() && r.judging.is_some()))
+        });
         for r in slow {
             dirs.push(root.join(&r.unit).join(&r.folder));
         }
-        // Judged on every core: each run's judgement is pure.
         offered.extend(crate::par::map(fast, |r| {
-            let record = root.join(&r.unit).join(&r.folder).display().to_string();
-            without_files(
-                FilelessRun {
-                    record,
-                    unit: r.unit,
-                    started_utc: r.started_utc,
-                    outcome: r.outcome,
-                    state: r.state,
-                    metrics: r.metrics,
-                    judging: r.judging,
-                    same_design: true,
+            let record = format!("{prefix}{}/{}", r.unit, r.folder);
+            match r.prejudged {
+                Some(p) => Offered {
+                    candidate: compare::Candidate {
+                        record: record.clone(),
+                        unit: r.unit.clone(),
+                        started_utc: r.started_utc,
+                        finished: compare::finished(r.outcome, Some(r.state)),
+                    },
+                    work: Work::Prejudged(Box::new(PrejudgedRun {
+                        record,
+                        unit: r.unit,
+                        outcome: r.outcome,
+                        state: r.state,
+                        prejudged: p,
+                    })),
                 },
-                &exp,
-            )
+                None => {
+                    let run = FilelessRun {
+                        record,
+                        unit: r.unit,
+                        started_utc: r.started_utc,
+                        outcome: r.outcome,
+                        state: r.state,
+                        metrics: r.metrics,
+                        judging: r.judging,
+                        same_design: true,
+                    };
+                    Offered {
+                        candidate: run.candidate(),
+                        work: Work::Fileless(Box::new(run)),
+                    }
+                }
+            }
         }));
     }
     let mut ao = aopts.clone();
@@ -290,13 +536,15 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
                 started_utc: rec.info.started_utc.clone(),
                 finished: compare::finished(rec.info.outcome, Some(rec.state)),
             },
-            values: KeyValues::from_metrics(&s.metrics),
-            judged: Judged {
-                record: r.display().to_string(),
-                unit: s.unit,
-                verdict: s.verdict,
-                reasons: s.reasons,
-                comparison: s.comparison,
+            work: Work::Done {
+                values: KeyValues::from_metrics(&s.metrics),
+                judged: Judged {
+                    record: r.display().to_string(),
+                    unit: s.unit,
+                    verdict: s.verdict,
+                    reasons: s.reasons,
+                    comparison: s.comparison,
+                },
             },
         });
     }
@@ -305,19 +553,20 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
     if let Some(url) = &args.store {
         for r in super::sync::store_metrics(url, args.unit.as_deref(), &aopts)? {
             let same_design = r.design_sha256 == design_sha256;
-            offered.push(without_files(
-                FilelessRun {
-                    record: r.run_id,
-                    unit: r.unit,
-                    started_utc: r.started_utc,
-                    outcome: r.outcome,
-                    state: r.state,
-                    metrics: r.metrics,
-                    judging: r.judging,
-                    same_design,
-                },
-                &exp,
-            ));
+            let run = FilelessRun {
+                record: r.run_id,
+                unit: r.unit,
+                started_utc: r.started_utc,
+                outcome: r.outcome,
+                state: r.state,
+                metrics: r.metrics.map(Box::new),
+                judging: r.judging,
+                same_design,
+            };
+            offered.push(Offered {
+                candidate: run.candidate(),
+                work: Work::Fileless(Box::new(run)),
+            });
         }
     }
     let selection = if args.every_record {
@@ -325,20 +574,27 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
     } else {
         Selection::LatestFinished
     };
-    let candidates: Vec<compare::Candidate> = offered.iter().map(|o| o.candidate.clone()).collect();
+    let (candidates, works): (Vec<compare::Candidate>, Vec<Work>) =
+        offered.into_iter().map(|o| (o.candidate, o.work)).unzip();
     let chosen = compare::choose_records(&candidates, selection);
-    let mut slots: Vec<Option<Offered>> = offered.into_iter().map(Some).collect();
+    // Only the chosen records are judged, on every core (each judgement is pure), in order.
+    let mut slots: Vec<Option<Work>> = works.into_iter().map(Some).collect();
+    let picked: Vec<(bool, Work)> = chosen
+        .judged
+        .iter()
+        .filter_map(|&i| Some((candidates.get(i)?.finished, slots.get_mut(i)?.take()?)))
+        .collect();
+    drop(slots);
     let mut judged = Vec::new();
     let mut units: Vec<(String, KeyValues)> = Vec::new();
-    for &i in &chosen.judged {
-        let Some(o) = slots.get_mut(i).and_then(Option::take) else {
-            continue;
-        };
+    for (finished, (j, values)) in
+        crate::par::map(picked, |(finished, w)| (finished, w.judge(&exp)))
+    {
         // Only units judged on a finished run enter the population statistics.
-        if o.candidate.finished {
-            units.push((o.judged.unit.clone(), o.values));
+        if finished {
+            units.push((j.unit.clone(), values));
         }
-        judged.push(o.judged);
+        judged.push(j);
     }
     let specs = vec![
         (KeyMetric::OutputVoltage, exp.vout.worst_case),
@@ -379,6 +635,40 @@ pub fn evaluate(args: &Args) -> anyhow::Result<Output> {
     Ok(out)
 }
 
+/// The table's lines of one judged record.
+fn write_judged(mut w: impl Write, j: &Judged) -> std::io::Result<()> {
+    let checks: Vec<String> = j
+        .comparison
+        .iter()
+        .flat_map(|c| c.checks.iter())
+        .map(|c| {
+            format!(
+                "{} {} ({})",
+                c.metric,
+                crate::quantity::eng(c.measured, &c.unit),
+                c.verdict.as_str()
+            )
+        })
+        .collect();
+    writeln!(
+        w,
+        "{:<10} {}  {}: {}",
+        j.verdict.map(|v| v.label()).unwrap_or("-"),
+        j.unit,
+        j.record,
+        checks.join(", ")
+    )?;
+    if j.verdict != Some(Verdict::Pass) {
+        for r in &j.reasons {
+            writeln!(w, "           because: {r}")?;
+        }
+    }
+    for cause in j.comparison.iter().flat_map(|c| c.likely_causes.iter()) {
+        writeln!(w, "           likely cause: {cause}")?;
+    }
+    Ok(())
+}
+
 fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
     writeln!(w, "design {}", out.design)?;
     writeln!(
@@ -389,37 +679,7 @@ fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
         out.offered,
         out.left_out.len()
     )?;
-    for j in &out.records {
-        let checks: Vec<String> = j
-            .comparison
-            .iter()
-            .flat_map(|c| c.checks.iter())
-            .map(|c| {
-                format!(
-                    "{} {} ({})",
-                    c.metric,
-                    crate::quantity::eng(c.measured, &c.unit),
-                    c.verdict.as_str()
-                )
-            })
-            .collect();
-        writeln!(
-            w,
-            "{:<10} {}  {}: {}",
-            j.verdict.map(|v| v.label()).unwrap_or("-"),
-            j.unit,
-            j.record,
-            checks.join(", ")
-        )?;
-        if j.verdict != Some(Verdict::Pass) {
-            for r in &j.reasons {
-                writeln!(w, "           because: {r}")?;
-            }
-        }
-        for cause in j.comparison.iter().flat_map(|c| c.likely_causes.iter()) {
-            writeln!(w, "           likely cause: {cause}")?;
-        }
-    }
+    write_records(&mut w, &out.records, |buf, _, j| write_judged(buf, j))?;
     for l in &out.left_out {
         writeln!(w, "left out  {}  {}: {}", l.unit, l.record, l.why)?;
     }
@@ -449,4 +709,118 @@ fn write_table<W: Write>(mut w: W, out: &Output) -> std::io::Result<()> {
         )?;
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn judged(k: usize) -> Judged {
+        let check = compare::Check {
+            metric: "output_voltage".into(),
+            unit: "V".into(),
+            measured: 20.0 + k as f64 * 1e-4,
+            nominal: 20.0,
+            worst_case: compare::Limits {
+                min: 19.2,
+                max: 20.8,
+            },
+            monte_carlo_band: compare::Limits {
+                min: 19.6,
+                max: 20.4,
+            },
+            verdict: Verdict::Pass,
+            margin: 0.8,
+            margin_percent: 4.0,
+            deviation_percent: 0.0,
+            note: (k % 3 == 0).then(|| "a \"quoted\"\nnote".to_string()),
+        };
+        Judged {
+            record: format!("records/U-{k}/f"),
+            unit: format!("U-{k}"),
+            verdict: [None, Some(Verdict::Pass), Some(Verdict::Fail)][k % 3],
+            reasons: (0..k % 2).map(|r| format!("reason {r}")).collect(),
+            comparison: (k % 4 != 1).then(|| compare::Comparison {
+                design_name: "lab".into(),
+                checks: vec![check.clone(), check],
+                verdict: Verdict::Pass,
+                likely_causes: vec!["a cause".into()],
+                not_measured: Vec::new(),
+            }),
+        }
+    }
+
+    fn output(n: usize) -> Output {
+        let records: Vec<Judged> = (0..n).map(judged).collect();
+        let units: Vec<(String, KeyValues)> = (0..n)
+            .map(|k| {
+                let v = KeyMetric::ALL
+                    .iter()
+                    .map(|m| (*m, Some(1.0 + k as f64 * 0.01)));
+                (format!("U-{k}"), KeyValues(v.collect()))
+            })
+            .collect();
+        let spec = compare::Limits { min: 0.5, max: 1.5 };
+        Output {
+            design: "lab \u{b5} \"demo\"".into(),
+            offered: n + 1,
+            units: n,
+            records,
+            left_out: vec![compare::LeftOut {
+                record: "records/U-0/e".into(),
+                unit: "U-0".into(),
+                why: "an earlier run".into(),
+            }],
+            population: compare::population_with_floors(
+                &units,
+                &[(KeyMetric::OutputVoltage, spec)],
+                3.0,
+                &[],
+            ),
+        }
+    }
+
+    #[test]
+    fn json_is_what_serde_json_pretty_prints() {
+        // No record, one, and more than a part of them (rendered on several cores).
+        for n in [0, 1, 2, PART + 3] {
+            let out = output(n);
+            let mut want = serde_json::to_vec_pretty(&out).unwrap();
+            want.push(b'\n');
+            let mut got = Vec::new();
+            write_output(&mut got, &out, true).unwrap();
+            assert!(
+                got == want,
+                "{n} records:\n{}",
+                String::from_utf8_lossy(&got)
+            );
+        }
+    }
+
+    #[test]
+    fn the_table_lists_every_record_in_order() {
+        let out = output(PART + 3);
+        let mut got = Vec::new();
+        write_output(&mut got, &out, false).unwrap();
+        let text = String::from_utf8(got).unwrap();
+        let mut want = String::new();
+        for j in &out.records {
+            let mut b = Vec::new();
+            write_judged(&mut b, j).unwrap();
+            want.push_str(&String::from_utf8(b).unwrap());
+        }
+        assert!(text.contains(&want));
+        assert!(text.starts_with("design lab"), "{text}");
+        assert!(text.contains("left out  U-0  records/U-0/e: an earlier run"));
+        assert!(text.contains("output_voltage"));
+    }
+
+    #[test]
+    fn records_are_named_as_their_folder_paths_display() {
+        for root in ["records", "records/", "/srv/regulus/records", "./r", ""] {
+            let name = format!("{}{}/{}", record_prefix(Path::new(root)), "TLB-0001", "f_x");
+            let path = Path::new(root).join("TLB-0001").join("f_x");
+            assert_eq!(name, path.display().to_string(), "root {root:?}");
+        }
+    }
 }

@@ -78,12 +78,14 @@ pub fn history(records: &Path, unit: &str, opts: &AnalysisOptions) -> anyhow::Re
 }
 
 /// The runs of a records folder's index (all, or one unit's, whose rows are first checked
-/// against its folders) as `compare --index` judges them. The index holds metrics analysed
-/// with the default settings, so other settings are refused.
+/// against its folders) as `compare --index` judges them against the design whose content
+/// hash is `design_sha256`. The index holds metrics analysed with the default settings, so
+/// other settings are refused.
 pub fn judging_rows(
     records: &Path,
     unit: Option<&str>,
     opts: &AnalysisOptions,
+    design_sha256: &str,
 ) -> anyhow::Result<Vec<index::JudgingRow>> {
     if *opts != AnalysisOptions::default() {
         return Err(usage(
@@ -101,5 +103,5 @@ pub fn judging_rows(
     if let Some(u) = unit {
         idx.refresh_unit(u)?;
     }
-    Ok(idx.judging_rows(unit)?)
+    Ok(idx.judging_rows(unit, design_sha256)?)
 }

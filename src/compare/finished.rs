@@ -249,6 +249,26 @@ pub struct Judging {
     pub reason: Option<String>,
 }
 
+/// A record's metrics against a design and its plan's limits: the design's checks (with the
+/// likely causes) and the plan's limit checks; the comparison's verdict is the worst of them.
+/// What [`judge_metrics`] hands the one rule, and what an index keeps per run so the rule can
+/// decide again without the metrics.
+pub fn compare_with_limits(
+    m: &Metrics,
+    exp: &DesignExpectation,
+    limits: &MetricLimits,
+) -> Comparison {
+    let mut c = super::compare(m, exp);
+    c.checks.extend(super::plan_limit_checks(m, limits));
+    c.verdict = c
+        .checks
+        .iter()
+        .map(|ch| ch.verdict)
+        .max()
+        .unwrap_or(Verdict::Pass);
+    c
+}
+
 /// A record's metrics judged as its summary judges them: the design's checks and the plan's
 /// limit checks (the comparison's verdict is the worst of them), the promised metrics that
 /// are missing, and the one rule over all of it with the record's facts. `exp` is `None`
@@ -262,17 +282,7 @@ pub fn judge_metrics(
     promised: &[Promised],
     facts: RecordFacts<'_>,
 ) -> (Option<Comparison>, Vec<Missing>, Judgement) {
-    let comparison = exp.map(|e| {
-        let mut c = super::compare(m, e);
-        c.checks.extend(super::plan_limit_checks(m, limits));
-        c.verdict = c
-            .checks
-            .iter()
-            .map(|ch| ch.verdict)
-            .max()
-            .unwrap_or(Verdict::Pass);
-        c
-    });
+    let comparison = exp.map(|e| compare_with_limits(m, e, limits));
     let missing = missing_metrics(m, promised);
     let judgement = judge(facts, comparison.as_ref(), &missing);
     (comparison, missing, judgement)

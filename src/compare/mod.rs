@@ -12,8 +12,8 @@ mod drift;
 mod finished;
 pub use drift::*;
 pub use finished::{
-    finished, judge, judge_metrics, missing_metrics, promised_metrics, record_verdict, Judgement,
-    Judging, Missing, Promised, RecordFacts,
+    compare_with_limits, finished, judge, judge_metrics, missing_metrics, promised_metrics,
+    record_verdict, Judgement, Judging, Missing, Promised, RecordFacts,
 };
 mod design;
 pub use design::*;

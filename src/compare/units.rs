@@ -48,12 +48,15 @@ pub fn choose_records(candidates: &[Candidate], selection: Selection) -> Chosen 
         out.judged = (0..candidates.len()).collect();
         return out;
     }
-    // Each unit's candidates, in one pass (units in name order, indices in order).
-    let mut by_unit: std::collections::BTreeMap<&str, Vec<usize>> = Default::default();
-    for (i, c) in candidates.iter().enumerate() {
-        by_unit.entry(c.unit.as_str()).or_default().push(i);
-    }
-    for (unit, mine) in by_unit {
+    // Each unit's candidates: the indices sorted by unit (a stable sort keeps each unit's in
+    // order), then taken unit by unit in name order.
+    let mut order: Vec<usize> = (0..candidates.len()).collect();
+    order.sort_by(|&a, &b| candidates[a].unit.cmp(&candidates[b].unit));
+    for mine in order.chunk_by(|&a, &b| candidates[a].unit == candidates[b].unit) {
+        let Some(&first) = mine.first() else {
+            continue;
+        };
+        let unit = candidates[first].unit.as_str();
         let latest = |pick: &dyn Fn(&Candidate) -> bool| {
             mine.iter()
                 .copied()
@@ -71,7 +74,7 @@ pub fn choose_records(candidates: &[Candidate], selection: Selection) -> Chosen 
             },
         };
         out.judged.push(chosen);
-        for &i in &mine {
+        for &i in mine {
             if i == chosen {
                 continue;
             }

@@ -3,6 +3,7 @@
 //! folders, and the queries history, compare and the dashboard use. Several processes may
 //! write at once (WAL journal, a busy timeout).
 
+use super::prejudged::{prejudged_key, Expectations, Prejudged};
 use super::scan::{mtime_ns, scan_record};
 use super::types::{IndexError, IndexedRun, JudgingRow, MetricsRow};
 use crate::compare::Judging;
@@ -15,8 +16,11 @@ use std::time::Duration;
 
 /// File name of the index in a records root.
 pub const INDEX_FILE: &str = ".regulus-index.sqlite";
-/// Schema version of the index (a different version is rebuilt).
-const SCHEMA: i64 = 4;
+/// Schema version of the index (a different version is rebuilt). A change to how a run is
+/// compared with its design (the judgements the index keeps, `Prejudged`) comes with a new
+/// version, so they are made again from the folders. 6: the metrics gained the pre-flight
+/// reading, and the diagnosis changed.
+const SCHEMA: i64 = 6;
 
 /// Where the index of a records root lives.
 pub fn index_path(records: &Path) -> PathBuf {
@@ -50,7 +54,7 @@ pub struct Index {
 const COLUMNS: &str = "unit, folder, station, operator, design_name, design_sha256, plan_name, \
 started_utc, ended_utc, outcome, state, verdict, result, rows, output_voltage, load_regulation, \
 output_resistance, limit_current, short_circuit_current, short_circuit_drift, metrics_json, \
-run_mtime, summary_mtime, judging_json, metrics_bin";
+run_mtime, summary_mtime, judging_json, metrics_bin, prejudged_key, prejudged_bin";
 
 impl Index {
     /// Open (creating when missing) the index of a records root; the root must exist.
@@ -82,7 +86,10 @@ impl Index {
         if made_anew {
             conn.execute_batch(&format!(
                 "BEGIN IMMEDIATE;
+                 DROP VIEW IF EXISTS runs_all;
                  DROP TABLE IF EXISTS runs;
+                 DROP TABLE IF EXISTS run_data;
+                 -- what is read for many runs at once: small rows, several to a page
                  CREATE TABLE runs (
                    unit TEXT NOT NULL, folder TEXT NOT NULL, station TEXT, operator TEXT,
                    design_name TEXT NOT NULL, design_sha256 TEXT NOT NULL, plan_name TEXT NOT NULL,
@@ -91,11 +98,18 @@ impl Index {
                    output_voltage REAL, load_regulation REAL, output_resistance REAL,
                    limit_current REAL, short_circuit_current REAL, short_circuit_drift REAL,
                    run_mtime INTEGER NOT NULL, summary_mtime INTEGER NOT NULL,
+                   -- read for every run by `compare --index` against the run's own design
+                   prejudged_key TEXT, prejudged_bin BLOB,
+                   PRIMARY KEY (unit, folder));
+                 -- the large columns, read only for the runs that need them
+                 CREATE TABLE run_data (
+                   unit TEXT NOT NULL, folder TEXT NOT NULL,
                    judging_json TEXT, metrics_bin BLOB,
                    -- last: a row's large text goes to overflow pages that reading the
                    -- columns before it never touches
                    metrics_json TEXT,
                    PRIMARY KEY (unit, folder));
+                 CREATE VIEW runs_all AS SELECT * FROM runs JOIN run_data USING (unit, folder);
                  CREATE INDEX runs_by_design ON runs (design_sha256, started_utc);
                  CREATE INDEX runs_by_design_name ON runs (design_name, started_utc);
                  CREATE INDEX runs_by_started ON runs (started_utc);
@@ -126,7 +140,7 @@ impl Index {
 
     /// Add or replace the row of one record folder.
     pub fn add_record(&mut self, dir: &Path) -> Result<(), IndexError> {
-        let run = scan_record(dir)?;
+        let run = scan_record(dir, &mut Expectations::default())?;
         self.upsert(&[run])
     }
 
@@ -140,10 +154,21 @@ impl Index {
         let tx = self.conn.transaction().map_err(sq)?;
         {
             let mut st = tx
-                .prepare_cached(&format!(
-                    "INSERT OR REPLACE INTO runs ({COLUMNS}) VALUES \
-                     (?1,?2,?3,?4,?5,?6,?7,?8,?9,?10,?11,?12,?13,?14,?15,?16,?17,?18,?19,?20,?21,?22,?23,?24,?25)"
-                ))
+                .prepare_cached(
+                    "INSERT OR REPLACE INTO runs (unit, folder, station, operator, design_name, \
+                     design_sha256, plan_name, started_utc, ended_utc, outcome, state, verdict, \
+                     result, rows, output_voltage, load_regulation, output_resistance, \
+                     limit_current, short_circuit_current, short_circuit_drift, run_mtime, \
+                     summary_mtime, prejudged_key, prejudged_bin) VALUES (?1, ?2, ?3, ?4, ?5, \
+                     ?6, ?7, ?8, ?9, ?10, ?11, ?12, ?13, ?14, ?15, ?16, ?17, ?18, ?19, ?20, ?21, \
+                     ?22, ?23, ?24)",
+                )
+                .map_err(sq)?;
+            let mut data = tx
+                .prepare_cached(
+                    "INSERT OR REPLACE INTO run_data (unit, folder, judging_json, metrics_bin, \
+                     metrics_json) VALUES (?1, ?2, ?3, ?4, ?5)",
+                )
                 .map_err(sq)?;
             for r in runs {
                 let v = |k| r.values.get(k);
@@ -168,11 +193,18 @@ impl Index {
                     v(KeyMetric::LimitCurrent),
                     v(KeyMetric::ShortCircuitCurrent),
                     v(KeyMetric::ShortCircuitDrift),
-                    r.metrics_json,
                     r.run_mtime,
                     r.summary_mtime,
+                    r.prejudged_key,
+                    r.prejudged_bin,
+                ])
+                .map_err(sq)?;
+                data.execute(params![
+                    r.unit,
+                    r.folder,
                     r.judging_json,
                     r.metrics_bin,
+                    r.metrics_json,
                 ])
                 .map_err(sq)?;
             }
@@ -184,9 +216,10 @@ impl Index {
     pub fn rebuild(&mut self) -> Result<Rebuilt, IndexError> {
         let mut out = Rebuilt::default();
         let mut runs = Vec::new();
+        let mut designs = Expectations::default();
         for unit in list_dirs(&self.root)? {
             for dir in list_dirs(&unit)? {
-                match scan_record(&dir) {
+                match scan_record(&dir, &mut designs) {
                     Ok(r) => runs.push(r),
                     Err(e) => out.skipped.push(format!("{}: {e}", dir.display())),
                 }
@@ -194,7 +227,9 @@ impl Index {
         }
         out.indexed = runs.len();
         let sq = self.sq();
-        self.conn.execute("DELETE FROM runs", []).map_err(&sq)?;
+        self.conn
+            .execute_batch("DELETE FROM runs; DELETE FROM run_data;")
+            .map_err(&sq)?;
         drop(sq);
         self.upsert(&runs)?;
         Ok(out)
@@ -231,6 +266,7 @@ impl Index {
         };
         let mut fresh = Vec::new();
         let mut skipped = Vec::new();
+        let mut designs = Expectations::default();
         let mut names = Vec::new();
         for dir in &dirs {
             let name = dir
@@ -244,7 +280,7 @@ impl Index {
             });
             names.push(name);
             if !current {
-                match scan_record(dir) {
+                match scan_record(dir, &mut designs) {
                     Ok(r) => fresh.push(r),
                     Err(e) => skipped.push(format!("{}: {e}", dir.display())),
                 }
@@ -258,12 +294,14 @@ impl Index {
         if !gone.is_empty() {
             let sq = self.sq();
             for f in gone {
-                self.conn
-                    .execute(
-                        "DELETE FROM runs WHERE unit = ?1 AND folder = ?2",
-                        [unit, f],
-                    )
-                    .map_err(&sq)?;
+                for table in ["runs", "run_data"] {
+                    self.conn
+                        .execute(
+                            &format!("DELETE FROM {table} WHERE unit = ?1 AND folder = ?2"),
+                            [unit, f],
+                        )
+                        .map_err(&sq)?;
+                }
             }
         }
         if !fresh.is_empty() {
@@ -275,7 +313,7 @@ impl Index {
     /// Runs matching a filter, oldest first.
     pub fn runs(&self, filter: &RunFilter) -> Result<Vec<IndexedRun>, IndexError> {
         let sq = self.sq();
-        let mut sql = format!("SELECT {COLUMNS} FROM runs WHERE 1=1");
+        let mut sql = format!("SELECT {COLUMNS} FROM runs_all WHERE 1=1");
         let mut args: Vec<String> = Vec::new();
         if let Some(u) = &filter.unit {
             args.push(u.clone());
@@ -308,7 +346,7 @@ impl Index {
         let mut st = self
             .conn
             .prepare(
-                "SELECT unit, folder, outcome, state, metrics_json FROM runs \
+                "SELECT unit, folder, outcome, state, metrics_json FROM runs_all \
                  WHERE metrics_json IS NOT NULL AND (?1 IS NULL OR unit = ?1) \
                  ORDER BY started_utc, unit, folder",
             )
@@ -328,10 +366,17 @@ impl Index {
         Ok(parsed.into_iter().flatten().collect())
     }
 
-    /// Every run (optionally one unit's) as `compare --index` re-judges it, oldest first. The
-    /// compact metrics (without notes) are read and parsed on every core; the notes are read
-    /// only for a run that lacks a metric its plan promised (they say why).
-    pub fn judging_rows(&self, unit: Option<&str>) -> Result<Vec<JudgingRow>, IndexError> {
+    /// Every run (optionally one unit's) as `compare --index` re-judges it against the design
+    /// whose content hash is `design_sha256`, oldest first. A run judged against that very
+    /// design when it was indexed ([`Prejudged`], under [`prejudged_key`]) comes with that
+    /// judgement and nothing else is read for it; for every other run the compact metrics
+    /// (without notes) are read, and the notes only for a run that lacks a metric its plan
+    /// promised (they say why). Parsed on every core.
+    pub fn judging_rows(
+        &self,
+        unit: Option<&str>,
+        design_sha256: &str,
+    ) -> Result<Vec<JudgingRow>, IndexError> {
         type Raw = (
             String,
             String,
@@ -340,19 +385,27 @@ impl Index {
             String,
             String,
             Option<Vec<u8>>,
+            Option<Vec<u8>>,
             Option<String>,
         );
         let sq = self.sq();
-        // No ORDER BY: sorting in SQL would carry every row's metrics through the sort.
+        let key = prejudged_key(design_sha256);
+        // No ORDER BY: sorting in SQL would carry every row's blobs through the sort. A run
+        // with a usable judgement skips its metrics and judging (in the other table).
         let mut st = self
             .conn
             .prepare(
-                "SELECT unit, folder, started_utc, design_sha256, outcome, state, metrics_bin, \
-                 judging_json FROM runs WHERE (?1 IS NULL OR unit = ?1)",
+                "SELECT unit, folder, started_utc, design_sha256, outcome, state, \
+                 CASE WHEN prejudged_key = ?2 THEN prejudged_bin END, \
+                 CASE WHEN prejudged_key IS NOT ?2 OR prejudged_bin IS NULL THEN (SELECT \
+                 metrics_bin FROM run_data d WHERE d.unit = r.unit AND d.folder = r.folder) END, \
+                 CASE WHEN prejudged_key IS NOT ?2 OR prejudged_bin IS NULL THEN (SELECT \
+                 judging_json FROM run_data d WHERE d.unit = r.unit AND d.folder = r.folder) END \
+                 FROM runs r WHERE (?1 IS NULL OR unit = ?1)",
             )
             .map_err(&sq)?;
         let raw: Vec<Raw> = st
-            .query_map([unit], |r| {
+            .query_map(params![unit, key], |r| {
                 Ok((
                     r.get(0)?,
                     r.get(1)?,
@@ -362,23 +415,29 @@ impl Index {
                     r.get(5)?,
                     r.get(6)?,
                     r.get(7)?,
+                    r.get(8)?,
                 ))
             })
             .map_err(&sq)?
             .collect::<Result<_, _>>()
             .map_err(&sq)?;
-        let parse = |(unit, folder, started_utc, design_sha256, o, s, m, j): Raw| {
+        let parse = |(unit, folder, started_utc, design_sha256, o, s, p, m, j): Raw| {
             let (outcome, state) = IndexedRun::outcome_of(&o, &s);
-            JudgingRow {
+            let prejudged = p.as_deref().and_then(Prejudged::decode);
+            // A judgement that does not decode: judged from the metrics instead (read below).
+            let undecoded = p.is_some() && prejudged.is_none();
+            let row = JudgingRow {
                 unit,
                 folder,
                 started_utc,
                 design_sha256,
                 outcome,
                 state,
-                metrics: m.and_then(|m| postcard::from_bytes(&m).ok()),
+                metrics: m.and_then(|m| postcard::from_bytes(&m).ok()).map(Box::new),
                 judging: j.and_then(|j| serde_json::from_str::<Judging>(&j).ok()),
-            }
+                prejudged,
+            };
+            (row, undecoded)
         };
         // Sorted before parsing: the raw rows are small to move.
         let mut raw = raw;
@@ -386,23 +445,30 @@ impl Index {
         let mut rows = crate::par::map(raw, parse);
         let mut notes = self
             .conn
-            .prepare("SELECT metrics_json FROM runs WHERE unit = ?1 AND folder = ?2")
+            .prepare(
+                "SELECT metrics_json, judging_json FROM run_data WHERE unit = ?1 AND folder = ?2",
+            )
             .map_err(&sq)?;
-        for r in &mut rows {
+        for (r, undecoded) in &mut rows {
             let lacking = match (&r.metrics, &r.judging) {
                 (Some(m), Some(j)) => !crate::compare::missing_metrics(m, &j.promised).is_empty(),
                 _ => false,
             };
-            if lacking {
-                let full: Option<String> = notes
-                    .query_row([&r.unit, &r.folder], |row| row.get(0))
+            if lacking || *undecoded {
+                let (full, judging): (Option<String>, Option<String>) = notes
+                    .query_row([&r.unit, &r.folder], |row| Ok((row.get(0)?, row.get(1)?)))
                     .optional()
                     .map_err(&sq)?
-                    .flatten();
-                r.metrics = full.and_then(|t| serde_json::from_str(&t).ok());
+                    .unwrap_or_default();
+                r.metrics = full
+                    .and_then(|t| serde_json::from_str(&t).ok())
+                    .map(Box::new);
+                if *undecoded {
+                    r.judging = judging.and_then(|j| serde_json::from_str(&j).ok());
+                }
             }
         }
-        Ok(rows)
+        Ok(rows.into_iter().map(|(r, _)| r).collect())
     }
 
     /// Number of indexed runs.
@@ -424,7 +490,7 @@ impl Index {
         let sq = self.sq();
         self.conn
             .query_row(
-                &format!("SELECT {COLUMNS} FROM runs WHERE unit = ?1 AND folder = ?2"),
+                &format!("SELECT {COLUMNS} FROM runs_all WHERE unit = ?1 AND folder = ?2"),
                 [unit, folder],
                 row_to_run,
             )
@@ -461,6 +527,8 @@ fn row_to_run(r: &rusqlite::Row<'_>) -> rusqlite::Result<IndexedRun> {
         summary_mtime: r.get(22)?,
         judging_json: r.get(23)?,
         metrics_bin: r.get(24)?,
+        prejudged_key: r.get(25)?,
+        prejudged_bin: r.get(26)?,
     })
 }
 

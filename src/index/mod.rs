@@ -7,10 +7,12 @@
 //! This file only declares and re-exports.
 
 mod db;
+mod prejudged;
 mod scan;
 mod types;
 
 pub use db::{index_path, Index, Rebuilt, RunFilter, INDEX_FILE};
+pub use prejudged::{prejudged_key, Prejudged};
 pub use types::{IndexError, IndexedRun, JudgingRow, MetricsRow};
 
 /// Add a run that just finished to the index of its records root (its folder's grandparent).

@@ -2,6 +2,7 @@
 //! stamp and, when present, summary.json (metrics and verdict, derived from the readings).
 //! Reads only.
 
+use super::prejudged::{prejudged_key, Expectations, Prejudged};
 use super::types::{IndexError, IndexedRun};
 use crate::analysis::Metrics;
 use crate::compare::{KeyValues, Verdict};
@@ -51,8 +52,12 @@ pub(super) fn mtime_ns(path: &Path) -> i64 {
         .unwrap_or(0)
 }
 
-/// Read a record folder `<root>/<unit>/<folder>` into an index row.
-pub(super) fn scan_record(dir: &Path) -> Result<IndexedRun, IndexError> {
+/// Read a record folder `<root>/<unit>/<folder>` into an index row; `designs` keeps the
+/// expectations of the designs met so far (see [`Prejudged`]).
+pub(super) fn scan_record(
+    dir: &Path,
+    designs: &mut Expectations,
+) -> Result<IndexedRun, IndexError> {
     let info = record::read_info(dir).map_err(|e| IndexError::Record(Box::new(e)))?;
     let state = record::record_state(dir, &info);
     let folder = dir
@@ -102,6 +107,18 @@ pub(super) fn scan_record(dir: &Path) -> Result<IndexedRun, IndexError> {
         .filter(|s| s.settings.as_ref().is_some_and(SettingsPart::are_defaults))
         .and_then(|_| crate::plan::snapshot_outline(dir))
         .map(|steps| crate::floor::judging_of(&steps, info.reason.clone()));
+    // The run judged against its own design snapshot, when the snapshot is the design run.json
+    // names (same content hash): what `compare --index` against that design then needs.
+    let prejudged = match (&summary, &judging) {
+        (Some(s), Some(j)) => designs
+            .of_record(dir)
+            .filter(|(sha, _)| *sha == info.design.sha256)
+            .and_then(|(sha, exp)| {
+                let bin = Prejudged::make(&s.metrics, exp, j).encode()?;
+                Some((prejudged_key(&sha), bin))
+            }),
+        _ => None,
+    };
     let stamp = read_station_stamp(dir);
     let state_word = match state {
         RecordState::Finished(_) => "finished",
@@ -134,6 +151,8 @@ pub(super) fn scan_record(dir: &Path) -> Result<IndexedRun, IndexError> {
         metrics_json,
         judging_json: judging.and_then(|j| serde_json::to_string(&j).ok()),
         metrics_bin: summary.as_ref().and_then(|s| compact(&s.metrics)),
+        prejudged_key: prejudged.as_ref().map(|p| p.0.clone()),
+        prejudged_bin: prejudged.map(|p| p.1),
         run_mtime: mtime_ns(&dir.join(record::RUN_FILE)),
         summary_mtime: mtime_ns(&dir.join("summary.json")),
     })

@@ -1,5 +1,6 @@
 //! The index's row type and its error, shared by the folder scan and the database.
 
+use super::prejudged::Prejudged;
 use crate::analysis::Metrics;
 use crate::compare::{HistoryEntry, Judging, KeyValues, Verdict};
 use crate::record::{Outcome, RecordError, RecordState};
@@ -55,6 +56,11 @@ pub struct IndexedRun {
     /// The same metrics without their notes, compact (postcard): what `compare --index`
     /// reads for every run.
     pub metrics_bin: Option<Vec<u8>>,
+    /// What the run's judgement against its own design was made under
+    /// ([`super::prejudged_key`]: the design's content hash, tool version, index schema).
+    pub prejudged_key: Option<String>,
+    /// That judgement before the one rule ([`Prejudged`], compact).
+    pub prejudged_bin: Option<Vec<u8>>,
     pub run_mtime: i64,
     pub summary_mtime: i64,
 }
@@ -115,9 +121,12 @@ pub struct JudgingRow {
     pub state: RecordState,
     /// `None` for a run without a summary: it is re-judged from its folder. Without its
     /// notes unless a promised metric is missing (the notes say why).
-    pub metrics: Option<Metrics>,
+    pub metrics: Option<Box<Metrics>>,
     /// `None` for a run whose summary does not say what its plan promised.
     pub judging: Option<Judging>,
+    /// The run judged against the design asked about before the one rule, when the index
+    /// holds that (metrics and judging are then not read).
+    pub prejudged: Option<Prejudged>,
 }
 
 /// A run's metrics for re-judging: unit, record folder, outcome, state, metrics.

@@ -206,3 +206,137 @@ fn compare_through_the_index_decides_as_the_folders_do() {
         "{folders:#}\n{indexed:#}"
     );
 }
+
+/// `compare --index` against the design the runs ran with, as printed (table or JSON).
+fn printed(design: &Path, records: &Path, json: bool) -> String {
+    let mut argv: Vec<std::ffi::OsString> = vec!["regulus".into(), "compare".into()];
+    if json {
+        argv.push("--json".into());
+    }
+    argv.extend([
+        "--design".into(),
+        design.into(),
+        "--index".into(),
+        records.into(),
+    ]);
+    let cli = <regulus::cli::Cli as clap::Parser>::try_parse_from(argv).unwrap();
+    let regulus::cli::Command::Compare(args) = cli.command else {
+        panic!("not a compare command");
+    };
+    let out = regulus::cli::compare::evaluate(&args).unwrap();
+    let mut buf = Vec::new();
+    regulus::cli::compare::write_output(&mut buf, &out, json).unwrap();
+    String::from_utf8(buf).unwrap()
+}
+
+/// The judgement the index makes when it indexes a run (the run compared with its own design
+/// snapshot: checks, plan limits, the diagnosis of a failing unit, the promised metrics it
+/// lacks) decides by the one rule exactly what judging the indexed metrics decides: on the
+/// two records of `regulus demo` (one unit fails and is diagnosed) and rows that make one
+/// unit's earlier run and the other's unfinished later run, the table and the JSON are the
+/// same byte for byte whether the index holds only its judgements or only the metrics, and a
+/// judgement kept under another design's hash is not used.
+#[test]
+fn judgements_made_when_indexing_print_what_the_metrics_give() {
+    use regulus::index::{prejudged_key, Index};
+    let _g = serial();
+    let tmp = tempfile::tempdir().unwrap();
+    let records = tmp.path().join("records");
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_regulus"))
+        .args(["demo", "--records"])
+        .arg(&records)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0), "{}", show(&out));
+    let design = records.join("inputs").join("teaching-lab-0-20v.toml");
+    let mut idx = Index::open(&records).unwrap();
+    idx.rebuild().unwrap();
+    let demo = idx.runs(&Default::default()).unwrap();
+    assert_eq!(demo.len(), 2, "{demo:#?}");
+    let sha = format!(
+        "{:x}",
+        <sha2::Sha256 as sha2::Digest>::digest(std::fs::read(&design).unwrap())
+    );
+    for r in &demo {
+        assert_eq!(
+            r.design_sha256,
+            sha,
+            "the demo's runs ran with {}",
+            design.display()
+        );
+        assert_eq!(
+            r.prejudged_key.as_deref(),
+            Some(prejudged_key(&sha).as_str())
+        );
+        assert!(r.prejudged_bin.is_some() && r.metrics_bin.is_some());
+    }
+    // Rows only (no folders): an earlier run of the passing unit and a later run of the
+    // failing unit that never finished.
+    let mut rows = demo.clone();
+    let mut earlier = demo.iter().find(|r| r.unit == "TLB-0001").unwrap().clone();
+    earlier.folder = "20200101T000000Z_standard".into();
+    earlier.started_utc = "2020-01-01T00:00:00.000Z".into();
+    let mut unfinished = demo.iter().find(|r| r.unit == "TLB-0002").unwrap().clone();
+    unfinished.folder = "29990101T000000Z_standard".into();
+    unfinished.started_utc = "2999-01-01T00:00:00.000Z".into();
+    unfinished.state = "running".into();
+    unfinished.outcome = "running".into();
+    rows.extend([earlier, unfinished]);
+
+    // Only the metrics (and what the plans promised): judged from them, as before.
+    let metrics_only: Vec<_> = rows
+        .iter()
+        .cloned()
+        .map(|mut r| {
+            r.prejudged_key = None;
+            r.prejudged_bin = None;
+            r
+        })
+        .collect();
+    idx.upsert(&metrics_only).unwrap();
+    let table = printed(&design, &records, false);
+    let json = printed(&design, &records, true);
+    let v: Value = serde_json::from_str(&json).unwrap();
+    assert_eq!(v["offered"], 4, "{v:#}");
+    assert_eq!(v["units"], 2, "{v:#}");
+    assert_eq!(v["left_out"].as_array().unwrap().len(), 2, "{v:#}");
+    assert!(table.contains("did not finish"), "{table}");
+    assert!(table.contains("an earlier run of TLB-0001"), "{table}");
+    // The demo's failing unit has a wrong sense resistor: the diagnosis names it.
+    assert!(
+        table.contains("likely cause:") && table.contains("sense resistor"),
+        "{table}"
+    );
+    assert!(table.contains("FAIL"), "{table}");
+
+    // Only the judgements made when indexing: the metrics are not there to read.
+    let judged_only: Vec<_> = rows
+        .iter()
+        .cloned()
+        .map(|mut r| {
+            r.metrics_bin = None;
+            r.metrics_json = None;
+            r.judging_json = None;
+            r
+        })
+        .collect();
+    idx.upsert(&judged_only).unwrap();
+    assert_eq!(printed(&design, &records, false), table);
+    assert_eq!(printed(&design, &records, true), json);
+
+    // A judgement kept under another design's hash is not used: the metrics decide (every
+    // row here holds the failing unit's judgement, which would fail them all).
+    let failing = demo.iter().find(|r| r.unit == "TLB-0002").unwrap();
+    let other_key: Vec<_> = rows
+        .iter()
+        .cloned()
+        .map(|mut r| {
+            r.prejudged_key = Some(prejudged_key(&"0".repeat(64)));
+            r.prejudged_bin = failing.prejudged_bin.clone();
+            r
+        })
+        .collect();
+    idx.upsert(&other_key).unwrap();
+    assert_eq!(printed(&design, &records, false), table);
+    assert_eq!(printed(&design, &records, true), json);
+}
