@@ -13,6 +13,10 @@ pub const D4_N2: f64 = 3.267;
 /// Standard normal quantile for two-sided 95 % bounds.
 pub const Z_95: f64 = 1.959_964;
 
+/// Fewest values a Cpk is reported from, everywhere (compare, the batch tally, the
+/// dashboard): a Cpk from fewer is noise, its bounds too wide to act on (project choice).
+pub const MIN_N_FOR_CPK: usize = 10;
+
 /// Cpk and its approximate 95 % confidence bounds.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Cpk {

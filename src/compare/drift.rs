@@ -251,8 +251,8 @@ pub fn unit_drift(
 pub const DEFAULT_OUTLIER_Z: f64 = 3.0;
 /// Fewest units for outlier flags (leave-one-out z needs a spread of the others).
 pub const MIN_UNITS_FOR_OUTLIERS: usize = 5;
-/// Fewest units before a Cpk is reported (project choice; a Cpk from fewer units is noise).
-pub const MIN_UNITS_FOR_CPK: usize = 10;
+/// Fewest units before a Cpk is reported ([`crate::capability::MIN_N_FOR_CPK`]).
+pub const MIN_UNITS_FOR_CPK: usize = crate::capability::MIN_N_FOR_CPK;
 
 /// One unit flagged as an outlier for one metric.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

@@ -442,7 +442,9 @@ pub fn write_dashboard<W: Write>(
         let spec = limits.iter().find(|l| l.metric == k).copied();
         let unit = k.unit();
         let (mean, sd) = capability::mean_sd(&vals).unwrap_or((f64::NAN, f64::NAN));
-        let cpk = spec.and_then(|l| capability::cpk(&vals, l.lower, l.upper));
+        let cpk = spec
+            .filter(|_| vals.len() >= capability::MIN_N_FOR_CPK)
+            .and_then(|l| capability::cpk(&vals, l.lower, l.upper));
         writeln!(
             w,
             "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td></tr>",
@@ -452,7 +454,11 @@ pub fn write_dashboard<W: Write>(
             e(&eng(sd, unit)),
             spec.map(|l| eng(l.lower, unit)).unwrap_or_else(|| "-".into()),
             spec.map(|l| eng(l.upper, unit)).unwrap_or_else(|| "-".into()),
-            cpk.map(|c| format!("{:.2}", c.cpk)).unwrap_or_else(|| "-".into()),
+            match (cpk, spec) {
+                (Some(c), _) => format!("{:.2}", c.cpk),
+                (None, Some(_)) => format!("needs {}+ runs", capability::MIN_N_FOR_CPK),
+                (None, None) => "-".into(),
+            },
             cpk.map(|c| format!("{:.2} .. {:.2}", c.lower_95, c.upper_95)).unwrap_or_else(|| "-".into()),
         )?;
         if let Some(c) = capability::imr(&vals) {

@@ -7,8 +7,8 @@ use super::FloorResult;
 use crate::capability::{self, Cpk};
 use std::collections::BTreeMap;
 
-/// Units a Cpk is shown from (fewer give bounds too wide to act on).
-pub const CPK_MIN_UNITS: usize = 8;
+/// Units a Cpk is shown from ([`crate::capability::MIN_N_FOR_CPK`]).
+pub const CPK_MIN_UNITS: usize = crate::capability::MIN_N_FOR_CPK;
 
 /// A batch's tally so far.
 #[derive(Debug, Clone, Default)]
