@@ -90,30 +90,70 @@ viewBox=\"0 0 {W} {height}\"><rect x=\"{ML}\" y=\"{MT}\" width=\"{}\" height=\"{
 }
 
 fn hline(s: &mut String, y: f64, colour: &str, dash: &str, label: &str) {
+    hline_labelled_at(s, y, y, colour, dash, label);
+}
+
+/// A horizontal line at `y` with its label at `label_y` (moved off a neighbour's label).
+fn hline_labelled_at(s: &mut String, y: f64, label_y: f64, colour: &str, dash: &str, label: &str) {
     let _ = write!(
         s,
         "<line x1=\"{ML}\" x2=\"{}\" y1=\"{y:.1}\" y2=\"{y:.1}\" stroke=\"{colour}\" stroke-dasharray=\"{dash}\"/>\
 <text x=\"{}\" y=\"{:.1}\" text-anchor=\"end\" fill=\"{colour}\">{}</text>",
         W - MR,
         ML - 4.0,
-        y + 4.0,
+        label_y + 4.0,
         escape(label)
     );
 }
 
-/// Legend below the plotting area (never over a limit or a bar).
+/// Smallest vertical distance between two line labels, px (about one line of the label font).
+const LABEL_GAP: f64 = 11.0;
+
+/// Label heights for lines at `ys` (any order): each label at its line, pushed down just
+/// enough to clear the one above it, so close lines (a tiny spread) keep readable labels.
+fn spread_labels(ys: &[f64]) -> Vec<f64> {
+    let mut order: Vec<usize> = (0..ys.len()).collect();
+    order.sort_by(|a, b| ys[*a].total_cmp(&ys[*b]));
+    let mut out = ys.to_vec();
+    let mut last = f64::NEG_INFINITY;
+    for k in order {
+        let y = ys[k].max(last + LABEL_GAP);
+        out[k] = y;
+        last = y;
+    }
+    out
+}
+
+/// Legend below the plotting area (never over a limit or a bar); items that do not fit on
+/// one row go on a second, the rows ending at the same place.
 fn legend(s: &mut String, items: &[(&str, &str)]) {
+    let width = |text: &str| 26.0 + 6.5 * text.len() as f64;
+    let mut rows: Vec<Vec<(&str, &str)>> = vec![Vec::new()];
     let mut x = ML;
-    for (colour, text) in items {
-        let _ = write!(
-            s,
-            "<rect x=\"{x}\" y=\"{}\" width=\"14\" height=\"3\" fill=\"{colour}\"/><text x=\"{}\" y=\"{}\">{}</text>",
-            H - 12.0,
-            x + 18.0,
-            H - 8.0,
-            escape(text)
-        );
-        x += 26.0 + 6.5 * text.len() as f64;
+    for &(colour, text) in items {
+        if x + width(text) > W && x > ML {
+            rows.push(Vec::new());
+            x = ML;
+        }
+        if let Some(r) = rows.last_mut() {
+            r.push((colour, text));
+        }
+        x += width(text);
+    }
+    let n = rows.len() as f64;
+    for (k, row) in rows.iter().enumerate() {
+        let y = H - 12.0 - 12.0 * (n - 1.0 - k as f64);
+        let mut x = ML;
+        for (colour, text) in row {
+            let _ = write!(
+                s,
+                "<rect x=\"{x}\" y=\"{y}\" width=\"14\" height=\"3\" fill=\"{colour}\"/><text x=\"{}\" y=\"{}\">{}</text>",
+                x + 18.0,
+                y + 4.0,
+                escape(text)
+            );
+            x += width(text);
+        }
     }
 }
 
@@ -131,42 +171,28 @@ fn control_charts(metric: KeyMetric, values: &[f64], spec: Option<SpecLimits>) -
     let xs = |i: usize| ML + (W - ML - MR) * (i as f64 + 0.5) / n as f64;
     let mut s = String::new();
     svg_open(&mut s, &format!("imr-{}", metric.as_str()), H);
-    hline(
-        &mut s,
-        sc.y(c.center),
-        "#333",
-        "",
-        &format!("CL {}", eng(c.center, unit)),
-    );
-    hline(
-        &mut s,
-        sc.y(c.ucl),
-        "#c60",
-        "5,3",
-        &format!("UCL {}", eng(c.ucl, unit)),
-    );
-    hline(
-        &mut s,
-        sc.y(c.lcl),
-        "#c60",
-        "5,3",
-        &format!("LCL {}", eng(c.lcl, unit)),
-    );
+    let mut lines: Vec<(f64, &str, &str, String)> = vec![
+        (c.center, "#333", "", format!("CL {}", eng(c.center, unit))),
+        (c.ucl, "#c60", "5,3", format!("UCL {}", eng(c.ucl, unit))),
+        (c.lcl, "#c60", "5,3", format!("LCL {}", eng(c.lcl, unit))),
+    ];
     if let Some(l) = spec {
-        hline(
-            &mut s,
-            sc.y(l.upper),
+        lines.push((
+            l.upper,
             "#b00",
             "2,2",
-            &format!("USL {}", eng(l.upper, unit)),
-        );
-        hline(
-            &mut s,
-            sc.y(l.lower),
+            format!("USL {}", eng(l.upper, unit)),
+        ));
+        lines.push((
+            l.lower,
             "#b00",
             "2,2",
-            &format!("LSL {}", eng(l.lower, unit)),
-        );
+            format!("LSL {}", eng(l.lower, unit)),
+        ));
+    }
+    let ys: Vec<f64> = lines.iter().map(|l| sc.y(l.0)).collect();
+    for ((line, y), label_y) in lines.iter().zip(&ys).zip(spread_labels(&ys)) {
+        hline_labelled_at(&mut s, *y, label_y, line.1, line.2, &line.3);
     }
     let pts: Vec<String> = values
         .iter()
@@ -496,6 +522,18 @@ pub fn write_dashboard<W: Write>(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn close_lines_keep_readable_labels_in_their_order() {
+        // Three lines on one pixel row (a spread far below the chart's resolution) and one far
+        // off: the three labels step down one gap each, in the lines' order; the far one stays.
+        let ys = [100.2, 100.0, 100.1, 30.0];
+        let at = spread_labels(&ys);
+        assert_eq!(at[3], 30.0);
+        assert_eq!(at[1], 100.0);
+        assert!((at[2] - (100.0 + LABEL_GAP)).abs() < 1e-9, "{at:?}");
+        assert!((at[0] - (100.0 + 2.0 * LABEL_GAP)).abs() < 1e-9, "{at:?}");
+    }
 
     #[test]
     fn limits_fall_on_bin_edges() {
