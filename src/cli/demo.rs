@@ -168,12 +168,7 @@ fn recap(records: &Path, serial: &str) -> (String, Vec<String>, String) {
         .to_uppercase();
     let all: Vec<String> = summary
         .as_ref()
-        .and_then(|s| s["comparison"]["likely_causes"].as_array())
-        .map(|a| {
-            a.iter()
-                .filter_map(|c| c.as_str().map(String::from))
-                .collect()
-        })
+        .map(super::present::likely_causes_in)
         .unwrap_or_default();
     // The causes are ranked: the first is the best fit.
     let causes: Vec<String> = all.into_iter().take(1).collect();

@@ -114,12 +114,18 @@ pub fn preflight_causes(e: &PipelineError) -> Vec<String> {
     std::fs::read(dir.join("summary.json"))
         .ok()
         .and_then(|b| serde_json::from_slice::<serde_json::Value>(&b).ok())
-        .and_then(|s| {
-            s["comparison"]["likely_causes"].as_array().map(|a| {
-                a.iter()
-                    .filter_map(|c| c.as_str().map(String::from))
-                    .collect()
-            })
+        .map(|s| likely_causes_in(&s))
+        .unwrap_or_default()
+}
+
+/// The likely causes a parsed summary.json gives, best first (none when it has none).
+pub fn likely_causes_in(summary: &serde_json::Value) -> Vec<String> {
+    summary["comparison"]["likely_causes"]
+        .as_array()
+        .map(|a| {
+            a.iter()
+                .filter_map(|c| c.as_str().map(String::from))
+                .collect()
         })
         .unwrap_or_default()
 }

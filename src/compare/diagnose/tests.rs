@@ -33,6 +33,26 @@ fn observe(pred: [f64; 3], rng: &mut Rng) -> Observations {
     }
 }
 
+/// Observations exactly at `pred`: the output read to 2 mV, the currents to `rel` of their
+/// value (no noise, no temperature).
+fn exact(pred: [f64; 3], rel: f64) -> Observations {
+    Observations {
+        vout: Some(Observed {
+            value: pred[0],
+            u: 2e-3,
+        }),
+        limit: Some(Observed {
+            value: pred[1],
+            u: rel * pred[1],
+        }),
+        short: Some(Observed {
+            value: pred[2],
+            u: rel * pred[2],
+        }),
+        ..Observations::default()
+    }
+}
+
 type Fault = (&'static str, &'static str, fn(&mut Design, &mut Params));
 
 #[test]
@@ -248,22 +268,9 @@ fn clamp_diodes_on_the_heatsink_are_read_at_the_sink() {
     p.clamp_junction_c = case - watts * d.pass.theta_cs;
     let pred = predict(&d, &p);
     let obs = Observations {
-        vout: Some(Observed {
-            value: pred[0],
-            u: 2e-3,
-        }),
-        limit: Some(Observed {
-            value: pred[1],
-            u: 0.005 * pred[1],
-        }),
-        short: Some(Observed {
-            value: pred[2],
-            u: 0.005 * pred[2],
-        }),
         pass_junction_c: Some(settled),
         pass_case_c: Some(case),
-        limit_at_least: None,
-        short_junction_c: None,
+        ..exact(pred, 0.005)
     };
     let diag = diagnose(&d, &x, &obs);
     let first = diag.fits.first().map(|h| (h.part.clone(), h.worst_z));
@@ -366,24 +373,7 @@ fn a_part_is_named_where_the_design_fits_too_only_with_strong_evidence() {
         p.r_sense = r;
         predict(&d, &p)
     };
-    let diag_at = |pred: [f64; 3], u: f64| {
-        let obs = Observations {
-            vout: Some(Observed {
-                value: pred[0],
-                u: 2e-3,
-            }),
-            limit: Some(Observed {
-                value: pred[1],
-                u: u * pred[1],
-            }),
-            short: Some(Observed {
-                value: pred[2],
-                u: u * pred[2],
-            }),
-            ..Observations::default()
-        };
-        diagnose(&d, &x, &obs)
-    };
+    let diag_at = |pred: [f64; 3], u: f64| diagnose(&d, &x, &exact(pred, u));
     // A unit exactly as drawn: nothing named.
     assert!(diagnosis_lines(&diag_at(nominal, 0.005)).is_empty());
     // Measurements that the 0.33 ohm part explains much better than the design's 0.39
