@@ -218,9 +218,11 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
 
     let line_regulation = line_regulation(rows, opts, no_load.map(|p| p.voltage));
 
+    // At the knee; when the limit was not reached, at the highest regulating point (which
+    // bounds the limit from below, at the junction temperature it had there).
     let knee_conditions = knee
         .as_ref()
-        .and_then(|k| k.two_segment.or(k.fixed_drop))
+        .and_then(|k| k.two_segment.or(k.fixed_drop).or(k.highest_regulating))
         .and_then(|kp| knee_conditions(rows, kp.current));
 
     let soak = soak(rows);

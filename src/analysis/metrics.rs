@@ -195,7 +195,8 @@ pub struct Soak {
     pub points: usize,
 }
 
-/// What the pass device saw at the knee: its case temperature and dissipation.
+/// What the pass device saw at the knee (when the limit was not reached, at the highest
+/// regulating point): its case temperature and dissipation.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct KneeConditions {
     /// Thermometer reading (pass device case), degC.

@@ -733,6 +733,8 @@ mod tests {
             margin: 0.8,
             margin_percent: 4.0,
             deviation_percent: 0.0,
+            band_basis: None,
+            envelope: None,
             note: (k % 3 == 0).then(|| "a \"quoted\"\nnote".to_string()),
         };
         Judged {
@@ -746,6 +748,7 @@ mod tests {
                 verdict: Verdict::Pass,
                 likely_causes: vec!["a cause".into()],
                 not_measured: Vec::new(),
+                joint_fit_names_a_part: false,
             }),
         }
     }

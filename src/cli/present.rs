@@ -349,6 +349,23 @@ impl Observer for Progress {
     }
 }
 
+/// Where a check's band was taken and the operating envelope beside it, in one line.
+fn band_line(ch: &crate::compare::Check) -> Option<String> {
+    let env = ch.envelope.map(|e| {
+        format!(
+            "operating envelope {} .. {}",
+            crate::quantity::eng(e.min, &ch.unit),
+            crate::quantity::eng(e.max, &ch.unit)
+        )
+    });
+    match (&ch.band_basis, env) {
+        (Some(b), Some(e)) => Some(format!("band: {b}; {e}")),
+        (Some(b), None) => Some(format!("band: {b}")),
+        (None, Some(e)) => Some(e),
+        (None, None) => None,
+    }
+}
+
 /// Print the comparison, likely causes, drift flags, verdict and its reasons, and the
 /// written files.
 pub fn print_outcome<W: std::io::Write>(
@@ -380,6 +397,9 @@ pub fn print_checks<W: std::io::Write>(
             )?;
             if let Some(note) = &ch.note {
                 writeln!(w, "  {}: {note}", ch.metric)?;
+            }
+            if let Some(line) = band_line(ch) {
+                writeln!(w, "  {line}")?;
             }
         }
         if c.checks.iter().any(|ch| ch.metric == "limit_current") {

@@ -602,13 +602,7 @@ pub fn diagnose(d: &Design, exp: &DesignExpectation, obs: &Observations) -> Diag
 
 /// Lines for people: the ranked fitting hypotheses, or that none fits.
 pub fn diagnosis_lines(diag: &Diagnosis) -> Vec<String> {
-    // Where the design as drawn fits too, only a hypothesis with strong evidence over it is
-    // named.
-    let fits: Vec<&Hypothesis> = diag
-        .fits
-        .iter()
-        .filter(|h| !diag.nominal_fits || diag.nominal_score - h.score >= EVIDENCE_SCORE)
-        .collect();
+    let fits = named(diag);
     if diag.nominal_fits && fits.is_empty() {
         return Vec::new();
     }
@@ -638,6 +632,15 @@ pub fn diagnosis_lines(diag: &Diagnosis) -> Vec<String> {
         ));
     }
     lines
+}
+
+/// The hypotheses a diagnosis names, best first: the fitting ones, and where the design as
+/// drawn fits too, only those with strong evidence over it.
+pub fn named(diag: &Diagnosis) -> Vec<&Hypothesis> {
+    diag.fits
+        .iter()
+        .filter(|h| !diag.nominal_fits || diag.nominal_score - h.score >= EVIDENCE_SCORE)
+        .collect()
 }
 
 /// Score difference under which two hypotheses are said to fit equally well (a chi-square

@@ -214,6 +214,14 @@ pub fn judge(
                 reasons.push(format!("{} {}", ch.metric, ch.verdict.as_str()));
             }
         }
+        if c.joint_fit_names_a_part {
+            raise(Verdict::Marginal, &mut worst);
+            reasons.push(
+                "every check lies inside its band, but the measurements fitted together point \
+                 to a wrong part (see the likely cause)"
+                    .to_string(),
+            );
+        }
     }
     Judgement {
         verdict: worst.or(comparison.map(|_| Verdict::Pass)),
@@ -376,6 +384,7 @@ mod tests {
             verdict: Verdict::Pass,
             likely_causes: vec![],
             not_measured: vec![],
+            joint_fit_names_a_part: false,
         };
         let j = judge(facts, Some(&empty), &[]);
         assert_eq!(j.verdict, Some(Verdict::Incomplete));

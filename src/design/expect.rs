@@ -5,9 +5,11 @@
 //! Pure: a [`Design`] in, an [`Expectation`] out.
 
 use super::file::{Clamp, Design, Resistor};
-use super::heating::{running_short_current, Condition, Solved};
+use super::heating::{self, running_short_current, Condition, Solved};
 pub use super::judge::{Check, PartStress, Verdict};
-use super::model::{evaluate, is_adjustable, sense_voltage, vi_curve, Params, PassStress};
+use super::model::{
+    evaluate, is_adjustable, limit_current_at, sense_voltage, vi_curve, Params, PassStress,
+};
 use super::rectifier::RectifierExpect;
 use super::soa::{self, Candidate, SoaPoint};
 use super::stress::{
@@ -72,46 +74,126 @@ pub struct AsBuiltBands {
     pub ambient_c: f64,
     pub vout: Band,
     pub sense_voltage: Band,
+    /// The knee of a cold unit (every junction at the ambient).
     pub limit_current: Band,
+    /// The knee from a cold unit to its settled self-heated knee (the pass junction at the
+    /// temperature its knee dissipation settles at, at most T_j max): what a bench that does
+    /// not read the case temperature may find. Equal to the cold band when the clamp does not
+    /// follow the pass device's heating.
+    pub limit_current_heated: Band,
+    /// Into a short applied to a cold or a running unit (two values per unit).
     pub short_circuit_current: Band,
+    /// Into a short applied to a cold unit.
+    pub short_circuit_current_cold: Band,
+    /// The pass junction temperature of the nominal unit's settled knee, capped at T_j max
+    /// (degC): where [`Self::limit_current_heated`] reaches.
+    pub knee_settled_junction_c: f64,
+}
+
+/// Change of the nominal unit's limit current at output `vout` when its pass junctions go from
+/// the ambient to `pass_c` and the clamp parts to `clamp_c`: the junction law applied to the
+/// clamp relation (V(T) = V(25 degC) + tc (T - 25); textbook).
+pub fn limit_shift(d: &Design, vout: f64, pass_c: f64, clamp_c: f64) -> f64 {
+    let cold = Params::nominal(d);
+    let mut hot = cold.clone();
+    hot.pass_junction_c = pass_c;
+    hot.clamp_junction_c = clamp_c;
+    limit_current_at(d, &hot, vout) - limit_current_at(d, &cold, vout)
+}
+
+/// The smallest and largest [`limit_shift`] with the pass junction anywhere in `pass` and the
+/// clamp anywhere in `clamp` (the shift is linear in each temperature, so its extremes lie at
+/// the corners).
+pub fn limit_shift_range(d: &Design, vout: f64, pass: (f64, f64), clamp: (f64, f64)) -> (f64, f64) {
+    let mut lo = f64::INFINITY;
+    let mut hi = f64::NEG_INFINITY;
+    for p in [pass.0, pass.1] {
+        for c in [clamp.0, clamp.1] {
+            let s = limit_shift(d, vout, p, c);
+            lo = lo.min(s);
+            hi = hi.max(s);
+        }
+    }
+    (lo, hi)
+}
+
+/// Junction temperatures of a settled knee, the pass junction capped at T_j max (a unit
+/// hotter than that does not stay on the bench), the clamp scaled with it.
+fn settled_knee_params(d: &Design, p: &Params) -> Params {
+    let s = heating::solve(d, p, Condition::Knee);
+    let cap = d.pass.tj_max_c;
+    let mut h = p.clone();
+    let rise = s.pass_junction_c - p.ambient_c;
+    let scale = if rise > 0.0 && s.pass_junction_c > cap {
+        (cap - p.ambient_c).max(0.0) / rise
+    } else {
+        1.0
+    };
+    h.pass_junction_c = p.ambient_c + rise * scale;
+    h.clamp_junction_c = p.ambient_c + (s.clamp_junction_c - p.ambient_c) * scale;
+    h
 }
 
 /// As-built bands: worst case over the part corners and Monte Carlo over part draws.
 pub fn as_built_bands(d: &Design, samples: usize, seed: u64) -> AsBuiltBands {
-    let nom = evaluate(d, &Params::nominal(d));
+    let nominal = Params::nominal(d);
+    let nom = evaluate(d, &nominal);
+    let point = |p: &Params| {
+        let pt = evaluate(d, p);
+        let cold_short = pt.short_circuit_current;
+        (pt, cold_short, running_short_current(d, p))
+    };
+    let hot_nominal = settled_knee_params(d, &nominal);
     let mut wc = [
         Interval::point(nom.vout_set),
         Interval::point(nom.sense_v),
         Interval::point(nom.limit_current),
         Interval::point(nom.short_circuit_current),
+        Interval::point(nom.limit_current),
+        Interval::point(nom.short_circuit_current),
     ];
     for_each_corner_in(d, Envelope::AsBuilt, |p| {
-        let pt = evaluate(d, p);
+        let (pt, cold_short, running) = point(p);
+        let hot = limit_current_at(d, &settled_knee_params(d, p), pt.vout_set);
         for (w, v) in wc.iter_mut().zip([
             pt.vout_set,
             pt.sense_v,
             pt.limit_current,
-            pt.short_circuit_current,
+            cold_short,
+            pt.limit_current,
+            cold_short,
         ]) {
             w.include(v);
         }
-        wc[3].include(running_short_current(d, p));
+        wc[3].include(running);
+        wc[4].include(hot);
     });
     let mut c = Collect::default();
+    let mut heated = Vec::with_capacity(2 * samples);
+    let mut sc_cold = Vec::with_capacity(samples);
     for_each_sample_in(d, Envelope::AsBuilt, samples, seed, |p| {
-        let pt = evaluate(d, p);
+        let (pt, cold_short, running) = point(p);
         c.vout_set.push(pt.vout_set);
         c.sense.push(pt.sense_v);
         c.limit.push(pt.limit_current);
-        c.sc.push(pt.short_circuit_current);
-        c.sc.push(running_short_current(d, p));
+        c.sc.push(cold_short);
+        c.sc.push(running);
+        sc_cold.push(cold_short);
+        let mut h = p.clone();
+        h.pass_junction_c = hot_nominal.pass_junction_c;
+        h.clamp_junction_c = hot_nominal.clamp_junction_c;
+        heated.push(pt.limit_current);
+        heated.push(limit_current_at(d, &h, pt.vout_set));
     });
     AsBuiltBands {
         ambient_c: d.environment.ambient_c,
         vout: band(nom.vout_set, wc[0], &mut c.vout_set),
         sense_voltage: band(nom.sense_v, wc[1], &mut c.sense),
         limit_current: band(nom.limit_current, wc[2], &mut c.limit),
+        limit_current_heated: band(nom.limit_current, wc[4], &mut heated),
         short_circuit_current: band(nom.short_circuit_current, wc[3], &mut c.sc),
+        short_circuit_current_cold: band(nom.short_circuit_current, wc[5], &mut sc_cold),
+        knee_settled_junction_c: hot_nominal.pass_junction_c,
     }
 }
 

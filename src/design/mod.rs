@@ -23,7 +23,8 @@ pub mod stress;
 pub mod tolerance;
 
 pub use expect::{
-    as_built_bands, expect, expect_with, AsBuiltBands, Check, Expectation, PartStress, Verdict,
+    as_built_bands, expect, expect_with, limit_shift, limit_shift_range, AsBuiltBands, Check,
+    Expectation, PartStress, Verdict,
 };
 pub use file::{Clamp, ClampMount, Design, DesignError, InputKind, Stage};
 pub use model::{evaluate, Params, Point};

@@ -76,13 +76,20 @@ pub fn table(w: &mut impl Write, d: &Design, e: &Expectation) -> io::Result<()> 
         eng(e.as_built.ambient_c, "degC")
     )?;
     band_row(w, "  output", &e.as_built.vout, "V")?;
-    band_row(w, "  limit knee", &e.as_built.limit_current, "A")?;
-    band_row(
-        w,
-        "  short-circuit current",
-        &e.as_built.short_circuit_current,
-        "A",
-    )?;
+    let a = &e.as_built;
+    if a.limit_current_heated.worst_case.max > a.limit_current.worst_case.max + 1e-6 {
+        band_row(w, "  limit knee, cold", &a.limit_current, "A")?;
+        band_row(w, "  knee, cold to settled", &a.limit_current_heated, "A")?;
+        writeln!(
+            w,
+            "    (a reading with the case temperature is judged by the cold band moved to its \
+             junction; without one, cold to settled, the pass junction up to {:.0} degC)",
+            a.knee_settled_junction_c
+        )?;
+    } else {
+        band_row(w, "  limit knee", &a.limit_current, "A")?;
+    }
+    band_row(w, "  short-circuit current", &a.short_circuit_current, "A")?;
     if d.limit.clamp == Clamp::Foldback {
         writeln!(
             w,

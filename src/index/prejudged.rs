@@ -28,11 +28,20 @@ pub struct Prejudged {
     pub reason: Option<String>,
 }
 
+/// Revision of the judgement's rules and stored form; raised whenever either changes, so a
+/// judgement made by an earlier build of the same version is made again, not reused.
+/// Revision 2: bench readings judged by the as-built bands, the operating envelope beside;
+/// a record whose checks pass is marginal when the joint fit names a wrong part.
+pub const JUDGEMENT_REVISION: u32 = 2;
+
 /// The key under which a judgement made against the design with content hash `sha256` is
-/// stored: the hash and the tool version. (An index of another schema is dropped and made
-/// again from the folders, its judgements with it.)
+/// stored: the hash, the tool version and the judgement's revision. (An index of another
+/// schema is dropped and made again from the folders, its judgements with it.)
 pub fn prejudged_key(sha256: &str) -> String {
-    format!("{sha256} regulus {}", env!("CARGO_PKG_VERSION"))
+    format!(
+        "{sha256} regulus {} judgement {JUDGEMENT_REVISION}",
+        env!("CARGO_PKG_VERSION")
+    )
 }
 
 /// The stored form: every field written (the JSON form of a check skips an empty note, which
@@ -44,6 +53,7 @@ struct Stored {
     verdict: compare::Verdict,
     likely_causes: Vec<String>,
     not_measured: Vec<String>,
+    joint_fit_names_a_part: bool,
     missing: Vec<Missing>,
     /// In [`KeyMetric::ALL`] order.
     values: Vec<Option<f64>>,
@@ -63,6 +73,8 @@ struct StoredCheck {
     margin_percent: f64,
     deviation_percent: f64,
     note: Option<String>,
+    band_basis: Option<String>,
+    envelope: Option<compare::Limits>,
 }
 
 impl Prejudged {
@@ -96,11 +108,14 @@ impl Prejudged {
                     margin_percent: k.margin_percent,
                     deviation_percent: k.deviation_percent,
                     note: k.note.clone(),
+                    band_basis: k.band_basis.clone(),
+                    envelope: k.envelope,
                 })
                 .collect(),
             verdict: c.verdict,
             likely_causes: c.likely_causes.clone(),
             not_measured: c.not_measured.clone(),
+            joint_fit_names_a_part: c.joint_fit_names_a_part,
             missing: self.missing.clone(),
             values: KeyMetric::ALL.iter().map(|k| self.values.get(*k)).collect(),
             reason: self.reason.clone(),
@@ -132,11 +147,14 @@ impl Prejudged {
                         margin_percent: k.margin_percent,
                         deviation_percent: k.deviation_percent,
                         note: k.note,
+                        band_basis: k.band_basis,
+                        envelope: k.envelope,
                     })
                     .collect(),
                 verdict: s.verdict,
                 likely_causes: s.likely_causes,
                 not_measured: s.not_measured,
+                joint_fit_names_a_part: s.joint_fit_names_a_part,
             },
             missing: s.missing,
             values: KeyValues(KeyMetric::ALL.iter().copied().zip(s.values).collect()),
@@ -192,6 +210,11 @@ mod tests {
             margin_percent: 1.95,
             deviation_percent: 2.05,
             note: note.map(String::from),
+            band_basis: Some("as built: part tolerances at 25 degC and the nominal input".into()),
+            envelope: Some(Limits {
+                min: 19.0,
+                max: 21.0,
+            }),
         }
     }
 
@@ -208,6 +231,7 @@ mod tests {
                 verdict: Verdict::Marginal,
                 likely_causes: vec!["a 0.68 ohm sense resistor".into()],
                 not_measured: vec!["short_circuit_current".into()],
+                joint_fit_names_a_part: true,
             },
             missing: vec![Missing {
                 metric: Promised::LineRegulation,

@@ -127,6 +127,15 @@ pub fn write_certificate_html<W: Write>(mut w: W, c: &Certificate<'_>) -> std::i
         )?,
     }
     writeln!(w, "</table>")?;
+    if let Some(cmp) = c.summary.and_then(|s| s.comparison.as_ref()) {
+        if cmp.checks.iter().any(|ch| ch.band_basis.is_some()) {
+            writeln!(
+                w,
+                "<p class=\"basis\">Limits: the design's as-built worst case (part tolerances at \
+its room and input), taken at the temperatures the record gives.</p>"
+            )?;
+        }
+    }
 
     writeln!(w, "<h2>Instruments</h2>")?;
     writeln!(

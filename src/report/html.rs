@@ -206,14 +206,16 @@ pub fn write_html<W: Write>(
         writeln!(
             w,
             "<h2>Measured against design {}</h2><table id=\"verdicts\"><tr><th>Metric</th><th>Measured</th>\
-             <th>Nominal</th><th>Worst case</th><th>Monte Carlo band</th><th>Margin</th><th>Deviation</th><th>Verdict</th></tr>",
+             <th>Nominal</th><th>Worst case</th><th>Monte Carlo band</th><th>Margin</th><th>Deviation</th><th>Verdict</th>\
+             <th>Operating envelope</th></tr>",
             e(&c.design_name)
         )?;
         for ch in &c.checks {
             writeln!(
                 w,
                 "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{} &ndash; {}</td>\
-                 <td class=\"num\">{} &ndash; {}</td><td class=\"num\">{} ({:+.1} %)</td><td class=\"num\">{:+.1} %</td>{}</tr>",
+                 <td class=\"num\">{} &ndash; {}</td><td class=\"num\">{} ({:+.1} %)</td><td class=\"num\">{:+.1} %</td>{}\
+                 <td class=\"num\">{}</td></tr>",
                 e(&ch.metric.replace('_', " ")),
                 eng(ch.measured, &ch.unit),
                 eng(ch.nominal, &ch.unit),
@@ -224,15 +226,36 @@ pub fn write_html<W: Write>(
                 eng(ch.margin, &ch.unit),
                 ch.margin_percent,
                 ch.deviation_percent,
-                verdict_cell(ch.verdict)
+                verdict_cell(ch.verdict),
+                ch.envelope
+                    .map(|x| format!(
+                        "{} &ndash; {}",
+                        eng(x.min, &ch.unit),
+                        eng(x.max, &ch.unit)
+                    ))
+                    .unwrap_or_else(|| "&ndash;".to_string())
             )?;
         }
         writeln!(w, "</table>")?;
+        let bases: Vec<_> = c
+            .checks
+            .iter()
+            .filter_map(|ch| Some((&ch.metric, ch.band_basis.as_ref()?)))
+            .collect();
+        if !bases.is_empty() {
+            writeln!(w, "<ul class=\"bases\">")?;
+            for (m, b) in bases {
+                writeln!(w, "<li>{}: band {}</li>", e(&m.replace('_', " ")), e(b))?;
+            }
+            writeln!(w, "</ul>")?;
+        }
         writeln!(
             w,
-            "<p>Pass: inside the Monte Carlo band. Marginal: inside the worst case, outside the \
-             Monte Carlo band. Fail: outside the worst case. Margin: distance to the nearer \
-             worst-case limit (negative outside), percent of nominal.</p>"
+            "<p>Bands are the design's as-built bands (part tolerances at its room and input, at \
+             the temperatures listed above); the operating envelope (ambient range and line \
+             too) is shown for reference. Pass: inside the Monte Carlo band. Marginal: inside \
+             the worst case, outside the Monte Carlo band. Fail: outside the worst case. Margin: \
+             distance to the nearer worst-case limit (negative outside), percent of nominal.</p>"
         )?;
         if !c.not_measured.is_empty() {
             writeln!(w, "<p>Not measured: {}</p>", e(&c.not_measured.join(", ")))?;

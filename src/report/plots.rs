@@ -305,7 +305,11 @@ fn draw_vi<DB: DrawingBackend>(
             // The region between the worst-case edge curves. Those curves run through the
             // lowest and highest limit corners, whose output voltages are arbitrary: rescale
             // them to the output's worst-case extremes so the band covers both.
-            let vb = e.vout.worst_case;
+            // The edge curves come from the operating envelope's corners: scaled to its output.
+            let vb = e
+                .envelope
+                .as_ref()
+                .map_or(e.vout.worst_case, |x| x.vout.worst_case);
             let scaled = |c: &[(f64, f64)], v_to: f64| -> Vec<(f64, f64)> {
                 let v0 = c.first().map(|p| p.1).filter(|v| *v > 0.0).unwrap_or(v_to);
                 c.iter().map(|(i, v)| (*i, v * v_to / v0)).collect()
@@ -322,9 +326,15 @@ fn draw_vi<DB: DrawingBackend>(
                 Rectangle::new([(ib.min, 0.0), (ib.max, vb.max)], fill).into_dyn(),
             ])
         };
+        let curves = !e.curve_low.is_empty() && !e.curve_high.is_empty();
+        let worst_label = if curves && e.envelope.is_some() {
+            "design worst case (operating envelope)"
+        } else {
+            "design worst-case band"
+        };
         banded
             .map_err(s)?
-            .label("design worst-case band")
+            .label(worst_label)
             .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], fill));
         // The Monte Carlo band (where most built units fall) inside the worst-case band.
         let mc_fill = EXPECTED.mix(0.22).filled();
@@ -348,7 +358,11 @@ fn draw_vi<DB: DrawingBackend>(
                     .into_dyn(),
                 ])
                 .map_err(s)?
-                .label("design Monte Carlo band")
+                .label(if e.envelope.is_some() {
+                    "design Monte Carlo band (as built)"
+                } else {
+                    "design Monte Carlo band"
+                })
                 .legend(move |(x, y)| Rectangle::new([(x, y - 6), (x + 18, y + 6)], mc_fill));
         }
         let pts = if e.curve.len() >= 2 {

@@ -54,6 +54,7 @@ fn expectation() -> DesignExpectation {
         rated_load_a: None,
         design: None,
         as_built: None,
+        envelope: None,
     }
 }
 

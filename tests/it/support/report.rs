@@ -157,6 +157,7 @@ pub fn expectation() -> DesignExpectation {
         rated_load_a: None,
         design: None,
         as_built: None,
+        envelope: None,
     }
 }
 
