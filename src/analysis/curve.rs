@@ -223,7 +223,7 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
     let knee_conditions = knee
         .as_ref()
         .and_then(|k| k.two_segment.or(k.fixed_drop).or(k.highest_regulating))
-        .and_then(|kp| knee_conditions(rows, kp.current));
+        .and_then(|kp| knee_conditions(rows, kp));
 
     let soak = soak(rows);
     if soak.is_none() && rows.iter().any(|r| r.step_kind == StepKind::Soak) {
@@ -258,17 +258,25 @@ pub fn analyse(rows: &[Row], opts: &AnalysisOptions) -> Metrics {
     }
 }
 
-/// Conditions of the curve row whose current is nearest `i_knee` (among rows with V and I).
-pub(super) fn knee_conditions(rows: &[Row], i_knee: f64) -> Option<KneeConditions> {
+/// Conditions of the curve row nearest the knee point (among rows with V and I), nearest in
+/// the V-I plane with each axis scaled by the knee's own value: in the limit region the
+/// current hardly changes while the output falls, so the current alone would as readily pick
+/// a point deep in the limit, where the pass device dissipates far more than at the knee.
+pub(super) fn knee_conditions(rows: &[Row], knee: CurvePoint) -> Option<KneeConditions> {
+    let scale = |x: f64| if x.abs() > 0.0 { x.abs() } else { 1.0 };
+    let (si, sv) = (scale(knee.current), scale(knee.voltage));
+    let distance = |r: &Row| match (
+        r.value(Quantity::OutputCurrent),
+        r.value(Quantity::OutputVoltage),
+    ) {
+        (Some(i), Some(v)) => ((i - knee.current) / si).hypot((v - knee.voltage) / sv),
+        _ => f64::INFINITY,
+    };
     let r = rows
         .iter()
         .filter(|r| is_curve_kind(r.step_kind))
         .filter(|r| curve_point(r).is_some())
-        .min_by(|a, b| {
-            let da = (a.value(Quantity::OutputCurrent).unwrap_or(f64::INFINITY) - i_knee).abs();
-            let db = (b.value(Quantity::OutputCurrent).unwrap_or(f64::INFINITY) - i_knee).abs();
-            da.total_cmp(&db)
-        })?;
+        .min_by(|a, b| distance(a).total_cmp(&distance(b)))?;
     let v = r.value(Quantity::OutputVoltage)?;
     let i = r.value(Quantity::OutputCurrent)?;
     let pass_watts = r

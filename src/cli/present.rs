@@ -387,10 +387,17 @@ pub fn print_checks<W: std::io::Write>(
         for ch in &c.checks {
             writeln!(
                 w,
-                "{:<22} {:>10}  nominal {:>10}  worst case {} .. {}  {}",
+                "{:<22} {:>10}  nominal {:>10}  {} {} .. {}  {}",
                 ch.metric,
                 crate::quantity::eng(ch.measured, &ch.unit),
                 crate::quantity::eng(ch.nominal, &ch.unit),
+                // As-built bands (part tolerances only) say so; an expectation without them
+                // judges against the operating envelope's worst case.
+                if ch.band_basis.is_some() {
+                    "as built"
+                } else {
+                    "worst case"
+                },
                 crate::quantity::eng(ch.worst_case.min, &ch.unit),
                 crate::quantity::eng(ch.worst_case.max, &ch.unit),
                 ch.verdict.label()

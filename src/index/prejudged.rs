@@ -32,7 +32,9 @@ pub struct Prejudged {
 /// judgement made by an earlier build of the same version is made again, not reused.
 /// Revision 2: bench readings judged by the as-built bands, the operating envelope beside;
 /// a record whose checks pass is marginal when the joint fit names a wrong part.
-pub const JUDGEMENT_REVISION: u32 = 2;
+/// Revision 3: the case reading and dissipation at the knee come from the row nearest the knee
+/// point in V and I, not the nearest in current alone (which could be deep in the limit).
+pub const JUDGEMENT_REVISION: u32 = 3;
 
 /// The key under which a judgement made against the design with content hash `sha256` is
 /// stored: the hash, the tool version and the judgement's revision. (An index of another

@@ -203,12 +203,15 @@ pub fn write_html<W: Write>(
 
     // Comparison with the design.
     if let Some(c) = &s.comparison {
+        // An expectation with as-built bands judges by them; an older one by the envelope.
+        let as_built = c.checks.iter().any(|ch| ch.band_basis.is_some());
         writeln!(
             w,
             "<h2>Measured against design {}</h2><table id=\"verdicts\"><tr><th>Metric</th><th>Measured</th>\
-             <th>Nominal</th><th>Worst case</th><th>Monte Carlo band</th><th>Margin</th><th>Deviation</th><th>Verdict</th>\
+             <th>Nominal</th><th>Worst case{}</th><th>Monte Carlo band</th><th>Margin</th><th>Deviation</th><th>Verdict</th>\
              <th>Operating envelope</th></tr>",
-            e(&c.design_name)
+            e(&c.design_name),
+            if as_built { " (as built)" } else { "" }
         )?;
         for ch in &c.checks {
             writeln!(
@@ -251,11 +254,17 @@ pub fn write_html<W: Write>(
         }
         writeln!(
             w,
-            "<p>Bands are the design's as-built bands (part tolerances at its room and input, at \
-             the temperatures listed above); the operating envelope (ambient range and line \
-             too) is shown for reference. Pass: inside the Monte Carlo band. Marginal: inside \
+            "<p>{} Pass: inside the Monte Carlo band. Marginal: inside \
              the worst case, outside the Monte Carlo band. Fail: outside the worst case. Margin: \
-             distance to the nearer worst-case limit (negative outside), percent of nominal.</p>"
+             distance to the nearer worst-case limit (negative outside), percent of nominal.</p>",
+            if as_built {
+                "Bands are the design's as-built bands (part tolerances at its room and input, \
+                 at the temperatures listed above); the operating envelope (ambient range and \
+                 line too) is shown for reference."
+            } else {
+                "Bands are the design's operating envelope (part tolerances, ambient range and \
+                 line)."
+            }
         )?;
         if !c.not_measured.is_empty() {
             writeln!(w, "<p>Not measured: {}</p>", e(&c.not_measured.join(", ")))?;

@@ -214,3 +214,57 @@ fn bad_readings_report_the_line() {
     let err = read(&text).unwrap_err().to_string();
     assert!(err.contains("line 17") && err.contains("twelve"), "{err}");
 }
+
+#[test]
+fn knee_conditions_come_from_the_row_at_the_knee_not_deep_in_the_limit() {
+    // The same readings with the limit trace recorded from the deepest point up, and the case
+    // warmer at the deep points. All four trace rows carry 1.0 A, so the current alone cannot
+    // tell them apart; the row at the knee (1.0 A, 11.95 V from the two-segment fit) is the
+    // 11.0 V one: (18 - 11) x 1.0 = 7 W at 26 degC. The 2.0 V row would give (18 - 2) x 1.0 =
+    // 16 W, the dissipation of a unit held deep in its limit, not at its knee (common practice:
+    // P = (V_in - V_out) x I in the series-pass device).
+    let lines: Vec<&str> = READINGS.lines().collect();
+    let mut trace: Vec<String> = lines
+        .iter()
+        .filter(|l| l.contains(",limit_trace,"))
+        .map(|l| {
+            if l.contains(",11.000,") {
+                l.to_string()
+            } else {
+                l.replace(",26,0.1,", ",33,0.1,")
+            }
+        })
+        .collect();
+    trace.reverse();
+    let mut text = String::new();
+    let mut trace_written = false;
+    for l in &lines {
+        if l.contains(",limit_trace,") {
+            if !trace_written {
+                for t in &trace {
+                    text.push_str(t);
+                    text.push('\n');
+                }
+                trace_written = true;
+            }
+        } else {
+            text.push_str(l);
+            text.push('\n');
+        }
+    }
+    assert!(
+        trace_written && text.find(",2.000,").unwrap() < text.find(",11.000,").unwrap(),
+        "the deep row comes first"
+    );
+    let rows = read(&text).expect("reordered readings parse");
+    let info: RunInfo = serde_json::from_str(RUN).expect("fixed run.json parses");
+    let s = report::summarize(
+        &info,
+        &rows,
+        Some(&expectation()),
+        &ReportOptions::default(),
+    );
+    let kc = s.metrics.knee_conditions.expect("knee conditions");
+    assert_eq!(kc.case_temperature, Some(26.0));
+    assert!((kc.pass_watts.unwrap() - 7.0).abs() < 1e-9, "{kc:?}");
+}
