@@ -179,7 +179,7 @@ pub fn run(args: Args) -> anyhow::Result<u8> {
             bench = None;
         }
         gate.tested(&serial);
-        tally.add(done.result, &done.values);
+        tally.add(&serial, done.result, &done.values);
         writeln!(out, "{}", tally.line())?;
         if cancel.is_cancelled() {
             writeln!(
