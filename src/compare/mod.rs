@@ -15,6 +15,8 @@ pub use finished::{
     compare_with_limits, finished, judge, judge_metrics, missing_metrics, promised_metrics,
     record_verdict, Judgement, Judging, Missing, Promised, RecordFacts,
 };
+mod bands;
+pub use bands::observations;
 mod design;
 pub use design::*;
 mod diagnose;
