@@ -7,7 +7,7 @@ use super::types::{IndexError, IndexedRun};
 use crate::analysis::Metrics;
 use crate::compare::{KeyValues, Verdict};
 use crate::floor::floor_result;
-use crate::record::{self, Outcome, RecordState};
+use crate::record::{self, RecordState};
 use crate::station::read_station_stamp;
 use serde::Deserialize;
 use std::path::Path;
@@ -120,12 +120,8 @@ pub(super) fn scan_record(
         _ => None,
     };
     let stamp = read_station_stamp(dir);
-    let state_word = match state {
-        RecordState::Finished(_) => "finished",
-        RecordState::Running => "running",
-        RecordState::Incomplete => "incomplete",
-    };
-    let mut outcome = outcome_word(info.outcome).to_string();
+    let state_word = state.as_str();
+    let mut outcome = info.outcome.as_str().to_string();
     if state == RecordState::Incomplete {
         outcome = "incomplete".into();
     }
@@ -165,14 +161,4 @@ pub(super) fn compact(m: &Metrics) -> Option<Vec<u8>> {
         ..m.clone()
     };
     postcard::to_allocvec(&m).ok()
-}
-
-fn outcome_word(o: Outcome) -> &'static str {
-    match o {
-        Outcome::Running => "running",
-        Outcome::Completed => "completed",
-        Outcome::Aborted => "aborted",
-        Outcome::Failed => "failed",
-        Outcome::Error => "error",
-    }
 }

@@ -84,19 +84,7 @@ impl IndexedRun {
 
     /// The outcome and state from their indexed words.
     pub fn outcome_of(outcome: &str, state: &str) -> (Outcome, RecordState) {
-        let outcome = match outcome {
-            "completed" => Outcome::Completed,
-            "aborted" => Outcome::Aborted,
-            "failed" => Outcome::Failed,
-            "error" => Outcome::Error,
-            _ => Outcome::Running,
-        };
-        let state = match state {
-            "finished" => RecordState::Finished(outcome),
-            "running" => RecordState::Running,
-            _ => RecordState::Incomplete,
-        };
-        (outcome, state)
+        RecordState::from_words(outcome, state)
     }
 
     /// The summary's full metrics, when the run has them.

@@ -176,6 +176,30 @@ pub enum RecordState {
     Incomplete,
 }
 
+impl RecordState {
+    /// The word a summary, the index and the store keep: `finished`, `running` or
+    /// `incomplete`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            RecordState::Finished(_) => "finished",
+            RecordState::Running => "running",
+            RecordState::Incomplete => "incomplete",
+        }
+    }
+
+    /// The outcome and state from their kept words ([`Outcome::as_str`], [`Self::as_str`]);
+    /// a state word it does not know reads as incomplete.
+    pub fn from_words(outcome: &str, state: &str) -> (Outcome, RecordState) {
+        let outcome = Outcome::from_word(outcome);
+        let state = match state {
+            "finished" => RecordState::Finished(outcome),
+            "running" => RecordState::Running,
+            _ => RecordState::Incomplete,
+        };
+        (outcome, state)
+    }
+}
+
 /// One run read back from disk.
 #[derive(Debug, Clone)]
 pub struct RunRecord {
@@ -238,6 +262,32 @@ mod tests {
 
     fn record(fields: &[String]) -> csv::StringRecord {
         csv::StringRecord::from(fields.to_vec())
+    }
+
+    #[test]
+    fn kept_words_read_back_as_what_was_kept() {
+        // The words are the record layout's (docs/ARCHITECTURE.md "Record layout").
+        for o in [
+            Outcome::Running,
+            Outcome::Completed,
+            Outcome::Aborted,
+            Outcome::Error,
+            Outcome::Failed,
+        ] {
+            assert_eq!(Outcome::from_word(o.as_str()), o);
+            for st in [
+                RecordState::Finished(o),
+                RecordState::Running,
+                RecordState::Incomplete,
+            ] {
+                assert_eq!(RecordState::from_words(o.as_str(), st.as_str()), (o, st));
+            }
+        }
+        // A word nobody wrote is never taken for a finished record.
+        assert_eq!(
+            RecordState::from_words("passed", "done"),
+            (Outcome::Running, RecordState::Incomplete)
+        );
     }
 
     #[test]

@@ -327,6 +327,18 @@ impl Outcome {
             Outcome::Failed => "failed",
         }
     }
+
+    /// The outcome a word of run.json (or an index or store holding it) names; a word it
+    /// does not know reads as `running`, which a reader then takes for cut short.
+    pub fn from_word(word: &str) -> Outcome {
+        match word {
+            "completed" => Outcome::Completed,
+            "aborted" => Outcome::Aborted,
+            "failed" => Outcome::Failed,
+            "error" => Outcome::Error,
+            _ => Outcome::Running,
+        }
+    }
 }
 
 /// Which design a run was made against.

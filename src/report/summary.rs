@@ -39,15 +39,6 @@ pub fn load_record(dir: &Path) -> Result<RunRecord, ReportError> {
     Ok(record::read_run(dir)?)
 }
 
-/// Words for a record's state in the summary: `finished`, `running` or `incomplete`.
-pub fn state_word(state: RecordState) -> &'static str {
-    match state {
-        RecordState::Finished(_) => "finished",
-        RecordState::Running => "running",
-        RecordState::Incomplete => "incomplete",
-    }
-}
-
 /// Analysis settings recorded in the summary.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct AnalysisSettings {
@@ -325,7 +316,7 @@ pub fn evaluate_loaded(
             ))
         })
         .collect();
-    summary.record_state = state_word(rec.state).to_string();
+    summary.record_state = rec.state.as_str().to_string();
     // Drift flags name the record by its folder.
     let folder = dir
         .file_name()

@@ -142,7 +142,7 @@ pub async fn store_metrics(
     client: &Client,
     unit: Option<&str>,
 ) -> Result<Vec<StoreMetrics>, StoreError> {
-    use crate::record::{Outcome, RecordState};
+    use crate::record::RecordState;
     let rows = client
         .query(
             "SELECT r.run_id, r.unit_serial, \
@@ -159,18 +159,8 @@ pub async fn store_metrics(
     Ok(rows
         .iter()
         .map(|r| {
-            let outcome = match r.get::<_, String>(4).as_str() {
-                "completed" => Outcome::Completed,
-                "aborted" => Outcome::Aborted,
-                "failed" => Outcome::Failed,
-                "error" => Outcome::Error,
-                _ => Outcome::Running,
-            };
-            let state = match r.get::<_, String>(5).as_str() {
-                "finished" => RecordState::Finished(outcome),
-                "running" => RecordState::Running,
-                _ => RecordState::Incomplete,
-            };
+            let (outcome, state) =
+                RecordState::from_words(&r.get::<_, String>(4), &r.get::<_, String>(5));
             let summary: Option<serde_json::Value> = r
                 .get::<_, Option<Vec<u8>>>(7)
                 .and_then(|c| serde_json::from_slice(&c).ok());

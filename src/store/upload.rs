@@ -101,11 +101,7 @@ pub async fn upload_record(
             comparison.as_ref().map(|c| c.verdict),
         ),
     };
-    let state_word = match state {
-        RecordState::Finished(_) => "finished",
-        RecordState::Running => "running",
-        RecordState::Incomplete => "incomplete",
-    };
+    let state_word = state.as_str();
     let design_bytes = std::fs::read(dir.join(record::DESIGN_SNAPSHOT)).ok();
     let revision = design_bytes
         .as_deref()
