@@ -1,7 +1,7 @@
 //! The as-built bands a record is judged by, taken at the temperatures the record gives: the
 //! cold band moved by the junction law to the pass junction at the knee and at the short, and
 //! the observations the diagnosis fits, with the junction ranges they stand for. Pure.
-use super::design::{DesignExpectation, ExpectedBand};
+use super::expectation::{DesignExpectation, ExpectedBand};
 use crate::analysis::Metrics;
 
 /// A band moved by the change the junction law gives between the design's ambient and the

@@ -16,7 +16,9 @@ pub use finished::{
     record_verdict, Judgement, Judging, Missing, Promised, RecordFacts,
 };
 mod bands;
+mod expectation;
 pub use bands::observations;
+pub use expectation::*;
 mod design;
 pub use design::*;
 mod diagnose;
