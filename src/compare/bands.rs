@@ -39,6 +39,19 @@ fn clamp_span(d: &crate::design::Design, ambient: f64, case: (f64, f64), watts: 
     }
 }
 
+/// Where an as-built band that did not move was taken: at the design's room and input.
+pub(super) fn unmoved_basis(ambient_c: f64) -> String {
+    format!(
+        "as built: part tolerances at {} and the nominal input",
+        crate::quantity::eng(ambient_c, "degC")
+    )
+}
+
+/// A dissipation reading, finite and non-negative (none reads as 0 W).
+fn watts(w: Option<f64>) -> f64 {
+    w.filter(|w| w.is_finite()).unwrap_or(0.0).max(0.0)
+}
+
 /// Smallest change in `(lo, hi)` below which a band is not said to move (A).
 const SHIFT_FLOOR_A: f64 = 1e-6;
 
@@ -53,13 +66,7 @@ pub(super) fn knee_band(m: &Metrics, exp: &DesignExpectation) -> (ExpectedBand, 
     let room = crate::quantity::eng(a.ambient_c, "degC");
     let reading = m.knee_conditions.and_then(|k| {
         let case = k.case_temperature.filter(|t| t.is_finite())?;
-        Some((
-            case,
-            k.pass_watts
-                .filter(|w| w.is_finite())
-                .unwrap_or(0.0)
-                .max(0.0),
-        ))
+        Some((case, watts(k.pass_watts)))
     });
     let Some((case, watts)) = reading else {
         let heats =
@@ -71,7 +78,7 @@ pub(super) fn knee_band(m: &Metrics, exp: &DesignExpectation) -> (ExpectedBand, 
                 a.knee_settled_junction_c
             )
         } else {
-            format!("as built: part tolerances at {room} and the nominal input")
+            unmoved_basis(a.ambient_c)
         };
         return (exp.limit_current, Some(basis));
     };
@@ -80,8 +87,7 @@ pub(super) fn knee_band(m: &Metrics, exp: &DesignExpectation) -> (ExpectedBand, 
     let vset = a.vout.nominal;
     let range = crate::design::limit_shift_range(d, vset, pass, clamp);
     if range.0.abs().max(range.1.abs()) <= SHIFT_FLOOR_A {
-        let basis = format!("as built: part tolerances at {room} and the nominal input");
-        return (a.limit_current, Some(basis));
+        return (a.limit_current, Some(unmoved_basis(a.ambient_c)));
     }
     let est = crate::design::limit_shift(d, vset, pass.1, clamp.0);
     let mut basis = format!(
@@ -118,12 +124,7 @@ pub(super) fn short_band(
     };
     // The sink sits below the case before the short (by the knee's P theta_cs) and at most
     // at the case's peak during it.
-    let knee_watts = m
-        .knee_conditions
-        .and_then(|k| k.pass_watts)
-        .filter(|w| w.is_finite())
-        .unwrap_or(0.0)
-        .max(0.0);
+    let knee_watts = watts(m.knee_conditions.and_then(|k| k.pass_watts));
     let peak = m
         .short_circuit
         .and_then(|s| s.peak_temperature)
@@ -133,8 +134,10 @@ pub(super) fn short_band(
     let clamp = clamp_span(d, a.ambient_c, (pass.0, peak), knee_watts);
     let range = crate::design::limit_shift_range(d, 0.0, pass, clamp);
     if range.0.abs().max(range.1.abs()) <= SHIFT_FLOOR_A {
-        let basis = format!("as built: part tolerances at {room} and the nominal input");
-        return Some((a.short_circuit_current_cold, Some(basis)));
+        return Some((
+            a.short_circuit_current_cold,
+            Some(unmoved_basis(a.ambient_c)),
+        ));
     }
     let est = 0.5 * (range.0 + range.1);
     let mut basis = format!(

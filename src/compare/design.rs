@@ -1,6 +1,6 @@
 //! Measured metrics against the design's expectation: verdicts with margins, and likely
 //! causes found by fitting the design's limit model to the measurement. Pure.
-use super::bands::{knee_band, observations, short_band};
+use super::bands::{knee_band, observations, short_band, unmoved_basis};
 use super::expectation::*;
 use crate::analysis::Metrics;
 use serde::{Deserialize, Serialize};
@@ -129,6 +129,14 @@ pub struct Comparison {
     pub joint_fit_names_a_part: bool,
 }
 
+impl Comparison {
+    /// Whether the checks were judged by the design's as-built bands (an expectation without
+    /// them judges by the operating envelope's worst case).
+    pub fn judged_as_built(&self) -> bool {
+        self.checks.iter().any(|ch| ch.band_basis.is_some())
+    }
+}
+
 /// Short-circuit drift over the dwell beyond which heating is named as a likely cause (5 %,
 /// common practice for a bench check; the junction drop moves about 2 mV per degC).
 pub const HEATING_DRIFT_PERCENT: f64 = 5.0;
@@ -143,12 +151,7 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
         Some(p) => {
             let mut c = check("output_voltage", "V", p.voltage, &exp.vout);
             c.envelope = env.map(|e| e.vout.worst_case);
-            c.band_basis = exp.as_built.as_ref().map(|a| {
-                format!(
-                    "as built: part tolerances at {} and the nominal input",
-                    crate::quantity::eng(a.ambient_c, "degC")
-                )
-            });
+            c.band_basis = exp.as_built.as_ref().map(|a| unmoved_basis(a.ambient_c));
             checks.push(c);
         }
         None => not_measured.push("output_voltage".to_string()),
@@ -222,27 +225,24 @@ pub fn compare(metrics: &Metrics, exp: &DesignExpectation) -> Comparison {
     let off = preflight_off || checks.iter().any(|c| c.verdict != Verdict::Pass);
     let mut verdict = verdict;
     let mut joint_fit_names_a_part = false;
-    let likely_causes = match (&exp.design, off) {
-        (Some(d), true) => {
-            let obs = obs.unwrap_or_else(|| observations(metrics, d));
-            super::diagnosis_lines(&super::diagnose(d, exp, &obs))
-        }
-        // Every check inside its band, each band as wide as the junction's uncertain
-        // temperature allows: fitted together, the measurements may still say that one part
-        // is wrong (a knee and a short that each fit a hot good unit, but not at one set of
-        // parts). Then the record is marginal, with the part named.
-        (Some(d), false) if !checks.is_empty() => {
-            let obs = obs.unwrap_or_else(|| observations(metrics, d));
-            let diag = super::diagnose(d, exp, &obs);
-            if super::diagnose::named(&diag).is_empty() {
-                Vec::new()
-            } else {
+    let likely_causes = match (exp.design.as_deref(), obs.as_ref()) {
+        (Some(d), Some(obs)) if off || !checks.is_empty() => {
+            let diag = super::diagnose(d, exp, obs);
+            // Every check inside its band, each band as wide as the junction's uncertain
+            // temperature allows: fitted together, the measurements may still say that one
+            // part is wrong (a knee and a short that each fit a hot good unit, but not at one
+            // set of parts). Then the record is marginal, with the part named.
+            if !off && !super::diagnose::named(&diag).is_empty() {
                 joint_fit_names_a_part = true;
                 verdict = verdict.max(Verdict::Marginal);
+            }
+            if off || joint_fit_names_a_part {
                 super::diagnosis_lines(&diag)
+            } else {
+                Vec::new()
             }
         }
-        (Some(_), false) => Vec::new(),
+        (Some(_), _) => Vec::new(),
         (None, _) => likely_causes(metrics, exp, &checks),
     };
     Comparison {

@@ -128,7 +128,7 @@ pub fn write_certificate_html<W: Write>(mut w: W, c: &Certificate<'_>) -> std::i
     }
     writeln!(w, "</table>")?;
     if let Some(cmp) = c.summary.and_then(|s| s.comparison.as_ref()) {
-        if cmp.checks.iter().any(|ch| ch.band_basis.is_some()) {
+        if cmp.judged_as_built() {
             writeln!(
                 w,
                 "<p class=\"basis\">Limits: the design's as-built worst case (part tolerances at \

@@ -204,7 +204,7 @@ pub fn write_html<W: Write>(
     // Comparison with the design.
     if let Some(c) = &s.comparison {
         // An expectation with as-built bands judges by them; an older one by the envelope.
-        let as_built = c.checks.iter().any(|ch| ch.band_basis.is_some());
+        let as_built = c.judged_as_built();
         writeln!(
             w,
             "<h2>Measured against design {}</h2><table id=\"verdicts\"><tr><th>Metric</th><th>Measured</th>\

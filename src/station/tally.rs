@@ -7,7 +7,6 @@
 
 use super::FloorResult;
 use crate::capability::{self, Cpk};
-use std::collections::BTreeMap;
 
 /// Units a Cpk is shown from ([`crate::capability::MIN_N_FOR_CPK`]).
 pub const CPK_MIN_UNITS: usize = crate::capability::MIN_N_FOR_CPK;
@@ -90,28 +89,25 @@ impl Tally {
     /// Cpk per metric once at least [`CPK_MIN_UNITS`] units have a judged latest value (one
     /// value per unit; the limits are the latest given).
     pub fn cpks(&self) -> Vec<(String, Cpk)> {
-        let mut metrics: BTreeMap<&str, (usize, f64, f64, Vec<f64>)> = BTreeMap::new();
-        let mut order = 0;
+        // Per metric, in the order first given: its latest limits and one value per unit.
+        let mut metrics: Vec<(&str, f64, f64, Vec<f64>)> = Vec::new();
         for u in self.units.iter().filter(|u| u.latest.judged()) {
             for (name, v, lo, hi) in &u.values {
-                let m = metrics.entry(name.as_str()).or_insert_with(|| {
-                    order += 1;
-                    (order, *lo, *hi, Vec::new())
-                });
-                m.1 = *lo;
-                m.2 = *hi;
-                m.3.push(*v);
+                match metrics.iter_mut().find(|m| m.0 == name) {
+                    Some(m) => {
+                        m.1 = *lo;
+                        m.2 = *hi;
+                        m.3.push(*v);
+                    }
+                    None => metrics.push((name, *lo, *hi, vec![*v])),
+                }
             }
         }
-        let mut out: Vec<(usize, String, Cpk)> = metrics
+        metrics
             .into_iter()
-            .filter(|(_, m)| m.3.len() >= CPK_MIN_UNITS)
-            .filter_map(|(name, (k, lo, hi, v))| {
-                capability::cpk(&v, lo, hi).map(|c| (k, name.to_string(), c))
-            })
-            .collect();
-        out.sort_by_key(|m| m.0);
-        out.into_iter().map(|(_, n, c)| (n, c)).collect()
+            .filter(|m| m.3.len() >= CPK_MIN_UNITS)
+            .filter_map(|(name, lo, hi, v)| capability::cpk(&v, lo, hi).map(|c| (name.into(), c)))
+            .collect()
     }
 
     /// One line for the screen.
@@ -151,14 +147,12 @@ impl Tally {
     }
 }
 
-/// Accepted (pass or marginal) over judged results, or `None` when none is judged.
+/// Accepted ([`FloorResult::accepted`]) over judged results, or `None` when none is judged.
 fn accepted_fraction(results: impl Iterator<Item = FloorResult>) -> Option<f64> {
     let (mut judged, mut ok) = (0usize, 0usize);
     for r in results.filter(|r| r.judged()) {
         judged += 1;
-        if matches!(r, FloorResult::Pass | FloorResult::Marginal) {
-            ok += 1;
-        }
+        ok += usize::from(r.accepted());
     }
     (judged > 0).then(|| ok as f64 / judged as f64)
 }
